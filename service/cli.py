@@ -1,0 +1,74 @@
+"""The ``lacuna`` command: ``serve``, ``worker`` and ``openapi``."""
+
+import argparse
+import os
+import sys
+from pathlib import Path
+
+from service.settings import Settings
+
+__all__ = ["main"]
+
+
+def _serve(args: argparse.Namespace, settings: Settings) -> int:
+    from service.stack import StackOptions, run_stack
+
+    return run_stack(
+        StackOptions(
+            host=args.host,
+            port=args.port,
+            redis_url=args.redis,
+            http_workers=args.http_workers,
+            threads=args.threads,
+            local_workers=args.local_workers,
+            queue=settings.queue,
+            http_timeout_s=settings.max_wait_s + 60,
+        )
+    )
+
+
+def _worker(rest: list[str]) -> int:
+    # The worker is its own program (python -m workers), so the HTTP layer never imports the
+    # numerical code; exec keeps one process that receives signals directly.
+    os.execv(sys.executable, [sys.executable, "-m", "workers", *rest])
+
+
+def _openapi(args: argparse.Namespace) -> int:
+    from service.openapi import openapi_text
+
+    text = openapi_text()
+    if args.out is None:
+        sys.stdout.write(text)
+    else:
+        Path(args.out).write_text(text, encoding="utf-8")
+    return 0
+
+
+def main(argv: list[str] | None = None) -> int:
+    settings = Settings()
+    parser = argparse.ArgumentParser(prog="lacuna", description="Persistent homology service.")
+    commands = parser.add_subparsers(dest="command", required=True)
+
+    serve = commands.add_parser("serve", help="run the HTTP API, workers and (if needed) Redis")
+    serve.add_argument("--redis", default=settings.redis_url,
+                       help="shared Redis URL (LACUNA_REDIS_URL); unset: embedded Redis")
+    serve.add_argument("--host", default=settings.host, help="listen address (LACUNA_HOST)")
+    serve.add_argument("--port", type=int, default=settings.port, help="port (LACUNA_PORT)")
+    serve.add_argument("--http-workers", type=int, default=2, help="gunicorn worker processes")
+    serve.add_argument("--threads", type=int, default=8, help="threads per gunicorn worker")
+    serve.add_argument("--local-workers", type=int, default=2,
+                       help="job workers started on this machine (0: API only)")
+
+    commands.add_parser("worker", help="run a job worker (see lacuna worker --help)",
+                        add_help=False)
+
+    openapi = commands.add_parser("openapi", help="print or write the OpenAPI document")
+    openapi.add_argument("--out", default=None, help="file to write (default: stdout)")
+
+    argv = sys.argv[1:] if argv is None else argv
+    if argv[:1] == ["worker"]:
+        return _worker(argv[1:])
+    args = parser.parse_args(argv)
+    if args.command == "serve":
+        return _serve(args, settings)
+    return _openapi(args)

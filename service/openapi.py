@@ -1,0 +1,164 @@
+"""The OpenAPI 3.1 document, generated from the pydantic models of ``workers.spec``.
+
+``lacuna openapi`` (``make openapi``) writes it to ``openapi/openapi.json``; a test fails when the
+committed copy differs from what this module generates.
+"""
+
+import json
+from typing import Any
+
+from pydantic import BaseModel
+from pydantic.json_schema import models_json_schema
+
+from workers import __version__
+from workers.spec import Capabilities, DiagramResult, JobRequest, JobStatus, Problem
+
+__all__ = ["openapi_document", "openapi_text"]
+
+_MODELS: list[type[BaseModel]] = [JobRequest, JobStatus, DiagramResult, Problem, Capabilities]
+
+_DESCRIPTION = """\
+Persistent homology as a service: post a point set, get persistence diagrams back through a
+job queue.
+
+Conventions: Vietoris-Rips values are edge lengths (diameters), not ball radii; a death of
+null means the class never dies within the filtration; pairs are sorted by (birth, death).
+ripser computes in single precision, so values carry a relative error of about 1e-7.
+Errors are RFC 9457 problem details; 422 answers list every offending field as a JSON Pointer.
+
+For research use only: results are not for diagnosis or treatment decisions.
+"""
+
+
+def _json(schema: str) -> dict[str, Any]:
+    return {"application/json": {"schema": {"$ref": f"#/components/schemas/{schema}"}}}
+
+
+def _problem(description: str) -> dict[str, Any]:
+    return {
+        "description": description,
+        "content": {"application/problem+json": {"schema": {"$ref": "#/components/schemas/Problem"}}},
+    }
+
+
+_JOB_ID = {
+    "name": "job_id",
+    "in": "path",
+    "required": True,
+    "schema": {"type": "string", "format": "uuid"},
+}
+_UNAVAILABLE = _problem("Redis cannot be reached; retry after the Retry-After header.")
+_NOT_FOUND = _problem("No such job for this owner, or it has expired.")
+
+
+def _paths() -> dict[str, Any]:
+    return {
+        "/v1/jobs": {
+            "post": {
+                "summary": "Submit a job",
+                "operationId": "submitJob",
+                "parameters": [
+                    {
+                        "name": "Prefer",
+                        "in": "header",
+                        "required": False,
+                        "description": "RFC 7240 `wait=N`: block up to N seconds (capped, see "
+                        "/v1/capabilities) and answer the result inline if the job ends.",
+                        "schema": {"type": "string", "example": "wait=10"},
+                    }
+                ],
+                "requestBody": {"required": True, "content": _json("JobRequest")},
+                "responses": {
+                    "200": {"description": "Finished within Prefer: wait.", "content": _json("DiagramResult")},
+                    "202": {
+                        "description": "Queued; poll the Location header.",
+                        "headers": {"Location": {"schema": {"type": "string"}}},
+                        "content": _json("JobStatus"),
+                    },
+                    "400": _problem("The body is not JSON."),
+                    "413": _problem("The body is above the size limit."),
+                    "415": _problem("The Content-Type is not application/json."),
+                    "422": _problem("The request is invalid; `errors` points at each field."),
+                    "503": _UNAVAILABLE,
+                },
+            }
+        },
+        "/v1/jobs/{job_id}": {
+            "parameters": [_JOB_ID],
+            "get": {
+                "summary": "State and timestamps of a job",
+                "operationId": "getJob",
+                "responses": {"200": {"description": "The job.", "content": _json("JobStatus")}, "404": _NOT_FOUND, "503": _UNAVAILABLE},
+            },
+            "delete": {
+                "summary": "Cancel a queued or running job",
+                "operationId": "cancelJob",
+                "responses": {
+                    "200": {"description": "Cancellation recorded.", "content": _json("JobStatus")},
+                    "404": _NOT_FOUND,
+                    "409": _problem("The job has already ended."),
+                    "503": _UNAVAILABLE,
+                },
+            },
+        },
+        "/v1/jobs/{job_id}/result": {
+            "parameters": [_JOB_ID],
+            "get": {
+                "summary": "Result of a succeeded job",
+                "operationId": "getResult",
+                "responses": {
+                    "200": {"description": "The result.", "content": _json("DiagramResult")},
+                    "404": _NOT_FOUND,
+                    "409": _problem("The job has not succeeded (yet)."),
+                    "503": _UNAVAILABLE,
+                },
+            },
+        },
+        "/v1/capabilities": {
+            "get": {
+                "summary": "Input types, filtrations, limits and versions",
+                "operationId": "getCapabilities",
+                "responses": {"200": {"description": "Capabilities.", "content": _json("Capabilities")}},
+            }
+        },
+        "/v1/openapi.json": {
+            "get": {
+                "summary": "This document",
+                "operationId": "getOpenapi",
+                "responses": {"200": {"description": "OpenAPI 3.1 document.", "content": {"application/json": {}}}},
+            }
+        },
+        "/healthz": {
+            "get": {
+                "summary": "The process is up",
+                "operationId": "getHealth",
+                "responses": {"200": {"description": "Up."}},
+            }
+        },
+        "/readyz": {
+            "get": {
+                "summary": "Redis answers and a worker is registered",
+                "operationId": "getReady",
+                "responses": {"200": {"description": "Ready."}, "503": _problem("Not ready.")},
+            }
+        },
+    }
+
+
+def openapi_document() -> dict[str, Any]:
+    """The document as a dict."""
+    _, top = models_json_schema(
+        [(model, "validation" if model is JobRequest else "serialization") for model in _MODELS],
+        ref_template="#/components/schemas/{model}",
+    )
+    return {
+        "openapi": "3.1.0",
+        "info": {"title": "lacuna", "version": __version__, "description": _DESCRIPTION},
+        "paths": _paths(),
+        "components": {"schemas": top["$defs"]},
+    }
+
+
+def openapi_text() -> str:
+    """The document as committed: indented JSON with a trailing newline."""
+    return json.dumps(openapi_document(), indent=2, sort_keys=False) + "\n"

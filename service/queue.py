@@ -1,0 +1,200 @@
+"""Submitting jobs to RQ and reading them back; the only module of service/ that knows RQ.
+
+Every lookup goes through ``JobQueue.find(job_id, owner)``: a job belongs to the owner it was
+submitted under (``job.meta['owner']``), so scoping by tenant later changes who the owner is,
+not how jobs are stored.
+"""
+
+import uuid
+from datetime import UTC, datetime
+from typing import Any
+
+import numpy as np
+from redis import Redis
+from rq import Queue, Worker
+from rq.exceptions import NoSuchJobError
+from rq.job import Job
+from rq.job import JobStatus as RQStatus
+from rq.results import Result
+from rq.serializers import JSONSerializer
+
+from service.problems import PROBLEM_TYPE, ApiProblem
+from service.settings import Settings
+from workers.spec import SCHEMA_VERSION, JobPayload, JobRequest, JobState, JobStatus, Problem
+from workers.spec.arrays import array_sha256, canonical_sha256, to_npy_bytes
+from workers.spec.jobs import JOB_FUNCTION, StoredInput, cancel_key, input_key
+
+__all__ = ["JobQueue"]
+
+# A worker that dies mid-job leaves RQ status "started" until RQ's cleanup marks it failed.
+_STATES = {
+    RQStatus.CREATED: JobState.queued,
+    RQStatus.QUEUED: JobState.queued,
+    RQStatus.DEFERRED: JobState.queued,
+    RQStatus.SCHEDULED: JobState.queued,
+    RQStatus.READY_TO_ENQUEUE: JobState.queued,
+    RQStatus.RATE_LIMITED: JobState.queued,
+    RQStatus.STARTED: JobState.running,
+    RQStatus.FINISHED: JobState.succeeded,
+    RQStatus.FAILED: JobState.failed,
+    RQStatus.STOPPED: JobState.failed,
+    RQStatus.CANCELED: JobState.cancelled,
+}
+_CANCELLED_TYPE = "urn:lacuna:problem:cancelled"
+
+
+def _utc(moment: datetime | None) -> datetime | None:
+    if moment is None:
+        return None
+    return moment.replace(tzinfo=UTC) if moment.tzinfo is None else moment
+
+
+def not_found(job_id: str) -> ApiProblem:
+    return ApiProblem(
+        Problem(
+            type=PROBLEM_TYPE + "job-not-found",
+            title="Job not found",
+            status=404,
+            detail=f"no job {job_id!r} (unknown, or its result has expired)",
+        )
+    )
+
+
+class JobQueue:
+    """Jobs on one RQ queue, stored and read with the JSON serializer only."""
+
+    def __init__(self, redis: Redis, waiting_redis: Redis, settings: Settings) -> None:
+        self.redis = redis
+        self._waiting_redis = waiting_redis  # its socket timeout outlasts a Prefer: wait
+        self.settings = settings
+        self.queue = Queue(settings.queue, connection=redis, serializer=JSONSerializer)
+
+    def submit(self, request: JobRequest, owner: str) -> Job:
+        """Store the input array next to the job and enqueue ``workers.jobs.run``."""
+        points = np.asarray(request.input.points, dtype=np.float64)
+        input_sha = array_sha256(points)
+        described = request.model_dump(mode="json")
+        described["input"]["points"] = {"sha256": input_sha}
+        payload = JobPayload(
+            schema_version=SCHEMA_VERSION,
+            input=StoredInput(
+                type=request.input.type,
+                shape=(points.shape[0], points.shape[1]),
+                sha256=input_sha,
+                units=request.input.units,
+            ),
+            filtration=request.filtration,
+            request_sha256=canonical_sha256(described),
+            time_limit_s=self.settings.job_time_limit_s,
+        )
+        job_id = str(uuid.uuid4())
+        keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)
+        self.redis.set(input_key(job_id), to_npy_bytes(points), ex=keep)
+        try:
+            return self.queue.enqueue(
+                JOB_FUNCTION,
+                payload.model_dump(mode="json"),
+                job_id=job_id,
+                # RQ's own limit is a backstop; the worker enforces time_limit_s by SIGKILL.
+                job_timeout=int(self.settings.job_time_limit_s) + 60,
+                result_ttl=self.settings.result_ttl_s,
+                failure_ttl=self.settings.result_ttl_s,
+                ttl=self.settings.queued_ttl_s,
+                meta={"owner": owner},
+            )
+        except Exception:
+            self.redis.delete(input_key(job_id))
+            raise
+
+    def find(self, job_id: str, owner: str) -> Job:
+        """The job ``job_id`` if it exists and belongs to ``owner``; 404 otherwise."""
+        try:
+            uuid.UUID(job_id)
+        except ValueError:
+            raise not_found(job_id) from None
+        try:
+            job = Job.fetch(job_id, connection=self.redis, serializer=JSONSerializer)
+        except NoSuchJobError:
+            raise not_found(job_id) from None
+        if job.meta.get("owner") != owner:
+            raise not_found(job_id)
+        return job
+
+    def state(self, job: Job) -> JobState:
+        state = _STATES.get(job.get_status(refresh=False) or RQStatus.QUEUED, JobState.queued)
+        problem = job.meta.get("problem")
+        if state is JobState.failed and problem and problem.get("type") == _CANCELLED_TYPE:
+            return JobState.cancelled
+        return state
+
+    def status(self, job: Job) -> JobStatus:
+        state = self.state(job)
+        problem = job.meta.get("problem") if state is JobState.failed else None
+        if state is JobState.failed and problem is None:
+            problem = Problem(
+                type=PROBLEM_TYPE + "job-failed",
+                title="Job failed",
+                status=500,
+                detail="the worker stopped before the job ended (it was killed or lost)",
+            ).model_dump(mode="json", exclude_none=True)
+        links = {"self": f"/v1/jobs/{job.id}"}
+        if state is JobState.succeeded:
+            links["result"] = f"/v1/jobs/{job.id}/result"
+        return JobStatus(
+            job_id=job.id,
+            status=state,
+            created_at=_utc(job.created_at),
+            started_at=_utc(job.started_at),
+            ended_at=_utc(job.ended_at),
+            problem=problem,
+            links=links,
+        )
+
+    def result(self, job: Job) -> dict[str, Any]:
+        """The result of a succeeded job; 409 for any other state."""
+        state = self.state(job)
+        if state is JobState.succeeded:
+            latest = job.latest_result()
+            if latest is not None and latest.type == Result.Type.SUCCESSFUL:
+                value: dict[str, Any] = latest.return_value
+                return value
+        raise ApiProblem(
+            Problem(
+                type=PROBLEM_TYPE + "job-not-finished",
+                title="Job has no result",
+                status=409,
+                detail=f"job {job.id} is {state.value}; a result exists once it has succeeded",
+                job_status=state.value,
+            )
+        )
+
+    def wait(self, job: Job, seconds: int) -> None:
+        """Block until the job has a result (success or failure), at most ``seconds``."""
+        if seconds <= 0:
+            return
+        waiting = Job.fetch(job.id, connection=self._waiting_redis, serializer=JSONSerializer)
+        waiting.latest_result(timeout=seconds)
+        job.refresh()
+
+    def cancel(self, job: Job) -> None:
+        """Cancel a queued or running job; 409 once it has ended."""
+        state = self.state(job)
+        if state not in (JobState.queued, JobState.running):
+            raise ApiProblem(
+                Problem(
+                    type=PROBLEM_TYPE + "job-ended",
+                    title="Job already ended",
+                    status=409,
+                    detail=f"job {job.id} is {state.value} and cannot be cancelled",
+                    job_status=state.value,
+                )
+            )
+        # A running job polls this key and kills its compute process; a queued job is also
+        # taken off the queue, and the key covers a worker that picked it in between.
+        self.redis.set(cancel_key(job.id), b"1", ex=self.settings.result_ttl_s)
+        if state is JobState.queued:
+            job.cancel()
+        job.refresh()
+
+    def worker_count(self) -> int:
+        return int(Worker.count(connection=self.redis, queue=self.queue))

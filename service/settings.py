@@ -1,0 +1,39 @@
+"""Settings of the API process: one typed object, read from ``LACUNA_*`` environment variables."""
+
+from pydantic import Field
+from pydantic_settings import BaseSettings, SettingsConfigDict
+
+from workers.settings import DEFAULT_QUEUE
+
+__all__ = ["Settings"]
+
+
+class Settings(BaseSettings):
+    """Every tunable of the HTTP service, each with its meaning and default."""
+
+    model_config = SettingsConfigDict(env_prefix="LACUNA_", extra="ignore")
+
+    redis_url: str | None = Field(
+        None,
+        description="Redis URL holding the queue. Unset: `lacuna serve` starts an embedded "
+        "Redis; the app alone falls back to redis://127.0.0.1:6379/0.",
+    )
+    queue: str = Field(DEFAULT_QUEUE, description="RQ queue the API submits to.")
+    host: str = Field("127.0.0.1", description="Address `lacuna serve` listens on.")
+    port: int = Field(8000, ge=1, le=65535, description="Port `lacuna serve` listens on.")
+    max_points: int = Field(5000, ge=1, description="Most points a Rips filtration runs on.")
+    max_input_points: int = Field(
+        1_000_000, ge=1, description="Most points accepted in one request (before subsample)."
+    )
+    max_body_bytes: int = Field(64 * 1024 * 1024, ge=1024, description="Largest request body.")
+    max_dim: int = Field(2, ge=0, le=2, description="Highest homology dimension allowed.")
+    job_time_limit_s: float = Field(300.0, gt=0, description="Wall-time limit of one job.")
+    result_ttl_s: int = Field(86_400, ge=1, description="How long results are kept.")
+    queued_ttl_s: int = Field(
+        86_400, ge=1, description="How long a job (and its input) may wait in the queue."
+    )
+    max_wait_s: int = Field(30, ge=0, description="Cap on the `Prefer: wait=N` header.")
+    redis_timeout_s: float = Field(
+        2.0, gt=0, description="Socket timeout of Redis calls; beyond it the API answers 503."
+    )
+    retry_after_s: int = Field(5, ge=1, description="Retry-After sent with 503 answers.")

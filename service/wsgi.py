@@ -1,0 +1,3 @@
+from service.app import create_app
+
+app = create_app()

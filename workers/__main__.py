@@ -1,0 +1,5 @@
+import sys
+
+from workers.runner import main
+
+sys.exit(main())

@@ -1,0 +1,32 @@
+"""What a job computes on."""
+
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, ConfigDict, Field
+
+from workers.spec.numbers import FiniteFloat
+
+MAX_COORDINATES = 16
+"""Highest ambient dimension d accepted for point sets."""
+
+Coordinates = Annotated[list[FiniteFloat], Field(min_length=1, max_length=MAX_COORDINATES)]
+
+
+class PointsInput(BaseModel):
+    """A finite point set in R^d: N rows of d coordinates (1 <= d <= 16)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["points"]
+    points: Annotated[
+        list[Coordinates],
+        Field(min_length=1, description="N x d finite numbers; every row has the same length d."),
+    ]
+    units: Annotated[
+        str | None,
+        Field(max_length=32, description='Unit of the coordinates (e.g. "um"), echoed in the result.'),
+    ] = None
+
+
+Input = Annotated[PointsInput, Field(discriminator="type")]
+"""Every input type, told apart by ``type``."""

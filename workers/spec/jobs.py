@@ -1,0 +1,68 @@
+"""Jobs: their states, the status view, and what travels on the queue."""
+
+from datetime import datetime
+from enum import Enum
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, ConfigDict, Field
+
+from workers.spec.filtrations import Filtration
+from workers.spec.problems import Problem
+
+JOB_FUNCTION = "workers.jobs.run"
+"""Dotted path the service enqueues, so the API process never imports the numerical code."""
+
+
+def input_key(job_id: str) -> str:
+    """Redis key holding a job's input array as .npy bytes."""
+    return f"lacuna:input:{job_id}"
+
+
+def cancel_key(job_id: str) -> str:
+    """Redis key whose presence asks a running job to stop."""
+    return f"lacuna:cancel:{job_id}"
+
+
+class JobState(str, Enum):
+    """Lifecycle of a job as clients see it."""
+
+    queued = "queued"
+    running = "running"
+    succeeded = "succeeded"
+    failed = "failed"
+    cancelled = "cancelled"
+
+
+class JobStatus(BaseModel):
+    """Answer of ``GET /v1/jobs/{id}``."""
+
+    job_id: str
+    status: JobState
+    created_at: datetime | None = None
+    started_at: datetime | None = None
+    ended_at: datetime | None = None
+    problem: Annotated[Problem | None, Field(description="Why the job failed.")] = None
+    links: dict[str, str]
+
+
+class StoredInput(BaseModel):
+    """Description of an input array kept in Redis next to the job (not on the queue)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["points"]
+    shape: tuple[int, int]
+    sha256: str
+    units: str | None = None
+
+
+class JobPayload(BaseModel):
+    """The single JSON argument of ``workers.jobs.run``."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    schema_version: str
+    input: StoredInput
+    filtration: Filtration
+    request_sha256: str
+    time_limit_s: Annotated[float, Field(gt=0)]

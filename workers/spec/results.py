@@ -1,0 +1,60 @@
+"""What a finished job returns."""
+
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, Field
+
+Pair = tuple[float, float | None]
+"""(birth, death); death null means the class never dies within the filtration."""
+
+
+class Diagram(BaseModel):
+    """Persistence diagram of one homology dimension."""
+
+    dim: int
+    pairs: Annotated[
+        list[Pair],
+        Field(description="Sorted by (birth, death), null deaths last; no zero-length pairs."),
+    ]
+
+
+class Provenance(BaseModel):
+    """Everything needed to tell whether two results came from the same computation."""
+
+    input_sha256: Annotated[
+        str,
+        Field(
+            description="SHA-256 of the input array: the ASCII shape as 'n,d;' followed by the "
+            "values as little-endian float64 in row-major order."
+        ),
+    ]
+    request_sha256: Annotated[
+        str,
+        Field(
+            description="SHA-256 of the canonical JSON (sorted keys, no spaces) of the request "
+            "with the input array replaced by input_sha256."
+        ),
+    ]
+    versions: dict[str, str]
+    elapsed_s: Annotated[float, Field(description="Wall time of the computation itself.")]
+    subsample_indices: Annotated[
+        list[int] | None, Field(description="Rows of the input kept by subsample, in order.")
+    ] = None
+    subsample_covering_radius: Annotated[
+        float | None,
+        Field(description="Hausdorff distance from the subsample to the full point set."),
+    ] = None
+
+
+class DiagramResult(BaseModel):
+    """Result of a job: one diagram per dimension 0..max_dim."""
+
+    job_id: str
+    schema_version: str
+    value_convention: Annotated[
+        Literal["edge_length"],
+        Field(description="Rips values are edge lengths (diameters), twice the ball radius."),
+    ]
+    units: str | None = None
+    diagrams: list[Diagram]
+    provenance: Provenance
