@@ -50,17 +50,25 @@ def main(argv: list[str] | None = None) -> int:
     commands = parser.add_subparsers(dest="command", required=True)
 
     serve = commands.add_parser("serve", help="run the HTTP API, workers and (if needed) Redis")
-    serve.add_argument("--redis", default=settings.redis_url,
-                       help="shared Redis URL (LACUNA_REDIS_URL); unset: embedded Redis")
+    serve.add_argument(
+        "--redis",
+        default=settings.redis_url,
+        help="shared Redis URL (LACUNA_REDIS_URL); unset: embedded Redis",
+    )
     serve.add_argument("--host", default=settings.host, help="listen address (LACUNA_HOST)")
     serve.add_argument("--port", type=int, default=settings.port, help="port (LACUNA_PORT)")
     serve.add_argument("--http-workers", type=int, default=2, help="gunicorn worker processes")
     serve.add_argument("--threads", type=int, default=8, help="threads per gunicorn worker")
-    serve.add_argument("--local-workers", type=int, default=2,
-                       help="job workers started on this machine (0: API only)")
+    serve.add_argument(
+        "--local-workers",
+        type=int,
+        default=2,
+        help="job workers started on this machine (0: API only)",
+    )
 
-    commands.add_parser("worker", help="run a job worker (see lacuna worker --help)",
-                        add_help=False)
+    commands.add_parser(
+        "worker", help="run a job worker (see lacuna worker --help)", add_help=False
+    )
 
     openapi = commands.add_parser("openapi", help="print or write the OpenAPI document")
     openapi.add_argument("--out", default=None, help="file to write (default: stdout)")

@@ -37,7 +37,9 @@ def _json(schema: str) -> dict[str, Any]:
 def _problem(description: str) -> dict[str, Any]:
     return {
         "description": description,
-        "content": {"application/problem+json": {"schema": {"$ref": "#/components/schemas/Problem"}}},
+        "content": {
+            "application/problem+json": {"schema": {"$ref": "#/components/schemas/Problem"}}
+        },
     }
 
 
@@ -69,7 +71,10 @@ def _paths() -> dict[str, Any]:
                 ],
                 "requestBody": {"required": True, "content": _json("JobRequest")},
                 "responses": {
-                    "200": {"description": "Finished within Prefer: wait.", "content": _json("DiagramResult")},
+                    "200": {
+                        "description": "Finished within Prefer: wait.",
+                        "content": _json("DiagramResult"),
+                    },
                     "202": {
                         "description": "Queued; poll the Location header.",
                         "headers": {"Location": {"schema": {"type": "string"}}},
@@ -88,7 +93,11 @@ def _paths() -> dict[str, Any]:
             "get": {
                 "summary": "State and timestamps of a job",
                 "operationId": "getJob",
-                "responses": {"200": {"description": "The job.", "content": _json("JobStatus")}, "404": _NOT_FOUND, "503": _UNAVAILABLE},
+                "responses": {
+                    "200": {"description": "The job.", "content": _json("JobStatus")},
+                    "404": _NOT_FOUND,
+                    "503": _UNAVAILABLE,
+                },
             },
             "delete": {
                 "summary": "Cancel a queued or running job",
@@ -118,14 +127,21 @@ def _paths() -> dict[str, Any]:
             "get": {
                 "summary": "Input types, filtrations, limits and versions",
                 "operationId": "getCapabilities",
-                "responses": {"200": {"description": "Capabilities.", "content": _json("Capabilities")}},
+                "responses": {
+                    "200": {"description": "Capabilities.", "content": _json("Capabilities")}
+                },
             }
         },
         "/v1/openapi.json": {
             "get": {
                 "summary": "This document",
                 "operationId": "getOpenapi",
-                "responses": {"200": {"description": "OpenAPI 3.1 document.", "content": {"application/json": {}}}},
+                "responses": {
+                    "200": {
+                        "description": "OpenAPI 3.1 document.",
+                        "content": {"application/json": {}},
+                    }
+                },
             }
         },
         "/healthz": {

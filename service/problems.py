@@ -12,13 +12,11 @@ from redis.exceptions import TimeoutError as RedisTimeoutError
 from werkzeug.exceptions import HTTPException
 
 from workers.spec import FieldError, Problem
+from workers.spec.problems import PROBLEM_TYPE
 
-__all__ = ["ApiProblem", "register", "invalid_request", "problem_response", "PROBLEM_TYPE"]
+__all__ = ["ApiProblem", "register", "invalid_request", "problem_response", "validation_problem"]
 
 log = logging.getLogger(__name__)
-
-PROBLEM_TYPE = "urn:lacuna:problem:"
-"""Prefix of our problem type URIs; the suffix names the kind (e.g. ``invalid-request``)."""
 
 
 class ApiProblem(Exception):
@@ -113,8 +111,12 @@ def register(app: Flask) -> None:
         status = error.code or 500
         detail = error.description
         if status == 413:
-            detail = f"the body is larger than the limit of {app.config['MAX_CONTENT_LENGTH']} bytes"
-        headers = {"Allow": error.response.headers["Allow"]} if status == 405 and error.response else {}
+            detail = (
+                f"the body is larger than the limit of {app.config['MAX_CONTENT_LENGTH']} bytes"
+            )
+        headers = (
+            {"Allow": error.response.headers["Allow"]} if status == 405 and error.response else {}
+        )
         if status >= 500:
             log.error("HTTP %s on %s %s", status, request.method, request.path)
         return problem_response(

@@ -18,11 +18,12 @@ from rq.job import JobStatus as RQStatus
 from rq.results import Result
 from rq.serializers import JSONSerializer
 
-from service.problems import PROBLEM_TYPE, ApiProblem
+from service.problems import ApiProblem
 from service.settings import Settings
 from workers.spec import SCHEMA_VERSION, JobPayload, JobRequest, JobState, JobStatus, Problem
 from workers.spec.arrays import array_sha256, canonical_sha256, to_npy_bytes
 from workers.spec.jobs import JOB_FUNCTION, StoredInput, cancel_key, input_key
+from workers.spec.problems import CANCELLED_TYPE, PROBLEM_TYPE
 
 __all__ = ["JobQueue"]
 
@@ -40,7 +41,6 @@ _STATES = {
     RQStatus.STOPPED: JobState.failed,
     RQStatus.CANCELED: JobState.cancelled,
 }
-_CANCELLED_TYPE = "urn:lacuna:problem:cancelled"
 
 
 def _utc(moment: datetime | None) -> datetime | None:
@@ -123,7 +123,7 @@ class JobQueue:
     def state(self, job: Job) -> JobState:
         state = _STATES.get(job.get_status(refresh=False) or RQStatus.QUEUED, JobState.queued)
         problem = job.meta.get("problem")
-        if state is JobState.failed and problem and problem.get("type") == _CANCELLED_TYPE:
+        if state is JobState.failed and problem and problem.get("type") == CANCELLED_TYPE:
             return JobState.cancelled
         return state
 
@@ -156,7 +156,7 @@ class JobQueue:
         if state is JobState.succeeded:
             latest = job.latest_result()
             if latest is not None and latest.type == Result.Type.SUCCESSFUL:
-                value: dict[str, Any] = latest.return_value
+                value: dict[str, Any] = latest.return_value or {}
                 return value
         raise ApiProblem(
             Problem(

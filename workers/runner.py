@@ -25,9 +25,7 @@ def build_worker(redis_url: str, queue_name: str, name: str | None = None) -> Si
     connection = Redis.from_url(redis_url)
     queue = Queue(queue_name, connection=connection, serializer=JSONSerializer)
     worker_name = name or f"lacuna-{socket.gethostname()}-{uuid.uuid4().hex[:8]}"
-    return SimpleWorker(
-        [queue], connection=connection, serializer=JSONSerializer, name=worker_name
-    )
+    return SimpleWorker([queue], connection=connection, serializer=JSONSerializer, name=worker_name)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -39,7 +37,9 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--burst", action="store_true", help="exit when the queue is empty")
     parser.add_argument("--log-level", default="INFO")
     args = parser.parse_args(argv)
-    logging.basicConfig(level=args.log_level, format="%(asctime)s %(name)s %(levelname)s %(message)s")
+    logging.basicConfig(
+        level=args.log_level, format="%(asctime)s %(name)s %(levelname)s %(message)s"
+    )
     worker = build_worker(args.redis, args.queue, args.name)
     jobs.compute_process()  # fork the compute child now, after the heavy imports
     try:

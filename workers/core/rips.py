@@ -11,6 +11,7 @@ values carry a relative error of about 1e-7.
 
 import numpy as np
 from ripser import ripser
+from scipy.spatial.distance import pdist, squareform
 
 from workers.core.diagrams import drop_empty_bars, sort_pairs
 from workers.core.errors import InvalidArrayError, ParameterError
@@ -18,7 +19,7 @@ from workers.core.errors import InvalidArrayError, ParameterError
 __all__ = ["rips_diagrams", "MAX_DIM"]
 
 MAX_DIM = 2
-"""Highest homology dimension computed: H2 (cavities) is already costly beyond a few hundred points."""
+"""Highest homology dimension: H2 (cavities) is already costly beyond a few hundred points."""
 
 
 def rips_diagrams(
@@ -43,5 +44,7 @@ def rips_diagrams(
     if max_edge is not None and not max_edge >= 0:
         raise ParameterError("max_edge must be >= 0", field="/filtration/max_edge")
     threshold = np.inf if max_edge is None else float(max_edge)
-    raw = ripser(points, maxdim=max_dim, thresh=threshold)["dgms"]
+    # A precomputed matrix: ripser would otherwise guess (and warn) when n <= d.
+    distances = squareform(pdist(points))
+    raw = ripser(distances, maxdim=max_dim, thresh=threshold, distance_matrix=True)["dgms"]
     return [sort_pairs(drop_empty_bars(d)) for d in raw]

@@ -19,7 +19,8 @@ def to_npy_bytes(array: np.ndarray) -> bytes:
 
 def from_npy_bytes(data: bytes) -> np.ndarray:
     """Read .npy bytes; ``allow_pickle=False`` so no bytes are ever unpickled."""
-    return np.load(io.BytesIO(data), allow_pickle=False)
+    array: np.ndarray = np.load(io.BytesIO(data), allow_pickle=False)
+    return array
 
 
 def array_sha256(array: np.ndarray) -> str:

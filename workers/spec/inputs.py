@@ -24,7 +24,9 @@ class PointsInput(BaseModel):
     ]
     units: Annotated[
         str | None,
-        Field(max_length=32, description='Unit of the coordinates (e.g. "um"), echoed in the result.'),
+        Field(
+            max_length=32, description='Unit of the coordinates (e.g. "um"), echoed in the result.'
+        ),
     ] = None
 
 

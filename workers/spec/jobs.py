@@ -1,7 +1,7 @@
 """Jobs: their states, the status view, and what travels on the queue."""
 
 from datetime import datetime
-from enum import Enum
+from enum import StrEnum
 from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
@@ -23,7 +23,7 @@ def cancel_key(job_id: str) -> str:
     return f"lacuna:cancel:{job_id}"
 
 
-class JobState(str, Enum):
+class JobState(StrEnum):
     """Lifecycle of a job as clients see it."""
 
     queued = "queued"

@@ -4,6 +4,12 @@ from typing import Annotated
 
 from pydantic import BaseModel, ConfigDict, Field
 
+PROBLEM_TYPE = "urn:lacuna:problem:"
+"""Prefix of lacuna's problem type URIs; the suffix names the kind (e.g. ``invalid-request``)."""
+
+CANCELLED_TYPE = PROBLEM_TYPE + "cancelled"
+"""Problem type stored with a job stopped by ``DELETE /v1/jobs/{id}``."""
+
 
 class FieldError(BaseModel):
     """One thing wrong with one field of the request."""

@@ -40,7 +40,8 @@ class JobRequest(BaseModel):
             errors.append(
                 FieldError(
                     pointer="/input/points",
-                    message=f"{n} points is above the limit of {limits.max_input_points} per request",
+                    message=f"{n} points is above the limit of {limits.max_input_points} "
+                    "per request",
                 )
             )
         elif subsample is None and n > limits.max_points:

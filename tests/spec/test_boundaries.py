@@ -1,0 +1,34 @@
+"""Imports point one way: the HTTP layer never loads the numerical code."""
+
+import subprocess
+import sys
+
+BLOCKED = ["ripser", "gudhi", "matplotlib", "workers.core", "workers.jobs", "workers.compute"]
+
+
+def test_service_runs_without_numerical_modules() -> None:
+    # A fresh interpreter with the heavy modules made unimportable builds the app and
+    # serves /healthz; if service/ imported any of them, this would raise ImportError.
+    code = (
+        "import sys\n"
+        f"for name in {BLOCKED!r}: sys.modules[name] = None\n"
+        "from service.app import create_app\n"
+        "from service.settings import Settings\n"
+        "app = create_app(Settings(redis_url='redis://127.0.0.1:1/0'))\n"
+        "assert app.test_client().get('/healthz').status_code == 200\n"
+        "import service.cli, service.stack, service.wsgi\n"
+    )
+    completed = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert completed.returncode == 0, completed.stderr
+
+
+def test_core_imports_nothing_of_ours_outside_core() -> None:
+    # workers/core is pure: no service, spec, Flask, Redis, RQ or pydantic.
+    code = (
+        "import sys\n"
+        "for name in ['service', 'workers.spec', 'flask', 'redis', 'rq', 'pydantic']:\n"
+        "    sys.modules[name] = None\n"
+        "import workers.core.rips, workers.core.subsample, workers.core.diagrams\n"
+    )
+    completed = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert completed.returncode == 0, completed.stderr

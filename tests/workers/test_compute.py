@@ -1,0 +1,87 @@
+"""The compute child: results over the pipe, and a time limit that really kills native code."""
+
+import os
+import time
+from collections.abc import Iterator
+
+import numpy as np
+import pytest
+
+from workers.compute import ComputeProcess, JobAborted
+from workers.jobs import execute_bytes
+from workers.spec import JobPayload
+from workers.spec.arrays import array_sha256, to_npy_bytes
+
+
+def payload(points: np.ndarray, max_dim: int) -> JobPayload:
+    return JobPayload.model_validate(
+        {
+            "schema_version": "1",
+            "input": {
+                "type": "points",
+                "shape": list(points.shape),
+                "sha256": array_sha256(points),
+            },
+            "filtration": {"type": "rips", "max_dim": max_dim},
+            "request_sha256": "0" * 64,
+            "time_limit_s": 1,
+        }
+    )
+
+
+@pytest.fixture
+def compute() -> Iterator[ComputeProcess]:
+    process = ComputeProcess(execute_bytes)
+    yield process
+    process.close()
+
+
+def run(compute: ComputeProcess, points: np.ndarray, max_dim: int, limit: float) -> dict:
+    return compute.run(
+        job_id="job",
+        payload=payload(points, max_dim),
+        input_bytes=to_npy_bytes(points),
+        time_limit_s=limit,
+        should_stop=lambda: False,
+    )
+
+
+def alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    with open(f"/proc/{pid}/stat") as stat:  # a zombie is not running either
+        return stat.read().split()[2] != "Z"
+
+
+def test_result_comes_back_over_the_pipe(compute: ComputeProcess) -> None:
+    points = np.array([[0.0, 0.0], [3.0, 4.0]])
+    result = run(compute, points, max_dim=0, limit=10)
+    assert result["diagrams"][0]["pairs"] == [[0.0, 5.0], [0.0, None]]
+
+
+def test_time_limit_kills_the_native_loop(compute: ComputeProcess) -> None:
+    heavy = np.random.default_rng(0).uniform(size=(300, 3))  # H2: tens of seconds in ripser
+    old_pid = compute.pid
+    assert old_pid is not None
+    started = time.monotonic()
+    with pytest.raises(JobAborted) as aborted:
+        run(compute, heavy, max_dim=2, limit=0.5)
+    assert time.monotonic() - started < 2
+    assert aborted.value.problem.type == "urn:lacuna:problem:time-limit"
+    assert not alive(old_pid)  # SIGKILLed, not left computing in the background
+    assert compute.pid != old_pid
+    small = np.array([[0.0], [2.0]])
+    assert run(compute, small, max_dim=0, limit=10)["diagrams"][0]["pairs"][0] == [0.0, 2.0]
+
+
+def test_crash_of_the_child_is_reported(compute: ComputeProcess) -> None:
+    pid = compute.pid
+    assert pid is not None
+    os.kill(pid, 9)
+    time.sleep(0.1)
+    with pytest.raises(JobAborted) as aborted:
+        run(compute, np.zeros((2, 2)), max_dim=0, limit=5)
+    assert aborted.value.problem.type == "urn:lacuna:problem:compute-crashed"
+    assert run(compute, np.zeros((2, 2)), max_dim=0, limit=5)["diagrams"][0]["pairs"]
