@@ -7,6 +7,7 @@ then stops them in order: HTTP first, then workers, then Redis. If any child die
 are stopped too and the exit code is non-zero.
 """
 
+import ctypes
 import os
 import shutil
 import signal
@@ -26,6 +27,21 @@ __all__ = ["StackOptions", "run_stack"]
 
 GRACE_S = 10.0
 """How long a child gets after SIGTERM before SIGKILL."""
+
+_PR_SET_PDEATHSIG = 1
+
+
+def _child_setup() -> None:
+    """In each child before exec: own session, and SIGTERM from Linux if the supervisor dies.
+
+    The own session keeps a terminal's Ctrl-C away from the children (the supervisor stops
+    them in order); the death signal keeps them from outliving a supervisor killed by SIGKILL.
+    """
+    os.setsid()
+    try:
+        ctypes.CDLL(None, use_errno=True).prctl(_PR_SET_PDEATHSIG, signal.SIGTERM)
+    except (OSError, AttributeError):  # not Linux: rely on the orderly shutdown
+        pass
 
 
 @dataclass(frozen=True)
@@ -82,7 +98,7 @@ def _start_embedded_redis(folder: Path) -> tuple[subprocess.Popen[bytes], str]:
             str(folder),
         ],
         stdout=subprocess.DEVNULL,
-        start_new_session=True,
+        preexec_fn=_child_setup,
     )
     url = f"unix://{socket_path}?db=0"
     deadline = time.monotonic() + 10
@@ -132,7 +148,9 @@ def run_stack(options: StackOptions) -> int:
         env = dict(os.environ, LACUNA_REDIS_URL=redis_url, LACUNA_QUEUE=options.queue)
         for _ in range(options.local_workers):
             children.workers.append(
-                subprocess.Popen([sys.executable, "-m", "workers"], env=env, start_new_session=True)
+                subprocess.Popen(
+                    [sys.executable, "-m", "workers"], env=env, preexec_fn=_child_setup
+                )
             )
         children.http = subprocess.Popen(
             [
@@ -155,7 +173,7 @@ def run_stack(options: StackOptions) -> int:
                 "--no-control-socket",
             ],
             env=env,
-            start_new_session=True,
+            preexec_fn=_child_setup,
         )
         base = f"http://{options.host}:{options.port}"
         if _wait_until_up(base, children.http):

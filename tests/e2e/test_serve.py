@@ -1,0 +1,161 @@
+"""``lacuna serve`` and ``lacuna worker`` as real processes, talked to over HTTP."""
+
+import math
+import os
+import signal
+import socket
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+import requests
+from redis import Redis
+
+pytestmark = pytest.mark.e2e
+
+LACUNA = str(Path(sys.executable).with_name("lacuna"))
+HEXAGON = [[math.cos(k * math.pi / 3), math.sin(k * math.pi / 3)] for k in range(6)]
+JOB = {"input": {"type": "points", "points": HEXAGON}, "filtration": {"type": "rips", "max_dim": 2}}
+
+
+def free_port() -> int:
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+def descendants(pid: int) -> set[int]:
+    """Every process below ``pid``, from /proc (children run in their own sessions)."""
+    parents: dict[int, int] = {}
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            try:
+                fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            parents[int(entry.name)] = int(fields[1])
+    found: set[int] = set()
+    frontier = {pid}
+    while frontier:
+        frontier = {child for child, parent in parents.items() if parent in frontier} - found
+        found |= frontier
+    return found
+
+
+def running(pid: int) -> bool:
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except OSError:
+        return False
+    return state != "Z"
+
+
+def wait_ready(base: str, workers: int = 1, seconds: float = 60) -> None:
+    deadline = time.monotonic() + seconds
+    while time.monotonic() < deadline:
+        try:
+            answer = requests.get(base + "/readyz", timeout=1)
+            if answer.status_code == 200 and answer.json()["workers"] >= workers:
+                return
+        except requests.RequestException:
+            pass
+        time.sleep(0.1)
+    raise AssertionError(f"{base} never became ready")
+
+
+def stop(process: subprocess.Popen[bytes], how: int) -> set[int]:
+    children = descendants(process.pid)
+    process.send_signal(how)
+    process.wait(30)
+    deadline = time.monotonic() + 15
+    while time.monotonic() < deadline and any(running(p) for p in children):
+        time.sleep(0.1)
+    return {p for p in children if running(p)}
+
+
+def test_embedded_stack_answers_and_stops_cleanly() -> None:
+    port = free_port()
+    env = {k: v for k, v in os.environ.items() if k != "LACUNA_REDIS_URL"}
+    env["LACUNA_PORT"] = str(port)
+    process = subprocess.Popen([LACUNA, "serve"], env=env, stdout=subprocess.PIPE)
+    base = f"http://127.0.0.1:{port}"
+    try:
+        wait_ready(base, workers=2)
+        answer = requests.post(base + "/v1/jobs", json=JOB, headers={"Prefer": "wait=20"})
+        assert answer.status_code == 200
+        # Adamaszek & Adams 2017 (from memory): hexagon H2 = [sqrt 3, 2].
+        h2 = answer.json()["diagrams"][2]["pairs"]
+        assert h2 == [[pytest.approx(math.sqrt(3), rel=1e-6), pytest.approx(2.0, rel=1e-6)]]
+        job = requests.get(base + answer.headers["Location"]).json()
+        assert job["status"] == "succeeded"
+        spec = requests.get(base + "/v1/openapi.json").json()
+        assert spec["openapi"].startswith("3.1")
+        left = stop(process, signal.SIGINT)  # what Ctrl-C sends
+        assert left == set(), f"orphaned processes: {left}"
+        assert process.returncode == 0
+        assert process.stdout is not None
+        printed = process.stdout.read().decode()
+        assert f"lacuna is up at http://127.0.0.1:{port}" in printed
+        assert "not for diagnosis" in printed
+    finally:
+        if process.poll() is None:
+            process.kill()
+            process.wait()
+        if process.stdout is not None:
+            process.stdout.close()
+
+
+def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:
+    url = f"{redis_server}/14"
+    Redis.from_url(url).flushdb()
+    port = free_port()
+    env = dict(os.environ, LACUNA_QUEUE="e2e-shared")
+    api = subprocess.Popen(
+        [
+            LACUNA,
+            "serve",
+            "--redis",
+            url,
+            "--port",
+            str(port),
+            "--local-workers",
+            "0",
+            "--http-workers",
+            "1",
+            "--threads",
+            "4",
+        ],
+        env=env,
+    )
+    worker = None
+    base = f"http://127.0.0.1:{port}"
+    try:
+        deadline = time.monotonic() + 30
+        while True:  # up, but not ready: no worker yet
+            try:
+                if requests.get(base + "/healthz", timeout=1).status_code == 200:
+                    break
+            except requests.RequestException:
+                assert time.monotonic() < deadline
+                time.sleep(0.1)
+        assert requests.get(base + "/readyz").status_code == 503
+        submitted = requests.post(base + "/v1/jobs", json=JOB)
+        assert submitted.status_code == 202
+        worker = subprocess.Popen([LACUNA, "worker", "--redis", url], env=env)
+        wait_ready(base)
+        job_url = base + submitted.headers["Location"]
+        deadline = time.monotonic() + 30
+        while requests.get(job_url).json()["status"] != "succeeded":
+            assert time.monotonic() < deadline
+            time.sleep(0.1)
+        assert len(requests.get(job_url + "/result").json()["diagrams"]) == 3
+        assert stop(worker, signal.SIGTERM) == set()
+        assert stop(api, signal.SIGTERM) == set()
+    finally:
+        for process in (api, worker):
+            if process is not None and process.poll() is None:
+                process.kill()
+                process.wait()
+        Redis.from_url(url).flushdb()

@@ -1,0 +1,400 @@
+"""Every error the API answers: status, application/problem+json, exact JSON Pointers, a detail
+a client can act on, and never a 500.
+
+All requests go through ``call``/``post_json`` so the "no 500" rule is checked on each answer.
+The app is in testing mode, so an unhandled exception fails the test instead of hiding in a 500.
+"""
+
+import json
+import socket
+import subprocess
+import time
+import uuid
+from typing import Any
+
+import pytest
+from flask import Flask
+from flask.testing import FlaskClient
+from redis import Redis
+from rq import Queue
+from werkzeug.test import TestResponse
+
+from service.app import create_app
+from service.settings import Settings
+
+PROBLEM_JSON = "application/problem+json"
+JOBS = "/v1/jobs"
+
+
+# --- helpers ---------------------------------------------------------------------------------
+
+
+def job_body(points: list[Any] | None = None, **filtration: Any) -> dict[str, Any]:
+    """A valid request, changed only where a test says so."""
+    if points is None:
+        points = [[0.0, 0.0], [1.0, 0.0], [0.0, 1.0], [1.0, 1.0]]
+    return {
+        "input": {"type": "points", "points": points, "units": "um"},
+        "filtration": {"type": "rips", "max_dim": 1, "max_edge": None, **filtration},
+    }
+
+
+def call(client: FlaskClient, method: str, path: str, **kwargs: Any) -> TestResponse:
+    response = client.open(path, method=method, **kwargs)
+    assert response.status_code != 500, response.get_data(as_text=True)
+    return response
+
+
+def post_json(client: FlaskClient, body: Any, **kwargs: Any) -> TestResponse:
+    # json.dumps, not the client's json=: it writes NaN/Infinity as raw tokens like many
+    # clients do, while the app's own provider would refuse to encode them.
+    return call(
+        client, "POST", JOBS, data=json.dumps(body), content_type="application/json", **kwargs
+    )
+
+
+def problem_of(response: TestResponse, status: int) -> dict[str, Any]:
+    """The RFC 9457 body of ``response``, after checking the envelope every problem shares."""
+    assert response.status_code == status, response.get_data(as_text=True)
+    assert response.mimetype == PROBLEM_JSON
+    problem = json.loads(response.get_data(as_text=True))
+    assert problem["status"] == status
+    for member in ("type", "title", "detail"):
+        assert isinstance(problem[member], str) and problem[member].strip(), member
+    return problem
+
+
+def pointers_of(problem: dict[str, Any]) -> list[str]:
+    return [error["pointer"] for error in problem["errors"]]
+
+
+def said(problem: dict[str, Any]) -> str:
+    """Everything the client is told in words, lower-cased for keyword checks."""
+    messages = [error["message"] for error in problem.get("errors") or []]
+    return " ".join([problem["detail"], *messages]).lower()
+
+
+def closed_port() -> int:
+    # Bound then released, so nothing listens on it: connecting is refused straight away.
+    with socket.socket() as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
+
+
+def app_with(**overrides: Any) -> Flask:
+    app = create_app(Settings(**overrides))
+    app.testing = True
+    return app
+
+
+def fresh_queue() -> str:
+    return f"test-{uuid.uuid4().hex[:12]}"
+
+
+# --- body and media type ---------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    "raw",
+    [b"{nope", b'{"input": {"type": "points"', b"", b"\xff\xfe\x00"],
+    ids=["garbage", "truncated", "empty", "not-utf8"],
+)
+def test_body_that_is_not_json_is_400(client: FlaskClient, raw: bytes) -> None:
+    response = call(client, "POST", JOBS, data=raw, content_type="application/json")
+    problem = problem_of(response, 400)
+    assert "json" in problem["detail"].lower()
+
+
+def test_text_plain_body_is_415(client: FlaskClient) -> None:
+    response = call(client, "POST", JOBS, data=json.dumps(job_body()), content_type="text/plain")
+    problem = problem_of(response, 415)
+    # Names both what was sent and what to send instead.
+    assert "application/json" in problem["detail"]
+    assert "text/plain" in problem["detail"]
+
+
+def test_missing_content_type_is_415(client: FlaskClient) -> None:
+    response = call(client, "POST", JOBS, data=json.dumps(job_body()).encode())
+    problem = problem_of(response, 415)
+    assert "application/json" in problem["detail"]
+
+
+# --- 422: one case per kind of invalid field ------------------------------------------------
+
+
+def _with(body: dict[str, Any], section: str, **changes: Any) -> dict[str, Any]:
+    body[section].update(changes)
+    return body
+
+
+INVALID = [
+    pytest.param(
+        _with(job_body(), "input", type="image"), ["/input/type"], "points", id="unknown-input-type"
+    ),
+    pytest.param(
+        _with(job_body(), "filtration", type="cech"),
+        ["/filtration/type"],
+        "rips",
+        id="unknown-filtration-type",
+    ),
+    pytest.param(
+        job_body([[0, 0], [1, 1], [2]]), ["/input/points/2"], "coordinates", id="ragged-short-row"
+    ),
+    pytest.param(
+        job_body([[0, 0], [1, 1, 1], [2, 2]]),
+        ["/input/points/1"],
+        "coordinates",
+        id="ragged-long-row",
+    ),
+    pytest.param(
+        job_body([[0, 0], [1, 1], [2, 2], [3, "a"]]), ["/input/points/3/1"], "number", id="string"
+    ),
+    pytest.param(job_body([[0, 0], [True, 1]]), ["/input/points/1/0"], "number", id="boolean"),
+    pytest.param(job_body([[0, 0], [None, 1]]), ["/input/points/1/0"], "number", id="null"),
+    pytest.param(job_body([[0, 0], [1, float("nan")]]), ["/input/points/1/1"], "finite", id="nan"),
+    pytest.param(
+        job_body([[0, 0], [1, 1], [float("inf"), 2]]),
+        ["/input/points/2/0"],
+        "finite",
+        id="infinity",
+    ),
+    pytest.param(
+        job_body([[float("-inf"), 0]]), ["/input/points/0/0"], "finite", id="minus-infinity"
+    ),
+    pytest.param(job_body([]), ["/input/points"], "at least 1", id="no-points"),
+    pytest.param(job_body([[0.0] * 17]), ["/input/points/0"], "16", id="17-coordinates"),
+    pytest.param(job_body([[0, 0], []]), ["/input/points/1"], "at least 1", id="0-coordinates"),
+    pytest.param(job_body(max_dim=-1), ["/filtration/max_dim"], "0", id="max-dim-minus-1"),
+    pytest.param(job_body(max_dim=3), ["/filtration/max_dim"], "2", id="max-dim-3"),
+    pytest.param(job_body(max_edge=-0.5), ["/filtration/max_edge"], "0", id="negative-max-edge"),
+    pytest.param(
+        job_body(subsample={"method": "maxmin", "size": 0, "seed": 1}),
+        ["/filtration/subsample/size"],
+        "1",
+        id="subsample-size-0",
+    ),
+    pytest.param(
+        job_body(subsample={"method": "random", "size": 5, "seed": 1}),  # the body has 4 points
+        ["/filtration/subsample/size"],
+        "4 points",
+        id="subsample-larger-than-n",
+    ),
+    pytest.param(
+        job_body(colour="red"), ["/filtration/colour"], "unknown field", id="extra-filtration"
+    ),
+    pytest.param(
+        _with(job_body(), "input", colour="red"),
+        ["/input/colour"],
+        "unknown field",
+        id="extra-input",
+    ),
+    pytest.param(
+        {**job_body(), "colour": "red"}, ["/colour"], "unknown field", id="extra-top-level"
+    ),
+]
+
+
+@pytest.mark.parametrize(("body", "pointers", "hint"), INVALID)
+def test_invalid_field_is_422_with_its_pointer(
+    client: FlaskClient, settings: Settings, body: Any, pointers: list[str], hint: str
+) -> None:
+    response = post_json(client, body)
+    problem = problem_of(response, 422)
+    assert pointers_of(problem) == pointers
+    # The detail alone must locate the first culprit, for clients that only show detail.
+    assert pointers[0] in problem["detail"]
+    assert hint.lower() in said(problem)
+    assert all(error["message"].strip() for error in problem["errors"])
+    # Refused before it reaches the queue.
+    assert settings.redis_url is not None
+    assert Queue(settings.queue, connection=Redis.from_url(settings.redis_url)).count == 0
+
+
+def test_non_finite_values_really_travel_as_raw_tokens() -> None:
+    # Guards the NaN/Infinity cases above: they must send the bare tokens, not strings.
+    text = json.dumps(job_body([[float("nan"), float("inf"), float("-inf")]]))
+    assert "[NaN, Infinity, -Infinity]" in text
+
+
+def test_several_invalid_fields_are_all_reported(client: FlaskClient) -> None:
+    body = job_body([[0, "a"], [1, float("nan")]], max_dim=7, colour="red")
+    problem = problem_of(post_json(client, body), 422)
+    assert sorted(pointers_of(problem)) == sorted(
+        ["/input/points/0/1", "/input/points/1/1", "/filtration/max_dim", "/filtration/colour"]
+    )
+    assert "more" in problem["detail"]  # says the first is not the only one
+
+
+# --- configured limits -----------------------------------------------------------------------
+
+
+@pytest.fixture
+def limited_client(redis_url: str) -> FlaskClient:
+    return app_with(
+        redis_url=redis_url, queue=fresh_queue(), max_points=10, max_body_bytes=2048
+    ).test_client()
+
+
+def _points(n: int) -> list[list[float]]:
+    return [[float(i), float(i * i % 7)] for i in range(n)]
+
+
+def test_more_points_than_the_limit_without_subsample_is_422(limited_client: FlaskClient) -> None:
+    problem = problem_of(post_json(limited_client, job_body(_points(11))), 422)
+    assert pointers_of(problem) == ["/input/points"]
+    words = said(problem)
+    assert "subsample" in words  # tells the client how to get under the limit
+    assert "10" in words and "11" in words
+
+
+def test_points_at_the_limit_are_accepted(limited_client: FlaskClient) -> None:
+    assert post_json(limited_client, job_body(_points(10))).status_code == 202
+
+
+@pytest.mark.parametrize("method", ["maxmin", "random"])
+@pytest.mark.parametrize("size", [1, 10])
+def test_more_points_than_the_limit_with_subsample_is_accepted(
+    limited_client: FlaskClient, method: str, size: int
+) -> None:
+    body = job_body(_points(11), subsample={"method": method, "size": size, "seed": 3})
+    response = post_json(limited_client, body)
+    assert response.status_code == 202, response.get_data(as_text=True)
+    assert response.headers["Location"].startswith("/v1/jobs/")
+
+
+def test_subsample_above_the_limit_is_422(limited_client: FlaskClient) -> None:
+    body = job_body(_points(11), subsample={"method": "maxmin", "size": 11, "seed": 3})
+    problem = problem_of(post_json(limited_client, body), 422)
+    assert pointers_of(problem) == ["/filtration/subsample/size"]
+    assert "10" in said(problem)
+
+
+def test_body_above_the_byte_limit_is_413(limited_client: FlaskClient) -> None:
+    body = job_body(_points(10) * 40, subsample={"method": "maxmin", "size": 10, "seed": 0})
+    raw = json.dumps(body)
+    assert len(raw) > 2048
+    response = call(limited_client, "POST", JOBS, data=raw, content_type="application/json")
+    problem = problem_of(response, 413)
+    assert "2048" in problem["detail"]  # the client learns the limit it hit
+
+
+def test_body_under_the_byte_limit_is_not_refused(limited_client: FlaskClient) -> None:
+    # Same app as the 413 case, so that 413 comes from the size and not from the app.
+    raw = json.dumps(job_body())
+    assert len(raw) < 2048
+    response = call(limited_client, "POST", JOBS, data=raw, content_type="application/json")
+    assert response.status_code == 202
+
+
+# --- job lookups -----------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize(
+    ("method", "template"),
+    [("GET", "/v1/jobs/{}"), ("GET", "/v1/jobs/{}/result"), ("DELETE", "/v1/jobs/{}")],
+    ids=["status", "result", "cancel"],
+)
+@pytest.mark.parametrize(
+    "job_id", [str(uuid.uuid4()), "not-a-uuid"], ids=["unknown-uuid", "malformed"]
+)
+def test_unknown_job_is_404(client: FlaskClient, method: str, template: str, job_id: str) -> None:
+    problem = problem_of(call(client, method, template.format(job_id)), 404)
+    assert job_id in problem["detail"]
+
+
+def test_result_of_an_unfinished_job_is_409(client: FlaskClient) -> None:
+    # The default fixtures run no worker, so the job stays queued.
+    submitted = post_json(client, job_body())
+    assert submitted.status_code == 202
+    location = submitted.headers["Location"]
+    problem = problem_of(call(client, "GET", location + "/result"), 409)
+    assert "queued" in problem["detail"]
+    assert problem["job_status"] == "queued"
+    # The job itself still exists: 409 is about the result, not the job.
+    assert call(client, "GET", location).status_code == 200
+
+
+# --- Redis unreachable -----------------------------------------------------------------------
+
+
+@pytest.fixture
+def down_client() -> FlaskClient:
+    return app_with(
+        redis_url=f"redis://127.0.0.1:{closed_port()}/0", redis_timeout_s=0.5, queue=fresh_queue()
+    ).test_client()
+
+
+def _assert_unavailable(response: TestResponse) -> None:
+    problem = problem_of(response, 503)
+    assert int(response.headers["Retry-After"]) >= 1
+    assert "redis" in problem["detail"].lower()
+
+
+@pytest.mark.parametrize(
+    ("method", "path", "body"),
+    [
+        ("POST", JOBS, job_body()),
+        ("GET", f"/v1/jobs/{uuid.uuid4()}", None),
+        ("GET", f"/v1/jobs/{uuid.uuid4()}/result", None),
+        ("DELETE", f"/v1/jobs/{uuid.uuid4()}", None),
+    ],
+    ids=["submit", "status", "result", "cancel"],
+)
+def test_redis_down_is_503_with_retry_after(
+    down_client: FlaskClient, method: str, path: str, body: Any
+) -> None:
+    data = None if body is None else json.dumps(body)
+    started = time.monotonic()
+    response = call(down_client, method, path, data=data, content_type="application/json")
+    _assert_unavailable(response)
+    assert time.monotonic() - started < 5  # answered promptly, not after a hung connection
+
+
+def test_redis_down_keeps_the_app_serving(down_client: FlaskClient) -> None:
+    _assert_unavailable(post_json(down_client, job_body()))
+    health = call(down_client, "GET", "/healthz")
+    assert health.status_code == 200
+    assert health.get_json() == {"status": "ok"}
+    ready = call(down_client, "GET", "/readyz")
+    problem = problem_of(ready, 503)
+    assert int(ready.headers["Retry-After"]) >= 1
+    assert "redis" in problem["detail"].lower()
+    # Still the same clean answer afterwards: no broken state left behind.
+    _assert_unavailable(call(down_client, "GET", f"/v1/jobs/{uuid.uuid4()}"))
+    assert call(down_client, "GET", "/healthz").status_code == 200
+
+
+# --- readiness -------------------------------------------------------------------------------
+
+
+def test_readyz_is_503_without_a_worker(client: FlaskClient) -> None:
+    response = call(client, "GET", "/readyz")
+    problem = problem_of(response, 503)
+    assert "worker" in problem["detail"]
+    assert int(response.headers["Retry-After"]) >= 1
+
+
+def test_readyz_is_200_with_a_worker(client: FlaskClient, worker: subprocess.Popen[bytes]) -> None:
+    response = call(client, "GET", "/readyz")
+    assert response.status_code == 200
+    assert response.get_json()["workers"] >= 1
+
+
+# --- known service bugs, kept here so they flip to XPASS (and fail) once fixed ---------------
+
+
+@pytest.mark.xfail(strict=True, reason="405 answers omit the Allow header (RFC 9110 15.5.6)")
+def test_wrong_method_is_405_with_allow(client: FlaskClient) -> None:
+    response = call(client, "PUT", JOBS)
+    problem_of(response, 405)
+    assert "POST" in response.headers.get("Allow", "")
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason="pointer_of takes a stray 'type' member whose value names a field for a union tag",
+)
+def test_stray_type_member_does_not_shift_pointers(client: FlaskClient) -> None:
+    body = {"type": "input", **job_body([[0, "a"]])}
+    problem = problem_of(post_json(client, body), 422)
+    assert sorted(pointers_of(problem)) == ["/input/points/0/1", "/type"]
