@@ -2,10 +2,12 @@
 
 import logging
 import uuid
-from typing import Any
+from types import UnionType
+from typing import Annotated, Any, Union, get_args, get_origin
 
 from flask import Flask, Response, current_app, request
-from pydantic import ValidationError
+from pydantic import BaseModel, ValidationError
+from pydantic.fields import FieldInfo
 from pydantic_core import ErrorDetails
 from redis.exceptions import ConnectionError as RedisConnectionError
 from redis.exceptions import TimeoutError as RedisTimeoutError
@@ -35,32 +37,71 @@ def problem_response(problem: Problem, headers: dict[str, str] | None = None) ->
     return response
 
 
-def _escape(token: str) -> str:
-    return token.replace("~", "~0").replace("/", "~1")
+def _members(annotation: Any) -> dict[str, Any]:
+    """Tag -> model for a union tagged by ``type`` (a single model counts as a union of one)."""
+    members = [m for m in (get_args(annotation) or (annotation,)) if m is not type(None)]
+    return {get_args(m.model_fields["type"].annotation)[0]: m for m in members}
 
 
-def pointer_of(location: tuple[int | str, ...], body: Any) -> str:
-    """JSON Pointer (RFC 6901) into ``body`` for a pydantic error location.
+def _discriminated(annotation: Any) -> dict[str, Any] | None:
+    """The tag map if ``annotation`` is a discriminated union (possibly Optional), else None."""
+    if get_origin(annotation) is Annotated:
+        base, *metadata = get_args(annotation)
+        if any(isinstance(m, FieldInfo) and m.discriminator for m in metadata):
+            return _members(base)
+        return _discriminated(base)
+    if get_origin(annotation) in (Union, UnionType):
+        inner = [a for a in get_args(annotation) if a is not type(None)]
+        return _discriminated(inner[0]) if len(inner) == 1 else None
+    return None
+
+
+def _plain(annotation: Any) -> Any:
+    """Strip Annotated and Optional."""
+    while True:
+        if get_origin(annotation) is Annotated:
+            annotation = get_args(annotation)[0]
+        elif get_origin(annotation) in (Union, UnionType):
+            inner = [a for a in get_args(annotation) if a is not type(None)]
+            if len(inner) != 1:
+                return annotation
+            annotation = inner[0]
+        else:
+            return annotation
+
+
+def _child(node: Any, step: int | str) -> tuple[Any, dict[str, Any] | None]:
+    """Annotation one step below ``node``, and its tag map if it is a discriminated union."""
+    node = _plain(node)
+    if isinstance(node, type) and issubclass(node, BaseModel) and isinstance(step, str):
+        field = node.model_fields.get(step)
+        if field is None:
+            return None, None
+        if field.discriminator:
+            return None, _members(field.annotation)
+        return field.annotation, _discriminated(field.annotation)
+    if get_origin(node) is list and isinstance(step, int):
+        item = get_args(node)[0]
+        return item, _discriminated(item)
+    return None, None
+
+
+def pointer_of(location: tuple[int | str, ...], model: type[BaseModel]) -> str:
+    """JSON Pointer (RFC 6901) into the body for a pydantic error location.
 
     Pydantic inserts the tag of a discriminated union into the location
-    (``('input', 'points', 'points', 3)`` for ``/input/points/3``); every union here is tagged
-    by ``type``, so a step equal to the current object's ``type`` is such a tag and is skipped.
+    (``('input', 'points', 'points', 3)`` for ``/input/points/3``). Walking the model along
+    the location tells exactly where such a tag sits, so only those steps are dropped.
     """
     tokens: list[str] = []
-    node = body
-    tag_skipped = False  # at most one tag per object, so {"type": "points", "points": ...} works
+    node: Any = model
+    tags: dict[str, Any] | None = None
     for step in location:
-        if not tag_skipped and isinstance(node, dict) and node.get("type") == step:
-            tag_skipped = True
+        if tags is not None:
+            node, tags = tags.get(str(step)), None
             continue
-        tag_skipped = False
-        tokens.append(_escape(str(step)))
-        if isinstance(node, dict):
-            node = node.get(step)
-        elif isinstance(node, list) and isinstance(step, int) and 0 <= step < len(node):
-            node = node[step]
-        else:
-            node = None
+        tokens.append(str(step).replace("~", "~0").replace("/", "~1"))
+        node, tags = _child(node, step)
     return "".join("/" + t for t in tokens)
 
 
@@ -88,14 +129,14 @@ def invalid_request(errors: list[FieldError], detail: str | None = None) -> ApiP
     )
 
 
-def validation_problem(error: ValidationError, body: Any) -> ApiProblem:
+def validation_problem(error: ValidationError, model: type[BaseModel]) -> ApiProblem:
     """Turn pydantic's errors into a 422 with one pointer per error."""
     errors = []
     for item in error.errors(include_url=False):
-        location = tuple(item["loc"])
+        pointer = pointer_of(tuple(item["loc"]), model)
         if item["type"] in ("union_tag_invalid", "union_tag_not_found"):
-            location += ("type",)  # the culprit is the tag itself
-        errors.append(FieldError(pointer=pointer_of(location, body), message=_message(item)))
+            pointer += "/type"  # the culprit is the tag itself
+        errors.append(FieldError(pointer=pointer, message=_message(item)))
     return invalid_request(errors)
 
 
@@ -114,9 +155,8 @@ def register(app: Flask) -> None:
             detail = (
                 f"the body is larger than the limit of {app.config['MAX_CONTENT_LENGTH']} bytes"
             )
-        headers = (
-            {"Allow": error.response.headers["Allow"]} if status == 405 and error.response else {}
-        )
+        # get_headers() carries Allow for 405 (RFC 9110 15.5.6); the body type is ours.
+        headers = {k: v for k, v in error.get_headers() if k.lower() != "content-type"}
         if status >= 500:
             log.error("HTTP %s on %s %s", status, request.method, request.path)
         return problem_response(

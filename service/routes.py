@@ -83,7 +83,7 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
     try:
         job_request = JobRequest.model_validate(body)
     except ValidationError as error:
-        raise validation_problem(error, body) from None
+        raise validation_problem(error, JobRequest) from None
     errors = job_request.field_errors(lacuna.limits)
     if errors:
         raise invalid_request(errors)

@@ -380,20 +380,15 @@ def test_readyz_is_200_with_a_worker(client: FlaskClient, worker: subprocess.Pop
     assert response.get_json()["workers"] >= 1
 
 
-# --- known service bugs, kept here so they flip to XPASS (and fail) once fixed ---------------
+# --- regressions: 405 carries Allow; a stray "type" member does not shift pointers ---
 
 
-@pytest.mark.xfail(strict=True, reason="405 answers omit the Allow header (RFC 9110 15.5.6)")
 def test_wrong_method_is_405_with_allow(client: FlaskClient) -> None:
     response = call(client, "PUT", JOBS)
     problem_of(response, 405)
     assert "POST" in response.headers.get("Allow", "")
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="pointer_of takes a stray 'type' member whose value names a field for a union tag",
-)
 def test_stray_type_member_does_not_shift_pointers(client: FlaskClient) -> None:
     body = {"type": "input", **job_body([[0, "a"]])}
     problem = problem_of(post_json(client, body), 422)
