@@ -28,6 +28,7 @@ from workers.spec import (
     Problem,
 )
 from workers.spec.problems import PROBLEM_TYPE
+from workers.spec.results import PROVENANCE_PACKAGES
 
 __all__ = ["v1", "health"]
 
@@ -131,7 +132,7 @@ def capabilities() -> Response:
         filtrations=_tags(Filtration),
         value_convention="edge_length",
         limits=lacuna.limits,
-        versions={name: version(name) for name in ("lacuna", "ripser", "numpy")},
+        versions={name: version(name) for name in PROVENANCE_PACKAGES},
     )
     return jsonify(answer.model_dump(mode="json"))
 

@@ -18,6 +18,7 @@ from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.spec import SCHEMA_VERSION, Diagram, DiagramResult, JobPayload, Problem, Provenance
 from workers.spec.arrays import from_npy_bytes
 from workers.spec.jobs import cancel_key, input_key
+from workers.spec.results import PROVENANCE_PACKAGES
 
 __all__ = ["execute", "run", "library_versions", "compute_process"]
 
@@ -26,7 +27,7 @@ _compute: ComputeProcess | None = None
 
 def library_versions() -> dict[str, str]:
     """Versions of the code that shapes a result, recorded in every provenance."""
-    return {name: version(name) for name in ("lacuna", "ripser", "numpy")}
+    return {name: version(name) for name in PROVENANCE_PACKAGES}
 
 
 def _diagram(dim: int, pairs: np.ndarray) -> Diagram:

@@ -28,9 +28,9 @@ def job_body(points: Any = HEXAGON, **filtration: Any) -> dict[str, Any]:
 
 
 def heavy_body() -> dict[str, Any]:
-    # H2 of 300 random points in 3D: tens of seconds in ripser, so it runs past the limits
-    # below; the test checks that the native loop is really stopped.
-    points = np.random.default_rng(0).uniform(size=(300, 3)).tolist()
+    # H2 of 2000 random points in 3D: tens of seconds (the edge collapse of ~2M edges), so
+    # it runs past the limits below; the test checks that the native loop is really stopped.
+    points = np.random.default_rng(0).uniform(size=(2000, 3)).tolist()
     return job_body(points, max_dim=2)
 
 

@@ -4,22 +4,100 @@ Filtration values are **edge lengths** (the diameter convention): a simplex ente
 largest Euclidean distance between two of its vertices. The ball-radius convention, used in
 some texts, is exactly half of these values.
 
-Arithmetic: distances are computed in float64, the persistence itself in float32 by ripser
-(Bauer 2021, "Ripser: efficient computation of Vietoris-Rips persistence barcodes"), so
-values carry a relative error of about 1e-7.
+How it is computed, fastest exact route first:
+
+1. Past the *enclosing radius* (min over points of the distance to the farthest point) the
+   complex is a cone and nothing changes, so no filtration goes further.
+2. In R^2 and R^3, every H0 death and every positive-persistence H1 birth is at most L, the
+   longest relative-neighbourhood edge (``workers.core.neighbourhood``). A filtration cut at
+   s is a prefix of the full one, so its pairs that die by s are exact; if s >= L and no H1
+   class is still alive at s, the cut diagram *is* the full diagram. On spread-out data a
+   cut at 2L already settles everything, with a small fraction of the edges.
+3. When a long-lived loop is still alive at the cut, its death is bounded from a furthest-
+   point subsample Y of X with covering radius e: inclusion Y -> X and nearest-point
+   projection X -> Y make the two Rips filtrations 2e-interleaved, so their diagrams are
+   within bottleneck distance 2e (Chazal, de Silva, Oudot 2014, "Persistence stability for
+   geometric complexes"). Hence every H1 death of X is at most
+   max(largest H1 death of Y + 2e, L + 4e), and the next cut goes there instead of to the
+   enclosing radius.
+4. Graphs with many edges are first reduced by edge collapse (Boissonnat & Pritam 2020,
+   "Edge collapse and persistence of flag complexes", via gudhi), which keeps the persistence
+   of the flag filtration in every dimension; ripser (Bauer 2021) then reduces the sparse
+   graph.
+
+Arithmetic: distances are float64; ripser's reduction runs in float32, so values carry a
+relative error of about 1e-7.
 """
 
 import numpy as np
+from gudhi.flag_filtration.edge_collapse import reduce_graph
 from ripser import ripser
-from scipy.spatial.distance import pdist, squareform
+from scipy.sparse import coo_matrix
+from scipy.spatial.distance import cdist, pdist, squareform
 
 from workers.core.diagrams import drop_empty_bars, sort_pairs
 from workers.core.errors import InvalidArrayError, ParameterError
+from workers.core.neighbourhood import longest_neighbourhood_edge
+from workers.core.subsample import maxmin_subsample
 
-__all__ = ["rips_diagrams", "MAX_DIM"]
+__all__ = ["rips_diagrams", "enclosing_radius", "loop_death_bound", "MAX_DIM"]
 
 MAX_DIM = 2
-"""Highest homology dimension: H2 (cavities) is already costly beyond a few hundred points."""
+"""Highest homology dimension: H2 (cavities) is already costly beyond a few thousand points."""
+
+COLLAPSE_ABOVE_EDGES_PER_POINT = 50
+"""Edge collapse pays off once the graph has more than this many edges per point."""
+
+SMALL_SET = 400
+"""Below this many points the death bound of step 3 is not worth a subsample."""
+
+ROUNDING_MARGIN = 1e-6
+"""Relative slack on computed bounds: the reduction rounds values to float32 (~6e-8)."""
+
+
+def enclosing_radius(points: np.ndarray, block: int = 1024) -> float:
+    """min over points of the distance to the farthest point: beyond it the complex is a cone."""
+    radius = np.inf
+    for start in range(0, points.shape[0], block):
+        farthest = cdist(points[start : start + block], points).max(axis=1)
+        radius = min(radius, float(farthest.min()))
+    return radius
+
+
+def _condensed_pairs(k: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Row and column (i < j) of positions ``k`` in a condensed distance vector of n points."""
+    k = k.astype(np.int64)
+    i = (n - 2 - np.floor(np.sqrt(-8.0 * k + 4.0 * n * (n - 1) - 7) / 2.0 - 0.5)).astype(np.int64)
+    j = k + i + 1 - n * (n - 1) // 2 + (n - i) * ((n - i) - 1) // 2
+    return i, j
+
+
+def _persistence(distances: np.ndarray, n: int, cut: float, max_dim: int) -> list[np.ndarray]:
+    """Diagrams of the filtration cut at ``cut`` from condensed ``distances`` of n points."""
+    kept = np.flatnonzero(distances <= cut)
+    rows, cols = _condensed_pairs(kept, n)
+    graph = coo_matrix((distances[kept], (rows, cols)), shape=(n, n))
+    if kept.size > COLLAPSE_ABOVE_EDGES_PER_POINT * n:
+        graph = reduce_graph(graph, 1)
+    raw = ripser(graph, maxdim=max_dim, distance_matrix=True)["dgms"]
+    return [sort_pairs(drop_empty_bars(d)) for d in raw]
+
+
+def _loops_alive(diagrams: list[np.ndarray]) -> bool:
+    return len(diagrams) > 1 and bool(np.isinf(diagrams[1][:, 1]).any())
+
+
+def loop_death_bound(points: np.ndarray, birth_bound: float) -> float:
+    """Upper bound on every H1 death of ``points`` from a subsample (step 3 of the module doc)."""
+    n = points.shape[0]
+    if n <= SMALL_SET:
+        return np.inf
+    sample = maxmin_subsample(points, size=max(SMALL_SET // 2, n // 4), seed=0)
+    loops = rips_diagrams(points[sample.indices], max_dim=1)[1]
+    deaths = loops[np.isfinite(loops[:, 1]), 1]
+    largest = float(deaths.max()) if deaths.size else 0.0
+    spread = sample.covering_radius
+    return max(largest + 2 * spread, birth_bound + 4 * spread) * (1 + ROUNDING_MARGIN)
 
 
 def rips_diagrams(
@@ -43,8 +121,26 @@ def rips_diagrams(
         raise ParameterError(f"max_dim must be in 0..{MAX_DIM}", field="/filtration/max_dim")
     if max_edge is not None and not max_edge >= 0:
         raise ParameterError("max_edge must be >= 0", field="/filtration/max_edge")
-    threshold = np.inf if max_edge is None else float(max_edge)
-    # A precomputed matrix: ripser would otherwise guess (and warn) when n <= d.
-    distances = squareform(pdist(points))
-    raw = ripser(distances, maxdim=max_dim, thresh=threshold, distance_matrix=True)["dgms"]
-    return [sort_pairs(drop_empty_bars(d)) for d in raw]
+    n = points.shape[0]
+    if n == 1:
+        return [np.array([[0.0, np.inf]])] + [np.empty((0, 2)) for _ in range(max_dim)]
+    limit = enclosing_radius(points)
+    if max_edge is not None:
+        limit = min(limit, float(max_edge))
+    births = None if max_dim == 2 else longest_neighbourhood_edge(points)
+    if births is None and max_dim < 2:
+        # No birth bound (d > 3 or degenerate input): ripser's dense path is the fastest.
+        raw = ripser(squareform(pdist(points)), maxdim=max_dim, thresh=limit, distance_matrix=True)
+        return [sort_pairs(drop_empty_bars(d)) for d in raw["dgms"]]
+    distances = pdist(points)
+    if births is None:  # H2: no birth bound, the collapse does the work
+        return _persistence(distances, n, limit, max_dim)
+    cut = min(2 * births, limit)
+    diagrams = _persistence(distances, n, cut, max_dim)
+    if cut >= limit or not _loops_alive(diagrams):
+        return diagrams
+    cut = min(loop_death_bound(points, births), limit)
+    diagrams = _persistence(distances, n, cut, max_dim)
+    if cut >= limit or not _loops_alive(diagrams):
+        return diagrams
+    return _persistence(distances, n, limit, max_dim)  # only if rounding defeated the bound

@@ -4,6 +4,9 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, Field
 
+PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "ripser", "gudhi")
+"""Packages whose versions shape a result; every provenance records them."""
+
 Pair = tuple[float, float | None]
 """(birth, death); death null means the class never dies within the filtration."""
 
