@@ -23,7 +23,7 @@ job queue.
 
 Conventions: Vietoris-Rips values are edge lengths (diameters), not ball radii; a death of
 null means the class never dies within the filtration; pairs are sorted by (birth, death).
-ripser computes in single precision, so values carry a relative error of about 1e-7.
+Arithmetic is float64 throughout: values are exact pairwise distances of the input points.
 Errors are RFC 9457 problem details; 422 answers list every offending field as a JSON Pointer.
 
 For research use only: results are not for diagnosis or treatment decisions.
@@ -103,7 +103,12 @@ def _paths() -> dict[str, Any]:
                 "summary": "Cancel a queued or running job",
                 "operationId": "cancelJob",
                 "responses": {
-                    "200": {"description": "Cancellation recorded.", "content": _json("JobStatus")},
+                    "200": {"description": "Cancelled.", "content": _json("JobStatus")},
+                    "202": {
+                        "description": "Running; its computation is being stopped (within about "
+                        "50 ms). Poll the job to see it cancelled.",
+                        "content": _json("JobStatus"),
+                    },
                     "404": _NOT_FOUND,
                     "409": _problem("The job has already ended."),
                     "503": _UNAVAILABLE,

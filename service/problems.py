@@ -105,9 +105,22 @@ def pointer_of(location: tuple[int | str, ...], model: type[BaseModel]) -> str:
     return "".join("/" + t for t in tokens)
 
 
+_BOUNDS = {
+    "greater_than": ("gt", "greater than"),
+    "greater_than_equal": ("ge", "greater than or equal to"),
+    "less_than": ("lt", "less than"),
+    "less_than_equal": ("le", "less than or equal to"),
+}
+
+
 def _message(error: ErrorDetails) -> str:
     if error["type"] == "extra_forbidden":
         return "unknown field"
+    if error["type"] in _BOUNDS:  # pydantic spells 1e100 out in a hundred digits
+        key, words = _BOUNDS[error["type"]]
+        bound = error.get("ctx", {}).get(key)
+        if isinstance(bound, int | float):
+            return f"Input should be {words} {bound:g}"
     return error["msg"]
 
 

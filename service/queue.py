@@ -194,6 +194,7 @@ class JobQueue:
         self.redis.set(cancel_key(job.id), b"1", ex=self.settings.result_ttl_s)
         if state is JobState.queued:
             job.cancel()
+            self.redis.delete(input_key(job.id))
         job.refresh()
 
     def worker_count(self) -> int:

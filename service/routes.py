@@ -114,12 +114,15 @@ def job_result(job_id: str) -> Response:
 
 
 @v1.delete("/jobs/<job_id>")
-def cancel_job(job_id: str) -> Response:
-    """Cancel a queued or running job."""
+def cancel_job(job_id: str) -> tuple[Response, int]:
+    """Cancel a job: 200 once cancelled, 202 while a running job is being stopped."""
     queue = _lacuna().queue
     job = queue.find(job_id, owner_of(request))
     queue.cancel(job)
-    return jsonify(queue.status(job).model_dump(mode="json"))
+    status = queue.status(job)
+    return jsonify(
+        status.model_dump(mode="json")
+    ), 202 if status.status is JobState.running else 200
 
 
 @v1.get("/capabilities")

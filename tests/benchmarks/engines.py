@@ -23,7 +23,7 @@ def gudhi_collapse(points: np.ndarray) -> list[np.ndarray]:
     import gudhi
 
     tree = gudhi.RipsComplex(points=points).create_simplex_tree(max_dimension=1)
-    tree.collapse_edges(-1)  # to a fixed point
+    tree.collapse_edges(1)  # more iterations shrink the graph little and cost more
     tree.expansion(2)
     tree.compute_persistence()
     return [np.asarray(tree.persistence_intervals_in_dimension(k)).reshape(-1, 2) for k in (0, 1)]

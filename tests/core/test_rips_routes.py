@@ -38,11 +38,12 @@ def assert_same(ours: list[np.ndarray], reference: list[np.ndarray]) -> None:
         np.random.default_rng(1).uniform(size=(300, 3)),
         noisy_circle(600, seed=2),  # a loop outlives the first cut: the death bound decides
         np.vstack([noisy_circle(300, seed=3), noisy_circle(300, seed=4) * 0.5 + 3]),
-        np.random.default_rng(5).normal(size=(120, 5)),  # d > 3: dense route
-        np.column_stack([np.linspace(0, 1, 50), np.zeros(50)]),  # collinear: Qhull refuses
-        np.repeat(np.random.default_rng(6).uniform(size=(40, 2)), 2, axis=0),  # repeated points
+        np.random.default_rng(5).normal(size=(200, 5)),  # d > 3: every edge
+        np.column_stack([np.linspace(0, 1, 200), np.zeros(200)]),  # collinear: Qhull refuses
+        np.repeat(np.random.default_rng(6).uniform(size=(100, 2)), 2, axis=0),  # repeated points
+        np.random.default_rng(7).uniform(size=(100, 2)),  # small: every edge
     ],
-    ids=["square", "cube", "circle", "two-circles", "5d", "collinear", "repeated"],
+    ids=["square", "cube", "circle", "two-circles", "5d", "collinear", "repeated", "small"],
 )
 def test_every_route_matches_ripser(points: np.ndarray) -> None:
     assert_same(rips_diagrams(points, max_dim=1), ripser_reference(points, 1))
@@ -107,3 +108,13 @@ def test_enclosing_radius_of_a_square() -> None:
     # Corners of a unit square: every corner's farthest point is the opposite corner.
     corners = np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0], [1.0, 1.0]])
     assert enclosing_radius(corners) == pytest.approx(np.sqrt(2))
+
+
+def test_shortcut_declines_where_it_does_not_apply() -> None:
+    # The routes above only test what they claim if these sets really skip the shortcut.
+    assert (
+        longest_neighbourhood_edge(np.column_stack([np.linspace(0, 1, 200), np.zeros(200)])) is None
+    )
+    assert longest_neighbourhood_edge(np.repeat(np.eye(3)[:, :2] + 5, 2, axis=0)) is None
+    assert longest_neighbourhood_edge(np.random.default_rng(0).normal(size=(200, 5))) is None
+    assert longest_neighbourhood_edge(np.random.default_rng(0).normal(size=(200, 2))) is not None

@@ -161,6 +161,9 @@ INVALID = [
     pytest.param(
         job_body([[float("-inf"), 0]]), ["/input/points/0/0"], "finite", id="minus-infinity"
     ),
+    pytest.param(
+        job_body([[0, 0], [1e300, 1]]), ["/input/points/1/0"], "1e+100", id="overflowing-magnitude"
+    ),
     pytest.param(job_body([]), ["/input/points"], "at least 1", id="no-points"),
     pytest.param(job_body([[0.0] * 17]), ["/input/points/0"], "16", id="17-coordinates"),
     pytest.param(job_body([[0, 0], []]), ["/input/points/1"], "at least 1", id="0-coordinates"),

@@ -4,12 +4,12 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from workers.spec.numbers import FiniteFloat
+from workers.spec.numbers import Coordinate
 
 MAX_COORDINATES = 16
 """Highest ambient dimension d accepted for point sets."""
 
-Coordinates = Annotated[list[FiniteFloat], Field(min_length=1, max_length=MAX_COORDINATES)]
+Coordinates = Annotated[list[Coordinate], Field(min_length=1, max_length=MAX_COORDINATES)]
 
 
 class PointsInput(BaseModel):

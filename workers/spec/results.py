@@ -4,7 +4,7 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, Field
 
-PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "ripser", "gudhi")
+PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "gudhi")
 """Packages whose versions shape a result; every provenance records them."""
 
 Pair = tuple[float, float | None]
