@@ -4,25 +4,35 @@
 PYTHON ?= python3
 VENV   := .venv
 BIN    := $(VENV)/bin
-STAMP  := $(VENV)/.installed-$(shell cat pyproject.toml docker/constraints.txt | cksum | cut -d' ' -f1)
+HASH   := $(shell cat pyproject.toml docker/constraints.txt | cksum | cut -d' ' -f1)
+STAMP  := $(VENV)/.installed-$(HASH)
+DEV    := $(VENV)/.installed-dev-$(HASH)
 
-.PHONY: install serve test lint bench openapi lock clean
+.PHONY: install install-dev serve test lint bench openapi lock clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
 
+# The service alone (what `make serve` needs) ...
 $(STAMP): pyproject.toml docker/constraints.txt | $(BIN)/python
-	$(BIN)/python -m pip install --quiet -c docker/constraints.txt -e '.[test,bench]'
+	$(BIN)/python -m pip install --quiet -c docker/constraints.txt -e .
 	rm -f $(VENV)/.installed-*
+	touch $@
+
+# ... and with the test and benchmark extras.
+$(DEV): $(STAMP)
+	$(BIN)/python -m pip install --quiet -c docker/constraints.txt -e '.[test,bench]'
 	touch $@
 
 install: $(STAMP)
 
+install-dev: $(DEV)
+
 serve: install
 	$(BIN)/lacuna serve
 
-lint: install
+lint: install-dev
 	$(BIN)/ruff check service workers tests
 	$(BIN)/mypy
 
@@ -31,14 +41,14 @@ lint: install
 test: lint
 	$(BIN)/python -m pytest
 
-bench: install
+bench: install-dev
 	$(BIN)/python -m tests.benchmarks.run
 
-openapi: install
+openapi: install-dev
 	$(BIN)/lacuna openapi --out openapi/openapi.json
 
 # Refresh the pinned versions deployments install (docker/constraints.txt).
-lock: install
+lock: install-dev
 	$(BIN)/python -m pip freeze --exclude-editable | grep -v '^-e' > docker/constraints.txt
 
 clean:

@@ -7,12 +7,12 @@ from flask.json.provider import DefaultJSONProvider
 from redis import Redis
 
 from service import problems
-from service.extension import Lacuna, limits_of
+from service.extension import ServiceState, capabilities_of, limits_of
 from service.openapi import openapi_document
 from service.queue import JobQueue
 from service.routes import health, v1
 from service.settings import Settings
-from workers.settings import DEFAULT_REDIS_URL
+from workers.spec.jobs import DEFAULT_REDIS_URL
 
 __all__ = ["create_app"]
 
@@ -39,10 +39,12 @@ def create_app(settings: Settings | None = None) -> Flask:
     waiting_redis = Redis.from_url(
         url, socket_connect_timeout=timeout, socket_timeout=settings.max_wait_s + timeout
     )
-    app.extensions["lacuna"] = Lacuna(
+    limits = limits_of(settings)
+    app.extensions["lacuna"] = ServiceState(
         settings=settings,
         queue=JobQueue(redis, waiting_redis, settings),
-        limits=limits_of(settings),
+        limits=limits,
+        capabilities=capabilities_of(limits),
         openapi=openapi_document(),
     )
     problems.register(app)

@@ -22,6 +22,7 @@ def _serve(args: argparse.Namespace, settings: Settings) -> int:
             threads=args.threads,
             local_workers=args.local_workers,
             queue=settings.queue,
+            # a waiting request must not be killed as a stuck worker
             http_timeout_s=settings.max_wait_s + 60,
         )
     )
@@ -57,13 +58,23 @@ def main(argv: list[str] | None = None) -> int:
     )
     serve.add_argument("--host", default=settings.host, help="listen address (LACUNA_HOST)")
     serve.add_argument("--port", type=int, default=settings.port, help="port (LACUNA_PORT)")
-    serve.add_argument("--http-workers", type=int, default=2, help="gunicorn worker processes")
-    serve.add_argument("--threads", type=int, default=8, help="threads per gunicorn worker")
+    serve.add_argument(
+        "--http-workers",
+        type=int,
+        default=settings.http_workers,
+        help="gunicorn worker processes (LACUNA_HTTP_WORKERS)",
+    )
+    serve.add_argument(
+        "--threads",
+        type=int,
+        default=settings.http_threads,
+        help="threads per gunicorn worker (LACUNA_HTTP_THREADS)",
+    )
     serve.add_argument(
         "--local-workers",
         type=int,
-        default=2,
-        help="job workers started on this machine (0: API only)",
+        default=settings.local_workers,
+        help="job workers started on this machine, 0: API only (LACUNA_LOCAL_WORKERS)",
     )
 
     commands.add_parser(

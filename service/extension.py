@@ -1,14 +1,16 @@
-"""What the app factory stores in ``app.extensions['lacuna']``."""
+"""What the app factory stores in ``app.extensions['lacuna']``: built once per process."""
 
 from dataclasses import dataclass
 from typing import Any
 
 from service.queue import JobQueue
 from service.settings import Settings
-from workers.spec import Limits
+from workers.spec import SCHEMA_VERSION, Capabilities, Filtration, Input, Limits
 from workers.spec.inputs import MAX_COORDINATES
+from workers.spec.results import package_versions
+from workers.spec.tags import members_by_tag
 
-__all__ = ["Lacuna", "limits_of"]
+__all__ = ["ServiceState", "limits_of", "capabilities_of"]
 
 
 def limits_of(settings: Settings) -> Limits:
@@ -25,9 +27,24 @@ def limits_of(settings: Settings) -> Limits:
     )
 
 
+def capabilities_of(limits: Limits) -> Capabilities:
+    """Answer of /v1/capabilities: the input and filtration types come from the spec unions."""
+    return Capabilities(
+        schema_version=SCHEMA_VERSION,
+        input_types=list(members_by_tag(Input)),
+        filtrations=list(members_by_tag(Filtration)),
+        value_convention="edge_length",
+        limits=limits,
+        versions=package_versions(),
+    )
+
+
 @dataclass(frozen=True)
-class Lacuna:
+class ServiceState:
+    """Per-process state of the API: settings, the queue handle and what is computed once."""
+
     settings: Settings
     queue: JobQueue
     limits: Limits
+    capabilities: Capabilities
     openapi: dict[str, Any]

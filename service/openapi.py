@@ -5,12 +5,12 @@ committed copy differs from what this module generates.
 """
 
 import json
+from importlib.metadata import version
 from typing import Any
 
 from pydantic import BaseModel
 from pydantic.json_schema import models_json_schema
 
-from workers import __version__
 from workers.spec import Capabilities, DiagramResult, JobRequest, JobStatus, Problem
 
 __all__ = ["openapi_document", "openapi_text"]
@@ -43,6 +43,15 @@ def _problem(description: str) -> dict[str, Any]:
     }
 
 
+_PREFER_WAIT = {
+    "name": "Prefer",
+    "in": "header",
+    "required": False,
+    "description": "RFC 7240 `wait=N`: block up to N seconds (capped, see /v1/capabilities) "
+    "for the job to end before answering.",
+    "schema": {"type": "string", "example": "wait=10"},
+}
+
 _JOB_ID = {
     "name": "job_id",
     "in": "path",
@@ -59,16 +68,7 @@ def _paths() -> dict[str, Any]:
             "post": {
                 "summary": "Submit a job",
                 "operationId": "submitJob",
-                "parameters": [
-                    {
-                        "name": "Prefer",
-                        "in": "header",
-                        "required": False,
-                        "description": "RFC 7240 `wait=N`: block up to N seconds (capped, see "
-                        "/v1/capabilities) and answer the result inline if the job ends.",
-                        "schema": {"type": "string", "example": "wait=10"},
-                    }
-                ],
+                "parameters": [_PREFER_WAIT],
                 "requestBody": {"required": True, "content": _json("JobRequest")},
                 "responses": {
                     "200": {
@@ -93,6 +93,7 @@ def _paths() -> dict[str, Any]:
             "get": {
                 "summary": "State and timestamps of a job",
                 "operationId": "getJob",
+                "parameters": [_PREFER_WAIT],
                 "responses": {
                     "200": {"description": "The job.", "content": _json("JobStatus")},
                     "404": _NOT_FOUND,
@@ -120,6 +121,7 @@ def _paths() -> dict[str, Any]:
             "get": {
                 "summary": "Result of a succeeded job",
                 "operationId": "getResult",
+                "parameters": [_PREFER_WAIT],
                 "responses": {
                     "200": {"description": "The result.", "content": _json("DiagramResult")},
                     "404": _NOT_FOUND,
@@ -174,7 +176,7 @@ def openapi_document() -> dict[str, Any]:
     )
     return {
         "openapi": "3.1.0",
-        "info": {"title": "lacuna", "version": __version__, "description": _DESCRIPTION},
+        "info": {"title": "lacuna", "version": version("lacuna"), "description": _DESCRIPTION},
         "paths": _paths(),
         "components": {"schemas": top["$defs"]},
     }

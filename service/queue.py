@@ -11,6 +11,7 @@ from typing import Any
 
 import numpy as np
 from redis import Redis
+from redis.exceptions import RedisError
 from rq import Queue, Worker
 from rq.exceptions import NoSuchJobError
 from rq.job import Job
@@ -18,14 +19,18 @@ from rq.job import JobStatus as RQStatus
 from rq.results import Result
 from rq.serializers import JSONSerializer
 
-from service.problems import ApiProblem
+from service.errors import JobAlreadyEnded, JobHasNoResult, JobNotFound, NotReady
 from service.settings import Settings
-from workers.spec import SCHEMA_VERSION, JobPayload, JobRequest, JobState, JobStatus, Problem
+from workers.spec import SCHEMA_VERSION, JobPayload, JobRequest, JobState, JobStatus
 from workers.spec.arrays import array_sha256, canonical_sha256, to_npy_bytes
+from workers.spec.failures import worker_lost
 from workers.spec.jobs import JOB_FUNCTION, StoredInput, cancel_key, input_key
-from workers.spec.problems import CANCELLED_TYPE, PROBLEM_TYPE
+from workers.spec.problems import CANCELLED_TYPE
 
 __all__ = ["JobQueue"]
+
+RQ_TIMEOUT_MARGIN_S = 60
+"""RQ's own job timeout is the time limit plus this: a backstop behind the worker's SIGKILL."""
 
 # A worker that dies mid-job leaves RQ status "started" until RQ's cleanup marks it failed.
 _STATES = {
@@ -41,23 +46,13 @@ _STATES = {
     RQStatus.STOPPED: JobState.failed,
     RQStatus.CANCELED: JobState.cancelled,
 }
+_UNFINISHED = (JobState.queued, JobState.running)
 
 
 def _utc(moment: datetime | None) -> datetime | None:
     if moment is None:
         return None
     return moment.replace(tzinfo=UTC) if moment.tzinfo is None else moment
-
-
-def not_found(job_id: str) -> ApiProblem:
-    return ApiProblem(
-        Problem(
-            type=PROBLEM_TYPE + "job-not-found",
-            title="Job not found",
-            status=404,
-            detail=f"no job {job_id!r} (unknown, or its result has expired)",
-        )
-    )
 
 
 class JobQueue:
@@ -95,30 +90,35 @@ class JobQueue:
                 JOB_FUNCTION,
                 payload.model_dump(mode="json"),
                 job_id=job_id,
-                # RQ's own limit is a backstop; the worker enforces time_limit_s by SIGKILL.
-                job_timeout=int(self.settings.job_time_limit_s) + 60,
+                job_timeout=int(self.settings.job_time_limit_s) + RQ_TIMEOUT_MARGIN_S,
                 result_ttl=self.settings.result_ttl_s,
                 failure_ttl=self.settings.result_ttl_s,
                 ttl=self.settings.queued_ttl_s,
                 meta={"owner": owner},
             )
-        except Exception:
+        except RedisError:
             self.redis.delete(input_key(job_id))
             raise
 
     def find(self, job_id: str, owner: str) -> Job:
-        """The job ``job_id`` if it exists and belongs to ``owner``; 404 otherwise."""
+        """The job ``job_id`` if it exists and belongs to ``owner``; JobNotFound otherwise."""
         try:
             uuid.UUID(job_id)
         except ValueError:
-            raise not_found(job_id) from None
+            raise JobNotFound(job_id) from None
         try:
             job = Job.fetch(job_id, connection=self.redis, serializer=JSONSerializer)
         except NoSuchJobError:
-            raise not_found(job_id) from None
+            raise JobNotFound(job_id) from None
         if job.meta.get("owner") != owner:
-            raise not_found(job_id)
+            raise JobNotFound(job_id)
         return job
+
+    def _refresh(self, job: Job) -> None:
+        try:
+            job.refresh()
+        except NoSuchJobError:  # expired between two reads
+            raise JobNotFound(job.id) from None
 
     def state(self, job: Job) -> JobState:
         state = _STATES.get(job.get_status(refresh=False) or RQStatus.QUEUED, JobState.queued)
@@ -131,12 +131,7 @@ class JobQueue:
         state = self.state(job)
         problem = job.meta.get("problem") if state is JobState.failed else None
         if state is JobState.failed and problem is None:
-            problem = Problem(
-                type=PROBLEM_TYPE + "job-failed",
-                title="Job failed",
-                status=500,
-                detail="the worker stopped before the job ended (it was killed or lost)",
-            ).model_dump(mode="json", exclude_none=True)
+            problem = worker_lost().model_dump(mode="json", exclude_none=True)
         links = {"self": f"/v1/jobs/{job.id}"}
         if state is JobState.succeeded:
             links["result"] = f"/v1/jobs/{job.id}/result"
@@ -151,51 +146,48 @@ class JobQueue:
         )
 
     def result(self, job: Job) -> dict[str, Any]:
-        """The result of a succeeded job; 409 for any other state."""
+        """The result of a succeeded job; JobHasNoResult for any other state."""
         state = self.state(job)
         if state is JobState.succeeded:
             latest = job.latest_result()
             if latest is not None and latest.type == Result.Type.SUCCESSFUL:
                 value: dict[str, Any] = latest.return_value or {}
                 return value
-        raise ApiProblem(
-            Problem(
-                type=PROBLEM_TYPE + "job-not-finished",
-                title="Job has no result",
-                status=409,
-                detail=f"job {job.id} is {state.value}; a result exists once it has succeeded",
-                job_status=state.value,
-            )
-        )
+        raise JobHasNoResult(job.id, state.value)
 
     def wait(self, job: Job, seconds: int) -> None:
-        """Block until the job has a result (success or failure), at most ``seconds``."""
-        if seconds <= 0:
+        """Block until an unfinished job ends (success or failure), at most ``seconds``."""
+        if seconds <= 0 or self.state(job) not in _UNFINISHED:
             return
         waiting = Job.fetch(job.id, connection=self._waiting_redis, serializer=JSONSerializer)
         waiting.latest_result(timeout=seconds)
-        job.refresh()
+        self._refresh(job)
 
     def cancel(self, job: Job) -> None:
-        """Cancel a queued or running job; 409 once it has ended."""
+        """Cancel a queued or running job; JobAlreadyEnded once it has ended."""
         state = self.state(job)
-        if state not in (JobState.queued, JobState.running):
-            raise ApiProblem(
-                Problem(
-                    type=PROBLEM_TYPE + "job-ended",
-                    title="Job already ended",
-                    status=409,
-                    detail=f"job {job.id} is {state.value} and cannot be cancelled",
-                    job_status=state.value,
-                )
-            )
-        # A running job polls this key and kills its compute process; a queued job is also
-        # taken off the queue, and the key covers a worker that picked it in between.
+        if state not in _UNFINISHED:
+            raise JobAlreadyEnded(job.id, state.value)
+        # A running job polls this key and kills its compute process; it also stops a job
+        # that a worker takes between the state read above and the removal below.
         self.redis.set(cancel_key(job.id), b"1", ex=self.settings.result_ttl_s)
-        if state is JobState.queued:
-            job.cancel()
+        # LREM is atomic: 1 means no worker has the job, so nobody else writes its status.
+        if self.queue.remove(job.id):
+            job.set_status(RQStatus.CANCELED)
+            self.redis.expire(job.key, self.settings.result_ttl_s)
             self.redis.delete(input_key(job.id))
-        job.refresh()
+        self._refresh(job)
+        ended = self.state(job)
+        if ended in (JobState.succeeded, JobState.failed):  # it ended before the request
+            raise JobAlreadyEnded(job.id, ended.value)
 
-    def worker_count(self) -> int:
-        return int(Worker.count(connection=self.redis, queue=self.queue))
+    def ready_workers(self) -> int:
+        """Workers registered on the queue; NotReady without Redis or without a worker."""
+        try:
+            self.redis.ping()
+            workers = int(Worker.count(connection=self.redis, queue=self.queue))
+        except RedisError as error:
+            raise NotReady(f"Redis unreachable ({type(error).__name__})") from None
+        if workers < 1:
+            raise NotReady("no worker is registered on the queue")
+        return workers

@@ -3,7 +3,7 @@
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
-from workers.settings import DEFAULT_QUEUE
+from workers.spec.jobs import DEFAULT_QUEUE
 
 __all__ = ["Settings"]
 
@@ -37,3 +37,12 @@ class Settings(BaseSettings):
         2.0, gt=0, description="Socket timeout of Redis calls; beyond it the API answers 503."
     )
     retry_after_s: int = Field(5, ge=1, description="Retry-After sent with 503 answers.")
+    http_workers: int = Field(2, ge=1, description="gunicorn worker processes of `lacuna serve`.")
+    http_threads: int = Field(
+        16,
+        ge=1,
+        description="Threads per gunicorn worker; each `Prefer: wait` holds one while it waits.",
+    )
+    local_workers: int = Field(
+        2, ge=0, description="Job workers `lacuna serve` starts on its own machine (0: API only)."
+    )

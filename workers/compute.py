@@ -21,26 +21,19 @@ from multiprocessing.connection import Connection
 from typing import Any
 
 from workers.core.errors import CoreError
-from workers.spec import JobPayload, Problem
-from workers.spec.problems import CANCELLED_TYPE, PROBLEM_TYPE
+from workers.spec import JobPayload, Problem, failures
 
-__all__ = ["ComputeProcess", "JobAborted", "Handler", "CANCELLED"]
+__all__ = ["ComputeProcess", "JobAborted", "Handler"]
 
 log = logging.getLogger(__name__)
 
 Handler = Callable[[dict[str, Any], bytes], dict[str, Any]]
 """(JSON header, .npy bytes) -> result dict; runs in the child."""
 
+_PR_SET_PDEATHSIG = 1  # from <sys/prctl.h>
+
 POLL_INTERVAL_S = 0.05
 """How often a waiting worker looks for a cancel request; the result itself wakes it at once."""
-
-
-CANCELLED = Problem(
-    type=CANCELLED_TYPE,
-    title="Cancelled",
-    status=409,
-    detail="the job was cancelled",
-)
 
 
 class JobAborted(Exception):
@@ -55,7 +48,7 @@ def _die_with_parent() -> None:
     """Ask Linux to SIGKILL this process when its parent dies (prctl PR_SET_PDEATHSIG)."""
     try:
         libc = ctypes.CDLL(None, use_errno=True)
-        libc.prctl(1, signal.SIGKILL)
+        libc.prctl(_PR_SET_PDEATHSIG, signal.SIGKILL)
     except (OSError, AttributeError):  # not Linux: the daemon flag still reaps it on clean exit
         pass
 
@@ -75,34 +68,14 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
         try:
             reply: dict[str, Any] = {"result": handler(header, data)}
         except CoreError as error:
-            problem = Problem(
-                type=PROBLEM_TYPE + "invalid-request",
-                title="Invalid request",
-                status=422,
-                detail=error.message,
-                errors=[{"pointer": error.field, "message": error.message}]
-                if error.field
-                else None,
-            )
-            reply = {"problem": problem.model_dump(mode="json", exclude_none=True)}
+            reply = {"problem": failures.invalid_parameters(error.message, error.field)}
         except MemoryError:
-            problem = Problem(
-                type=PROBLEM_TYPE + "out-of-memory",
-                title="Out of memory",
-                status=507,
-                detail="the computation ran out of memory; lower max_dim, set max_edge or "
-                "subsample",
-            )
-            reply = {"problem": problem.model_dump(mode="json", exclude_none=True)}
+            reply = {"problem": failures.out_of_memory()}
         except Exception:  # a bug: report it as such, keep the child alive for the next job
             log.error("job failed inside the compute process\n%s", traceback.format_exc())
-            problem = Problem(
-                type=PROBLEM_TYPE + "internal-error",
-                title="Internal error",
-                status=500,
-                detail="the computation failed unexpectedly; the worker log has the traceback",
-            )
-            reply = {"problem": problem.model_dump(mode="json", exclude_none=True)}
+            reply = {"problem": failures.internal_error()}
+        if "problem" in reply:
+            reply["problem"] = reply["problem"].model_dump(mode="json", exclude_none=True)
         connection.send_bytes(json.dumps(reply, allow_nan=False).encode("utf-8"))
 
 
@@ -128,16 +101,17 @@ class ComputeProcess:
 
     @property
     def pid(self) -> int | None:
-        return self._process.pid
+        """Pid of the current child; None after a kill until the next job forks a new one."""
+        return self._process.pid if self._process.is_alive() else None
 
-    def restart(self) -> None:
-        """Kill the child (SIGKILL: native code cannot ignore it) and fork a fresh one."""
+    def kill(self) -> None:
+        """SIGKILL the child (native code cannot ignore it); the next ``run`` forks a new one."""
         self._process.kill()
         self._process.join()
         self._connection.close()
-        self._start()
 
     def close(self) -> None:
+        """Let the child exit on end-of-file; kill it if it is busy."""
         self._connection.close()
         self._process.join(timeout=2)
         if self._process.is_alive():
@@ -154,6 +128,10 @@ class ComputeProcess:
         should_stop: Callable[[], bool],
     ) -> dict[str, Any]:
         """Run one job in the child; raise ``JobAborted`` on overrun, cancel, crash or error."""
+        if not self._process.is_alive():
+            if not self._connection.closed:
+                self._connection.close()
+            self._start()
         header = {"job_id": job_id, "payload": payload.model_dump(mode="json")}
         deadline = time.monotonic() + time_limit_s
         try:
@@ -163,38 +141,18 @@ class ComputeProcess:
                 max(0.0, min(POLL_INTERVAL_S, deadline - time.monotonic()))
             ):
                 if time.monotonic() >= deadline:
-                    self.restart()
-                    raise JobAborted(
-                        Problem(
-                            type=PROBLEM_TYPE + "time-limit",
-                            title="Time limit exceeded",
-                            status=422,
-                            detail=f"the job ran longer than its time limit of {time_limit_s:g} s "
-                            "and was stopped; lower max_dim, set max_edge or subsample",
-                        )
-                    )
+                    raise JobAborted(failures.time_limit_exceeded(time_limit_s))
                 if should_stop():
-                    self.restart()
-                    raise JobAborted(CANCELLED)
+                    raise JobAborted(failures.cancelled())
             reply = json.loads(self._connection.recv_bytes())
-        except JobAborted:
-            raise
         except (EOFError, OSError):
             code = self._process.exitcode
-            self.restart()
-            raise JobAborted(
-                Problem(
-                    type=PROBLEM_TYPE + "compute-crashed",
-                    title="Computation crashed",
-                    status=500,
-                    detail=f"the compute process ended unexpectedly (exit code {code}); this "
-                    "often means it ran out of memory",
-                )
-            ) from None
+            self.kill()
+            raise JobAborted(failures.computation_crashed(code)) from None
         except BaseException:
-            # Anything else (RQ's own timeout, a warm shutdown turned cold): never leave the
-            # child busy with a job nobody waits for.
-            self.restart()
+            # Overrun, cancel, RQ's own timeout, a shutdown: never leave the child busy with
+            # a job nobody waits for.
+            self.kill()
             raise
         if "problem" in reply:
             raise JobAborted(Problem.model_validate(reply["problem"]))

@@ -6,28 +6,31 @@ worker kills when the job overruns its time limit or is cancelled.
 """
 
 import time
-from importlib.metadata import version
 from typing import Any
 
 import numpy as np
+from pydantic import ValidationError
 from rq import get_current_job
 
-from workers.compute import CANCELLED, ComputeProcess, JobAborted
+from workers.compute import ComputeProcess, JobAborted
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
-from workers.spec import SCHEMA_VERSION, Diagram, DiagramResult, JobPayload, Problem, Provenance
-from workers.spec.arrays import from_npy_bytes
+from workers.spec import (
+    SCHEMA_VERSION,
+    Diagram,
+    DiagramResult,
+    JobPayload,
+    Problem,
+    Provenance,
+    failures,
+)
+from workers.spec.arrays import array_sha256, from_npy_bytes
 from workers.spec.jobs import cancel_key, input_key
-from workers.spec.results import PROVENANCE_PACKAGES
+from workers.spec.results import package_versions
 
-__all__ = ["execute", "run", "library_versions", "compute_process"]
+__all__ = ["execute", "execute_bytes", "run", "compute_process"]
 
 _compute: ComputeProcess | None = None
-
-
-def library_versions() -> dict[str, str]:
-    """Versions of the code that shapes a result, recorded in every provenance."""
-    return {name: version(name) for name in PROVENANCE_PACKAGES}
 
 
 def _diagram(dim: int, pairs: np.ndarray) -> Diagram:
@@ -57,13 +60,20 @@ def execute(payload: JobPayload, points: np.ndarray, *, job_id: str) -> dict[str
         provenance=Provenance(
             input_sha256=payload.input.sha256,
             request_sha256=payload.request_sha256,
-            versions=library_versions(),
+            versions=package_versions(),
             elapsed_s=elapsed,
             subsample_indices=None if sample is None else sample.indices.tolist(),
             subsample_covering_radius=None if sample is None else sample.covering_radius,
         ),
     )
     return result.model_dump(mode="json")
+
+
+def execute_bytes(header: dict[str, Any], input_bytes: bytes) -> dict[str, Any]:
+    """Entry used inside the compute child: JSON header and .npy bytes in, result dict out."""
+    payload = JobPayload.model_validate(header["payload"])
+    points = from_npy_bytes(input_bytes).astype(np.float64, copy=False)
+    return execute(payload, points, job_id=header["job_id"])
 
 
 def compute_process() -> ComputeProcess:
@@ -78,31 +88,33 @@ class JobFailed(RuntimeError):
     """Raised so RQ marks the job failed; the problem object is in ``job.meta['problem']``."""
 
 
+def _checked_input(data: object, payload: JobPayload) -> bytes:
+    """The stored bytes if they are the array the service recorded, else JobAborted."""
+    if not isinstance(data, bytes):
+        raise JobAborted(failures.input_missing())
+    try:
+        points = from_npy_bytes(data)
+    except ValueError:
+        raise JobAborted(failures.input_corrupt()) from None
+    if tuple(points.shape) != payload.input.shape or array_sha256(points) != payload.input.sha256:
+        raise JobAborted(failures.input_corrupt())
+    return data
+
+
 def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
     """RQ job: read the input saved next to the job, compute in the killable child, return."""
     job = get_current_job()
     if job is None:
         raise RuntimeError("workers.jobs.run must run inside an RQ worker")
     connection = job.connection
-
-    def fail(problem: Problem) -> JobFailed:
-        job.meta["problem"] = problem.model_dump(mode="json", exclude_none=True)
-        job.save_meta()
-        return JobFailed(problem.detail or problem.title)
-
-    payload = JobPayload.model_validate(raw_payload)
-    if connection.exists(cancel_key(job.id)):  # cancelled while a worker was taking it
-        raise fail(CANCELLED)
-    data = connection.get(input_key(job.id))
-    if not isinstance(data, bytes):  # gone (expired) when the worker took the job
-        raise fail(
-            Problem(
-                title="Input expired",
-                status=410,
-                detail="the input of this job was no longer stored when a worker took it",
-            )
-        )
     try:
+        try:
+            payload = JobPayload.model_validate(raw_payload)
+        except ValidationError as error:
+            raise JobAborted(failures.payload_invalid(f"{error.error_count()} errors")) from None
+        if connection.exists(cancel_key(job.id)):  # cancelled while a worker was taking it
+            raise JobAborted(failures.cancelled())
+        data = _checked_input(connection.get(input_key(job.id)), payload)
         return compute_process().run(
             job_id=job.id,
             payload=payload,
@@ -111,13 +123,9 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
             should_stop=lambda: bool(connection.exists(cancel_key(job.id))),
         )
     except JobAborted as aborted:
-        raise fail(aborted.problem) from None
+        problem: Problem = aborted.problem
+        job.meta["problem"] = problem.model_dump(mode="json", exclude_none=True)
+        job.save_meta()
+        raise JobFailed(problem.detail or problem.title) from None
     finally:
         connection.delete(input_key(job.id))
-
-
-def execute_bytes(header: dict[str, Any], input_bytes: bytes) -> dict[str, Any]:
-    """Entry used inside the compute child: JSON header and .npy bytes in, result dict out."""
-    payload = JobPayload.model_validate(header["payload"])
-    points = from_npy_bytes(input_bytes).astype(np.float64, copy=False)
-    return execute(payload, points, job_id=header["job_id"])

@@ -3,8 +3,9 @@
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
-DEFAULT_REDIS_URL = "redis://127.0.0.1:6379/0"
-DEFAULT_QUEUE = "lacuna"
+from workers.spec.jobs import DEFAULT_QUEUE, DEFAULT_REDIS_URL
+
+__all__ = ["WorkerSettings"]
 
 
 class WorkerSettings(BaseSettings):

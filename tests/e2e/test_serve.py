@@ -3,27 +3,23 @@
 import math
 import os
 import signal
-import socket
 import subprocess
 import sys
 import time
+import uuid
 from pathlib import Path
 
 import pytest
 import requests
 from redis import Redis
 
+from tests.conftest import E2E_DB, with_database
+from tests.synthetic import HEXAGON, free_port
+
 pytestmark = pytest.mark.e2e
 
 LACUNA = str(Path(sys.executable).with_name("lacuna"))
-HEXAGON = [[math.cos(k * math.pi / 3), math.sin(k * math.pi / 3)] for k in range(6)]
 JOB = {"input": {"type": "points", "points": HEXAGON}, "filtration": {"type": "rips", "max_dim": 2}}
-
-
-def free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
 
 
 def descendants(pid: int) -> set[int]:
@@ -99,6 +95,7 @@ def test_embedded_stack_answers_and_stops_cleanly() -> None:
         printed = process.stdout.read().decode()
         assert f"lacuna is up at http://127.0.0.1:{port}" in printed
         assert "not for diagnosis" in printed
+        assert printed.rstrip().endswith("lacuna stopped")  # the orderly shutdown ran
     finally:
         if process.poll() is None:
             process.kill()
@@ -108,10 +105,10 @@ def test_embedded_stack_answers_and_stops_cleanly() -> None:
 
 
 def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:
-    url = f"{redis_server}/14"
+    url = with_database(redis_server, E2E_DB)
     Redis.from_url(url).flushdb()
     port = free_port()
-    env = dict(os.environ, LACUNA_QUEUE="e2e-shared")
+    env = dict(os.environ, LACUNA_QUEUE=f"e2e-{uuid.uuid4().hex[:12]}")
     api = subprocess.Popen(
         [
             LACUNA,

@@ -3,6 +3,8 @@
 import math
 import subprocess
 import time
+import uuid
+from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -14,10 +16,9 @@ from rq.serializers import JSONSerializer
 from service.app import create_app
 from service.settings import Settings
 from tests.service.conftest import start_worker, stop_worker
+from tests.synthetic import HEXAGON
 from workers.jobs import execute
 from workers.spec import JobPayload
-
-HEXAGON = [[math.cos(k * math.pi / 3), math.sin(k * math.pi / 3)] for k in range(6)]
 
 
 def job_body(points: Any = HEXAGON, **filtration: Any) -> dict[str, Any]:
@@ -71,6 +72,20 @@ def test_prefer_wait_answers_inline(client: FlaskClient, worker: subprocess.Pope
     assert result["units"] == "um"
     assert answer.headers["Location"] == f"/v1/jobs/{result['job_id']}"
     assert client.get(f"/v1/jobs/{result['job_id']}").get_json()["status"] == "succeeded"
+
+
+def test_prefer_wait_on_result_and_status(
+    client: FlaskClient, worker: subprocess.Popen[bytes]
+) -> None:
+    # RFC 7240 wait applies to any request: a client can long-poll instead of polling.
+    location = client.post("/v1/jobs", json=job_body()).headers["Location"]
+    result = client.get(location + "/result", headers={"Prefer": "wait=20"})
+    assert result.status_code == 200
+    assert len(result.get_json()["diagrams"]) == 2
+    started = time.monotonic()
+    status = client.get(location, headers={"Prefer": "wait=20"}).get_json()
+    assert status["status"] == "succeeded"
+    assert time.monotonic() - started < 1  # an ended job answers at once
 
 
 def test_prefer_wait_times_out_with_202(client: FlaskClient) -> None:
@@ -127,7 +142,9 @@ def test_cancel_running_job_stops_it(client: FlaskClient, worker: subprocess.Pop
 
 
 def test_time_limit_stops_native_code(redis_url: str) -> None:
-    settings = Settings(redis_url=redis_url, queue="test-limit", job_time_limit_s=1.0)
+    settings = Settings(
+        redis_url=redis_url, queue=f"test-{uuid.uuid4().hex[:12]}", job_time_limit_s=1.0
+    )
     client = create_app(settings).test_client()
     worker = start_worker(redis_url, settings.queue)
     try:
@@ -140,5 +157,29 @@ def test_time_limit_stops_native_code(redis_url: str) -> None:
         assert time.monotonic() - started < 6
         follow = client.post("/v1/jobs", json=job_body(), headers={"Prefer": "wait=10"})
         assert follow.status_code == 200
+        # The overrunning child was killed and reaped: the worker has one compute child,
+        # the fresh one that ran the follow-up job, and it is idle.
+        children = children_of(worker.pid)
+        assert len(children) == 1
+        assert process_state(children[0]) in {"S", "I"}
     finally:
         stop_worker(worker)
+
+
+def children_of(pid: int) -> list[int]:
+    """Direct children of ``pid``, from /proc (Linux)."""
+    found = []
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            try:
+                fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            if int(fields[1]) == pid:
+                found.append(int(entry.name))
+    return found
+
+
+def process_state(pid: int) -> str:
+    """One-letter state from /proc/<pid>/stat: R running, S sleeping, Z zombie..."""
+    return Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]

@@ -56,6 +56,7 @@ def alive(pid: int) -> bool:
 
 
 def test_result_comes_back_over_the_pipe(compute: ComputeProcess) -> None:
+    # 3-4-5 right triangle (Pythagoras): the two points merge at distance 5.
     points = np.array([[0.0, 0.0], [3.0, 4.0]])
     result = run(compute, points, max_dim=0, limit=10)
     assert result["diagrams"][0]["pairs"] == [[0.0, 5.0], [0.0, None]]
@@ -71,17 +72,33 @@ def test_time_limit_kills_the_native_loop(compute: ComputeProcess) -> None:
     assert time.monotonic() - started < 2
     assert aborted.value.problem.type == "urn:lacuna:problem:time-limit"
     assert not alive(old_pid)  # SIGKILLed, not left computing in the background
-    assert compute.pid != old_pid
-    small = np.array([[0.0], [2.0]])
+    assert compute.pid is None  # the next job forks a fresh child
+    small = np.array([[0.0], [2.0]])  # on a line, the two points merge at distance 2
     assert run(compute, small, max_dim=0, limit=10)["diagrams"][0]["pairs"][0] == [0.0, 2.0]
+    assert compute.pid not in (None, old_pid)
 
 
-def test_crash_of_the_child_is_reported(compute: ComputeProcess) -> None:
+def _exit_mid_job(header: dict, data: bytes) -> dict:
+    os._exit(3)  # what an out-of-memory kill or a segfault looks like from outside
+
+
+def test_crash_during_a_job_is_reported() -> None:
+    crashing = ComputeProcess(_exit_mid_job)
+    try:
+        with pytest.raises(JobAborted) as aborted:
+            run(crashing, np.zeros((2, 2)), max_dim=0, limit=5)
+        assert aborted.value.problem.type == "urn:lacuna:problem:compute-crashed"
+        assert "exit code 3" in (aborted.value.problem.detail or "")
+    finally:
+        crashing.close()
+
+
+def test_child_that_died_between_jobs_is_replaced(compute: ComputeProcess) -> None:
     pid = compute.pid
     assert pid is not None
     os.kill(pid, 9)
     time.sleep(0.1)
-    with pytest.raises(JobAborted) as aborted:
-        run(compute, np.zeros((2, 2)), max_dim=0, limit=5)
-    assert aborted.value.problem.type == "urn:lacuna:problem:compute-crashed"
-    assert run(compute, np.zeros((2, 2)), max_dim=0, limit=5)["diagrams"][0]["pairs"]
+    # Two coincident points: their merge has zero length and is dropped; one class remains.
+    pairs = run(compute, np.zeros((2, 2)), max_dim=0, limit=5)["diagrams"][0]["pairs"]
+    assert pairs == [[0.0, None]]
+    assert compute.pid not in (None, pid)

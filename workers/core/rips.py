@@ -30,6 +30,8 @@ Arithmetic: float64 from the coordinates to the diagram, Z/2 coefficients. Value
 pairwise distances (as scipy's pdist computes them), so they compare with ``==``.
 """
 
+from collections.abc import Iterator
+
 import numpy as np
 
 # gudhi's float64 Ripser; private name, but the one gudhi.sklearn.RipsPersistence calls.
@@ -153,12 +155,15 @@ def rips_diagrams(
     births = None if n <= DIRECT_BELOW else longest_neighbourhood_edge(points)
     if births is None:  # small, d > 3 or degenerate: every edge, as a dense reduction would
         return _persistence(distances, n, limit, max_dim, collapse=False)
-    cut = min(2 * births, limit)
-    diagrams = _persistence(distances, n, cut, max_dim)
-    if cut >= limit or not _loops_alive(diagrams):
-        return diagrams
-    cut = min(loop_death_bound(points, births), limit)
-    diagrams = _persistence(distances, n, cut, max_dim)
-    if cut >= limit or not _loops_alive(diagrams):
-        return diagrams
-    return _persistence(distances, n, limit, max_dim)  # only if rounding defeated the bound
+    for cut in _cuts(points, births, limit):
+        diagrams = _persistence(distances, n, cut, max_dim)
+        if cut >= limit or not _loops_alive(diagrams):
+            return diagrams
+    raise AssertionError("unreachable: the last cut is the limit")
+
+
+def _cuts(points: np.ndarray, births: float, limit: float) -> Iterator[float]:
+    """Filtration cuts to try in turn, cheapest first (steps 2 and 3 of the module doc)."""
+    yield min(2 * births, limit)
+    yield min(loop_death_bound(points, births), limit)  # computed only if the first fails
+    yield limit

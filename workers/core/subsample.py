@@ -16,11 +16,11 @@ import numpy as np
 
 from workers.core.errors import ParameterError
 
-__all__ = ["Subsample", "maxmin_subsample", "random_subsample"]
+__all__ = ["Sample", "maxmin_subsample", "random_subsample"]
 
 
 @dataclass(frozen=True)
-class Subsample:
+class Sample:
     """Chosen rows of the input and how well they cover it.
 
     indices: (K,) int64, positions in the input, in the order they were chosen (maxmin) or
@@ -41,7 +41,7 @@ def _check_size(n: int, size: int) -> None:
         )
 
 
-def maxmin_subsample(points: np.ndarray, *, size: int, seed: int = 0) -> Subsample:
+def maxmin_subsample(points: np.ndarray, *, size: int, seed: int = 0) -> Sample:
     """Greedy furthest-point sample of ``size`` rows of ``points`` (n, d) float64.
 
     The first point is drawn with ``np.random.default_rng(seed)``; ties in the furthest
@@ -58,16 +58,16 @@ def maxmin_subsample(points: np.ndarray, *, size: int, seed: int = 0) -> Subsamp
         nxt = int(np.argmax(nearest))
         chosen[k] = nxt
         np.minimum(nearest, np.sqrt(((points - points[nxt]) ** 2).sum(axis=1)), out=nearest)
-    return Subsample(indices=chosen, covering_radius=float(nearest.max()))
+    return Sample(indices=chosen, covering_radius=float(nearest.max()))
 
 
-def random_subsample(points: np.ndarray, *, size: int, seed: int = 0) -> Subsample:
+def random_subsample(points: np.ndarray, *, size: int, seed: int = 0) -> Sample:
     """``size`` distinct rows drawn uniformly without replacement, ascending indices."""
     n = points.shape[0]
     _check_size(n, size)
     rng = np.random.default_rng(seed)
     chosen = np.sort(rng.choice(n, size=size, replace=False)).astype(np.int64)
-    return Subsample(indices=chosen, covering_radius=_covering_radius(points, chosen))
+    return Sample(indices=chosen, covering_radius=_covering_radius(points, chosen))
 
 
 def _covering_radius(points: np.ndarray, chosen: np.ndarray) -> float:

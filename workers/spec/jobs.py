@@ -9,8 +9,26 @@ from pydantic import BaseModel, ConfigDict, Field
 from workers.spec.filtrations import Filtration
 from workers.spec.problems import Problem
 
+__all__ = [
+    "DEFAULT_QUEUE",
+    "DEFAULT_REDIS_URL",
+    "JOB_FUNCTION",
+    "JobPayload",
+    "JobState",
+    "JobStatus",
+    "StoredInput",
+    "cancel_key",
+    "input_key",
+]
+
 JOB_FUNCTION = "workers.jobs.run"
 """Dotted path the service enqueues, so the API process never imports the numerical code."""
+
+DEFAULT_REDIS_URL = "redis://127.0.0.1:6379/0"
+"""Redis used by API and workers when none is configured."""
+
+DEFAULT_QUEUE = "lacuna"
+"""RQ queue name shared by API and workers unless LACUNA_QUEUE says otherwise."""
 
 
 def input_key(job_id: str) -> str:

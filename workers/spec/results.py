@@ -1,11 +1,24 @@
 """What a finished job returns."""
 
+from importlib.metadata import version
 from typing import Annotated, Literal
 
 from pydantic import BaseModel, Field
 
 PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "gudhi")
 """Packages whose versions shape a result; every provenance records them."""
+
+
+def package_versions() -> dict[str, str]:
+    """Versions recorded in provenance and capabilities.
+
+    ``ripser`` names the Ripser build that reduced the filtration: the float64 one inside
+    gudhi, so its value is ``gudhi-<version>``.
+    """
+    versions = {name: version(name) for name in PROVENANCE_PACKAGES}
+    versions["ripser"] = f"gudhi-{versions['gudhi']}"
+    return versions
+
 
 Pair = tuple[float, float | None]
 """(birth, death); death null means the class never dies within the filtration."""

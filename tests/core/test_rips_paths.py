@@ -8,7 +8,7 @@ import pytest
 from ripser import ripser
 from scipy.spatial.distance import cdist
 
-from tests.core.test_rips import noisy_circle
+from tests.synthetic import noisy_circle
 from workers.core.neighbourhood import longest_neighbourhood_edge
 from workers.core.rips import enclosing_radius, loop_death_bound, rips_diagrams
 
@@ -22,7 +22,7 @@ def ripser_reference(points: np.ndarray, max_dim: int, thresh: float = np.inf) -
 
 
 def assert_same(ours: list[np.ndarray], reference: list[np.ndarray]) -> None:
-    # Both sides round the reduction to float32, hence the 1e-6 relative tolerance.
+    # ripser reduces in float32 (ours in float64), hence the 1e-6 relative tolerance.
     assert len(ours) == len(reference)
     for a, b in zip(ours, reference, strict=True):
         finite = np.concatenate([a[np.isfinite(a)], [1.0]])

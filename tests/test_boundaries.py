@@ -17,6 +17,9 @@ def test_service_runs_without_numerical_modules() -> None:
         "app = create_app(Settings(redis_url='redis://127.0.0.1:1/0'))\n"
         "assert app.test_client().get('/healthz').status_code == 200\n"
         "import service.cli, service.stack, service.wsgi\n"
+        "leaked = sorted(m for m, module in sys.modules.items() if module is not None\n"
+        "                and m.startswith('workers.') and not m.startswith('workers.spec'))\n"
+        "assert not leaked, f'service imports {leaked}; only workers.spec may be'\n"
     )
     completed = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert completed.returncode == 0, completed.stderr

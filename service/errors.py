@@ -1,0 +1,67 @@
+"""What can go wrong in the HTTP layer, as exceptions; ``service.problems`` maps them to HTTP.
+
+Tree::
+
+    ServiceError
+    ├── BodyNotJson          the body does not parse as JSON
+    ├── RequestInvalid       fields are wrong (carries one FieldError per culprit)
+    ├── JobNotFound          no such job for this owner
+    ├── JobHasNoResult       the job exists but has not succeeded
+    ├── JobAlreadyEnded      cancelling a job that has ended
+    └── NotReady             no Redis or no worker
+"""
+
+from workers.spec import FieldError
+
+__all__ = [
+    "BodyNotJson",
+    "JobAlreadyEnded",
+    "JobHasNoResult",
+    "JobNotFound",
+    "NotReady",
+    "RequestInvalid",
+    "ServiceError",
+]
+
+
+class ServiceError(Exception):
+    """Base of the errors the service raises on purpose; ``detail`` is shown to the client."""
+
+    def __init__(self, detail: str) -> None:
+        super().__init__(detail)
+        self.detail = detail
+
+
+class BodyNotJson(ServiceError):
+    pass
+
+
+class RequestInvalid(ServiceError):
+    def __init__(self, errors: list[FieldError]) -> None:
+        first = errors[0]
+        detail = f"{first.pointer or '/'}: {first.message}"
+        if len(errors) > 1:
+            detail += f" (and {len(errors) - 1} more)"
+        super().__init__(detail)
+        self.errors = errors
+
+
+class JobNotFound(ServiceError):
+    def __init__(self, job_id: str) -> None:
+        super().__init__(f"no job {job_id!r} (unknown, or its result has expired)")
+
+
+class JobHasNoResult(ServiceError):
+    def __init__(self, job_id: str, state: str) -> None:
+        super().__init__(f"job {job_id} is {state}; a result exists once it has succeeded")
+        self.state = state
+
+
+class JobAlreadyEnded(ServiceError):
+    def __init__(self, job_id: str, state: str) -> None:
+        super().__init__(f"job {job_id} is {state} and cannot be cancelled")
+        self.state = state
+
+
+class NotReady(ServiceError):
+    pass
