@@ -84,21 +84,23 @@ class JobQueue:
         )
         job_id = str(uuid.uuid4())
         keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)
-        self.redis.set(input_key(job_id), to_npy_bytes(points), ex=keep)
-        try:
-            return self.queue.enqueue(
+        # One MULTI/EXEC for the job and its input: no worker can see one without the other.
+        with self.redis.pipeline() as pipe:
+            job = self.queue.enqueue(
                 JOB_FUNCTION,
                 payload.model_dump(mode="json"),
                 job_id=job_id,
+                description=f"{request.filtration.type} on {points.shape[0]} x {points.shape[1]}",
                 job_timeout=int(self.settings.job_time_limit_s) + RQ_TIMEOUT_MARGIN_S,
                 result_ttl=self.settings.result_ttl_s,
                 failure_ttl=self.settings.result_ttl_s,
                 ttl=self.settings.queued_ttl_s,
                 meta={"owner": owner},
+                pipeline=pipe,  # RQ opens the transaction; the input joins it
             )
-        except RedisError:
-            self.redis.delete(input_key(job_id))
-            raise
+            pipe.set(input_key(job_id), to_npy_bytes(points), ex=keep)
+            pipe.execute()
+        return job
 
     def find(self, job_id: str, owner: str) -> Job:
         """The job ``job_id`` if it exists and belongs to ``owner``; JobNotFound otherwise."""

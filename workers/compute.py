@@ -23,7 +23,7 @@ from typing import Any
 from workers.core.errors import CoreError
 from workers.spec import JobPayload, Problem, failures
 
-__all__ = ["ComputeProcess", "JobAborted", "Handler"]
+__all__ = ["ComputeProcess", "JobAborted", "Handler", "problem_for"]
 
 log = logging.getLogger(__name__)
 
@@ -34,6 +34,17 @@ _PR_SET_PDEATHSIG = 1  # from <sys/prctl.h>
 
 POLL_INTERVAL_S = 0.05
 """How often a waiting worker looks for a cancel request; the result itself wakes it at once."""
+
+
+def problem_for(error: Exception) -> Problem:
+    """The problem a computation that raised ``error`` is reported with."""
+    if isinstance(error, CoreError):
+        return failures.invalid_parameters(error.message, error.field)
+    if isinstance(error, MemoryError):
+        return failures.out_of_memory()
+    # A bug: say so, with the traceback in the worker log.
+    log.error("computation failed\n%s", "".join(traceback.format_exception(error)))
+    return failures.internal_error()
 
 
 class JobAborted(Exception):
@@ -67,15 +78,8 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
             return
         try:
             reply: dict[str, Any] = {"result": handler(header, data)}
-        except CoreError as error:
-            reply = {"problem": failures.invalid_parameters(error.message, error.field)}
-        except MemoryError:
-            reply = {"problem": failures.out_of_memory()}
-        except Exception:  # a bug: report it as such, keep the child alive for the next job
-            log.error("job failed inside the compute process\n%s", traceback.format_exc())
-            reply = {"problem": failures.internal_error()}
-        if "problem" in reply:
-            reply["problem"] = reply["problem"].model_dump(mode="json", exclude_none=True)
+        except Exception as error:  # reported as the job's problem; the child lives on
+            reply = {"problem": problem_for(error).model_dump(mode="json", exclude_none=True)}
         connection.send_bytes(json.dumps(reply, allow_nan=False).encode("utf-8"))
 
 

@@ -12,7 +12,7 @@ import numpy as np
 from pydantic import ValidationError
 from rq import get_current_job
 
-from workers.compute import ComputeProcess, JobAborted
+from workers.compute import ComputeProcess, JobAborted, problem_for
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.spec import (
@@ -88,8 +88,14 @@ class JobFailed(RuntimeError):
     """Raised so RQ marks the job failed; the problem object is in ``job.meta['problem']``."""
 
 
-def _checked_input(data: object, payload: JobPayload) -> bytes:
-    """The stored bytes if they are the array the service recorded, else JobAborted."""
+INLINE_MAX_POINTS = 150
+"""Rips jobs up to this many points (H0/H1, no subsample) run in the worker itself: they take
+at most ~20 ms, far below any time limit, so the compute child's round trip would only
+add overhead."""
+
+
+def _checked_input(data: object, payload: JobPayload) -> np.ndarray:
+    """The stored array if it is the one the service recorded, else JobAborted."""
     if not isinstance(data, bytes):
         raise JobAborted(failures.input_missing())
     try:
@@ -98,7 +104,16 @@ def _checked_input(data: object, payload: JobPayload) -> bytes:
         raise JobAborted(failures.input_corrupt()) from None
     if tuple(points.shape) != payload.input.shape or array_sha256(points) != payload.input.sha256:
         raise JobAborted(failures.input_corrupt())
-    return data
+    return points.astype(np.float64, copy=False)
+
+
+def _runs_inline(payload: JobPayload) -> bool:
+    filtration = payload.filtration
+    return (
+        payload.input.shape[0] <= INLINE_MAX_POINTS
+        and filtration.max_dim <= 1
+        and filtration.subsample is None
+    )
 
 
 def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
@@ -112,20 +127,31 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
             payload = JobPayload.model_validate(raw_payload)
         except ValidationError as error:
             raise JobAborted(failures.payload_invalid(f"{error.error_count()} errors")) from None
-        if connection.exists(cancel_key(job.id)):  # cancelled while a worker was taking it
+        # One round trip: was it cancelled while a worker was taking it, and its input
+        # (taken out of Redis at once: from here on it lives in this process only).
+        pipe = connection.pipeline()
+        pipe.exists(cancel_key(job.id))
+        pipe.getdel(input_key(job.id))
+        cancelled, stored = pipe.execute()
+        if cancelled:
             raise JobAborted(failures.cancelled())
-        data = _checked_input(connection.get(input_key(job.id)), payload)
+        points = _checked_input(stored, payload)
+        if _runs_inline(payload):
+            try:
+                return execute(payload, points, job_id=job.id)
+            except Exception as error:
+                raise JobAborted(problem_for(error)) from None
+        assert isinstance(stored, bytes)  # _checked_input refused anything else
         return compute_process().run(
             job_id=job.id,
             payload=payload,
-            input_bytes=data,
+            input_bytes=stored,
             time_limit_s=payload.time_limit_s,
             should_stop=lambda: bool(connection.exists(cancel_key(job.id))),
         )
     except JobAborted as aborted:
+        connection.delete(input_key(job.id))  # if the payload was refused before GETDEL
         problem: Problem = aborted.problem
         job.meta["problem"] = problem.model_dump(mode="json", exclude_none=True)
         job.save_meta()
         raise JobFailed(problem.detail or problem.title) from None
-    finally:
-        connection.delete(input_key(job.id))

@@ -25,7 +25,14 @@ def build_worker(redis_url: str, queue_name: str, name: str | None = None) -> Si
     connection = Redis.from_url(redis_url)
     queue = Queue(queue_name, connection=connection, serializer=JSONSerializer)
     worker_name = name or f"lacuna-{socket.gethostname()}-{uuid.uuid4().hex[:8]}"
-    return SimpleWorker([queue], connection=connection, serializer=JSONSerializer, name=worker_name)
+    # log_job_description=False: the description of every job is the whole payload.
+    return SimpleWorker(
+        [queue],
+        connection=connection,
+        serializer=JSONSerializer,
+        name=worker_name,
+        log_job_description=False,
+    )
 
 
 def main(argv: list[str] | None = None) -> int:

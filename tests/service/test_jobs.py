@@ -155,7 +155,9 @@ def test_time_limit_stops_native_code(redis_url: str) -> None:
         assert status["problem"]["type"] == "urn:lacuna:problem:time-limit"
         assert "time limit" in status["problem"]["detail"]
         assert time.monotonic() - started < 6
-        follow = client.post("/v1/jobs", json=job_body(), headers={"Prefer": "wait=10"})
+        # 200 points: above the size that runs inline, so the follow-up needs a compute child.
+        follow_up = job_body(np.random.default_rng(1).uniform(size=(200, 2)).tolist())
+        follow = client.post("/v1/jobs", json=follow_up, headers={"Prefer": "wait=10"})
         assert follow.status_code == 200
         # The overrunning child was killed and reaped: the worker has one compute child,
         # the fresh one that ran the follow-up job, and it is idle.

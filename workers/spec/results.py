@@ -1,5 +1,6 @@
 """What a finished job returns."""
 
+from functools import cache
 from importlib.metadata import version
 from typing import Annotated, Literal
 
@@ -9,15 +10,20 @@ PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "gudhi")
 """Packages whose versions shape a result; every provenance records them."""
 
 
+@cache  # reading package metadata costs ~5 ms, and a process never changes its packages
+def _installed_versions() -> tuple[tuple[str, str], ...]:
+    versions = {name: version(name) for name in PROVENANCE_PACKAGES}
+    versions["ripser"] = f"gudhi-{versions['gudhi']}"
+    return tuple(versions.items())
+
+
 def package_versions() -> dict[str, str]:
     """Versions recorded in provenance and capabilities.
 
     ``ripser`` names the Ripser build that reduced the filtration: the float64 one inside
     gudhi, so its value is ``gudhi-<version>``.
     """
-    versions = {name: version(name) for name in PROVENANCE_PACKAGES}
-    versions["ripser"] = f"gudhi-{versions['gudhi']}"
-    return versions
+    return dict(_installed_versions())
 
 
 Pair = tuple[float, float | None]
