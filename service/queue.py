@@ -157,13 +157,21 @@ class JobQueue:
                 return value
         raise JobHasNoResult(job.id, state.value)
 
-    def wait(self, job: Job, seconds: int) -> None:
-        """Block until an unfinished job ends (success or failure), at most ``seconds``."""
+    def wait(self, job: Job, seconds: int) -> dict[str, Any] | None:
+        """Block until an unfinished job ends, at most ``seconds``.
+
+        Returns the result when the job succeeded during the wait (read from the very
+        answer that woke the wait); otherwise None, with ``job`` refreshed.
+        """
         if seconds <= 0 or self.state(job) not in _UNFINISHED:
-            return
-        waiting = Job.fetch(job.id, connection=self._waiting_redis, serializer=JSONSerializer)
-        waiting.latest_result(timeout=seconds)
+            return None
+        waiting = Job(job.id, connection=self._waiting_redis, serializer=JSONSerializer)
+        latest = waiting.latest_result(timeout=seconds)
+        if latest is not None and latest.type == Result.Type.SUCCESSFUL:
+            value: dict[str, Any] = latest.return_value or {}
+            return value
         self._refresh(job)
+        return None
 
     def cancel(self, job: Job) -> None:
         """Cancel a queued or running job; JobAlreadyEnded once it has ended."""

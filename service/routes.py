@@ -56,9 +56,9 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
         raise RequestInvalid(errors)
     job = state.queue.submit(job_request, owner_of(request))
     headers = {"Location": f"/v1/jobs/{job.id}"}
-    state.queue.wait(job, wait)
-    if wait and state.queue.state(job) is JobState.succeeded:
-        return jsonify(state.queue.result(job)), 200, headers
+    result = state.queue.wait(job, wait)
+    if result is not None:
+        return jsonify(result), 200, headers
     return jsonify(state.queue.status(job).model_dump(mode="json")), 202, headers
 
 
@@ -76,8 +76,7 @@ def job_result(job_id: str) -> Response:
     """Result of a succeeded job (409 while unfinished); ``Prefer: wait=N`` waits first."""
     queue = _state().queue
     job = queue.find(job_id, owner_of(request))
-    queue.wait(job, _requested_wait())
-    return jsonify(queue.result(job))
+    return jsonify(queue.wait(job, _requested_wait()) or queue.result(job))
 
 
 @v1.delete("/jobs/<job_id>")
