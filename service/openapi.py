@@ -76,7 +76,9 @@ def _paths() -> dict[str, Any]:
                         "content": _json("DiagramResult"),
                     },
                     "202": {
-                        "description": "Queued; poll the Location header.",
+                        "description": "Accepted; not succeeded within any Prefer: wait "
+                        "(queued, running, failed or cancelled: see status and problem). "
+                        "Poll the Location header.",
                         "headers": {"Location": {"schema": {"type": "string"}}},
                         "content": _json("JobStatus"),
                     },
