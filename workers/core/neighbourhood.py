@@ -17,6 +17,9 @@ __all__ = ["longest_neighbourhood_edge"]
 WITNESS_MARGIN = 1e-12
 """Relative margin by which a witness must be inside the lune (float64 norms differ by ulps)."""
 
+NEAR_WITNESSES = 8
+"""Nearest neighbours of each end tried as witnesses for all edges at once."""
+
 
 def longest_neighbourhood_edge(points: np.ndarray) -> float | None:
     """Length of the longest relative-neighbourhood-graph edge of ``points`` (n, d), d <= 3.
@@ -34,22 +37,32 @@ def longest_neighbourhood_edge(points: np.ndarray) -> float | None:
         return None
     if len(triangulation.coplanar):  # some points are not vertices: the edge set is incomplete
         return None
-    simplices = triangulation.simplices
-    pairs = [simplices[:, [a, b]] for a in range(dim + 1) for b in range(a + 1, dim + 1)]
-    edges = np.unique(np.sort(np.concatenate(pairs), axis=1), axis=0)
+    starts, neighbours = triangulation.vertex_neighbor_vertices  # the edges, in CSR form
+    ends = np.repeat(np.arange(n), np.diff(starts))
+    edges = np.column_stack([ends, neighbours])[ends < neighbours]
     lengths = np.linalg.norm(points[edges[:, 0]] - points[edges[:, 1]], axis=1)
+    order = np.argsort(-lengths, kind="stable")
+    edges, lengths = edges[order], lengths[order]
+    # Witnesses must be clearly inside: a point lost to rounding only makes L larger,
+    # which keeps it an upper bound; a false witness could make it too small.
+    strictly = lengths * (1 - WITNESS_MARGIN)
     tree = cKDTree(points)
-    for index in np.argsort(-lengths, kind="stable"):
-        u, v = edges[index]
-        length = lengths[index]
-        near_u = np.asarray(tree.query_ball_point(points[u], length), dtype=np.intp)
-        near_u = near_u[(near_u != u) & (near_u != v)]
-        # Witnesses must be clearly inside: a point lost to rounding only makes L larger,
-        # which keeps it an upper bound; a false witness could make it too small.
-        strictly = length * (1 - WITNESS_MARGIN)
-        in_lune = (np.linalg.norm(points[near_u] - points[u], axis=1) < strictly) & (
-            np.linalg.norm(points[near_u] - points[v], axis=1) < strictly
+    # Most edges that are not in the graph have a witness among the few nearest neighbours
+    # of their ends: test those for all edges at once, then only the rest one by one.
+    _, near = tree.query(points, k=min(NEAR_WITNESSES + 1, n))
+    u, v = edges[:, 0], edges[:, 1]
+    candidates = np.concatenate([near[u], near[v]], axis=1)
+    to_u = np.linalg.norm(points[candidates] - points[u][:, None, :], axis=2)
+    to_v = np.linalg.norm(points[candidates] - points[v][:, None, :], axis=2)
+    inside = (to_u < strictly[:, None]) & (to_v < strictly[:, None])
+    inside &= (candidates != u[:, None]) & (candidates != v[:, None])
+    for index in np.flatnonzero(~inside.any(axis=1)):  # longest first
+        a, b = edges[index]
+        near_a = np.asarray(tree.query_ball_point(points[a], lengths[index]), dtype=np.intp)
+        near_a = near_a[(near_a != a) & (near_a != b)]
+        in_lune = (np.linalg.norm(points[near_a] - points[a], axis=1) < strictly[index]) & (
+            np.linalg.norm(points[near_a] - points[b], axis=1) < strictly[index]
         )
         if not in_lune.any():
-            return float(length)
+            return float(lengths[index])
     return 0.0
