@@ -14,38 +14,13 @@ import requests
 from redis import Redis
 
 from tests.conftest import E2E_DB, with_database
+from tests.processes import descendants, running
 from tests.synthetic import HEXAGON, free_port
 
 pytestmark = pytest.mark.e2e
 
 LACUNA = str(Path(sys.executable).with_name("lacuna"))
 JOB = {"input": {"type": "points", "points": HEXAGON}, "filtration": {"type": "rips", "max_dim": 2}}
-
-
-def descendants(pid: int) -> set[int]:
-    """Every process below ``pid``, from /proc (children run in their own sessions)."""
-    parents: dict[int, int] = {}
-    for entry in Path("/proc").iterdir():
-        if entry.name.isdigit():
-            try:
-                fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
-            except OSError:
-                continue
-            parents[int(entry.name)] = int(fields[1])
-    found: set[int] = set()
-    frontier = {pid}
-    while frontier:
-        frontier = {child for child, parent in parents.items() if parent in frontier} - found
-        found |= frontier
-    return found
-
-
-def running(pid: int) -> bool:
-    try:
-        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
-    except OSError:
-        return False
-    return state != "Z"
 
 
 def wait_ready(base: str, workers: int = 1, seconds: float = 60) -> None:

@@ -4,7 +4,6 @@ import math
 import subprocess
 import time
 import uuid
-from pathlib import Path
 from typing import Any
 
 import numpy as np
@@ -15,6 +14,7 @@ from rq.serializers import JSONSerializer
 
 from service.app import create_app
 from service.settings import Settings
+from tests.processes import children_of, process_state
 from tests.service.conftest import start_worker, stop_worker
 from tests.synthetic import HEXAGON
 from workers.jobs import execute
@@ -166,22 +166,3 @@ def test_time_limit_stops_native_code(redis_url: str) -> None:
         assert process_state(children[0]) in {"S", "I"}
     finally:
         stop_worker(worker)
-
-
-def children_of(pid: int) -> list[int]:
-    """Direct children of ``pid``, from /proc (Linux)."""
-    found = []
-    for entry in Path("/proc").iterdir():
-        if entry.name.isdigit():
-            try:
-                fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
-            except OSError:
-                continue
-            if int(fields[1]) == pid:
-                found.append(int(entry.name))
-    return found
-
-
-def process_state(pid: int) -> str:
-    """One-letter state from /proc/<pid>/stat: R running, S sleeping, Z zombie..."""
-    return Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]

@@ -7,6 +7,7 @@ from collections.abc import Iterator
 import numpy as np
 import pytest
 
+from tests.processes import running
 from workers.compute import ComputeProcess, JobAborted
 from workers.jobs import execute_bytes
 from workers.spec import JobPayload
@@ -46,15 +47,6 @@ def run(compute: ComputeProcess, points: np.ndarray, max_dim: int, limit: float)
     )
 
 
-def alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    with open(f"/proc/{pid}/stat") as stat:  # a zombie is not running either
-        return stat.read().split()[2] != "Z"
-
-
 def test_result_comes_back_over_the_pipe(compute: ComputeProcess) -> None:
     # 3-4-5 right triangle (Pythagoras): the two points merge at distance 5.
     points = np.array([[0.0, 0.0], [3.0, 4.0]])
@@ -71,7 +63,7 @@ def test_time_limit_kills_the_native_loop(compute: ComputeProcess) -> None:
         run(compute, heavy, max_dim=2, limit=0.5)
     assert time.monotonic() - started < 2
     assert aborted.value.problem.type == "urn:lacuna:problem:time-limit"
-    assert not alive(old_pid)  # SIGKILLed, not left computing in the background
+    assert not running(old_pid)  # SIGKILLed, not left computing in the background
     assert compute.pid is None  # the next job forks a fresh child
     small = np.array([[0.0], [2.0]])  # on a line, the two points merge at distance 2
     assert run(compute, small, max_dim=0, limit=10)["diagrams"][0]["pairs"][0] == [0.0, 2.0]
