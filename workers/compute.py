@@ -1,10 +1,10 @@
 """A long-lived child process that does the numerical work of one worker, and can be killed.
 
 Why: a time limit raised as a Python exception (SIGALRM, a timer thread) cannot interrupt
-native code such as the C++ reduction loop, and forking a fresh process per job costs more than a
-small job itself. So each worker forks one child *after* the heavy imports, hands it jobs over
-a pipe, and on overrun or cancellation kills it with SIGKILL and forks a new one (cheap, the
-imports are already in memory).
+native code such as the C++ reduction loop, and forking a fresh process per job costs more
+than a small job itself. So each worker forks one child *after* the heavy imports, hands it
+jobs over a pipe, and on overrun or cancellation kills it with SIGKILL; the next job forks a
+new one (cheap: the imports are already in memory).
 
 The pipe carries JSON and .npy bytes only; nothing is pickled.
 """
