@@ -11,7 +11,8 @@ import pytest
 from flask import Flask
 from flask.testing import FlaskClient
 from redis import Redis
-from rq import Worker
+from rq import Queue, Worker
+from rq.serializers import JSONSerializer
 
 from service.app import create_app
 from service.settings import Settings
@@ -53,19 +54,18 @@ def start_worker(redis_url: str, queue: str) -> subprocess.Popen[bytes]:
     )
     connection = Redis.from_url(redis_url)
     deadline = time.monotonic() + 30
-    while Worker.count(connection=connection, queue=_queue(connection, queue)) < 1:
+    while (
+        Worker.count(
+            connection=connection,
+            queue=Queue(queue, connection=connection, serializer=JSONSerializer),
+        )
+        < 1
+    ):
         if process.poll() is not None or time.monotonic() > deadline:
             process.kill()
             raise RuntimeError("worker did not start")
         time.sleep(0.05)
     return process
-
-
-def _queue(connection: Redis, name: str) -> object:
-    from rq import Queue
-    from rq.serializers import JSONSerializer
-
-    return Queue(name, connection=connection, serializer=JSONSerializer)
 
 
 def stop_worker(process: subprocess.Popen[bytes]) -> None:
