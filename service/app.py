@@ -8,6 +8,7 @@ from redis import Redis
 
 from service import problems
 from service.extension import ServiceState, capabilities_of, limits_of
+from service.feature_specs import FeatureSpecStore
 from service.openapi import openapi_document
 from service.queue import JobQueue
 from service.routes import health, v1
@@ -43,6 +44,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     app.extensions["lacuna"] = ServiceState(
         settings=settings,
         queue=JobQueue(redis, waiting_redis, settings),
+        feature_specs=FeatureSpecStore(redis),
         limits=limits,
         capabilities=capabilities_of(limits),
         openapi=openapi_document(),

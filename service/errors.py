@@ -8,6 +8,7 @@ Tree::
     ├── JobNotFound          no such job for this owner
     ├── JobHasNoResult       the job exists but has not succeeded
     ├── JobAlreadyEnded      cancelling a job that has ended
+    ├── FeatureSpecNotFound  no feature spec registered under that id
     └── NotReady             no Redis or no worker
 """
 
@@ -15,6 +16,7 @@ from workers.spec import FieldError
 
 __all__ = [
     "BodyNotJson",
+    "FeatureSpecNotFound",
     "JobAlreadyEnded",
     "JobHasNoResult",
     "JobNotFound",
@@ -61,6 +63,11 @@ class JobAlreadyEnded(ServiceError):
     def __init__(self, job_id: str, state: str) -> None:
         super().__init__(f"job {job_id} is {state} and cannot be cancelled")
         self.state = state
+
+
+class FeatureSpecNotFound(ServiceError):
+    def __init__(self, spec_id: str) -> None:
+        super().__init__(f"no feature spec is registered under {spec_id!r}")
 
 
 class NotReady(ServiceError):

@@ -3,10 +3,22 @@
 from dataclasses import dataclass
 from typing import Any
 
+from service.feature_specs import FeatureSpecStore
 from service.queue import JobQueue
 from service.settings import Settings
-from workers.spec import SCHEMA_VERSION, Capabilities, Filtration, Input, Limits
+from workers.spec import (
+    NPY_MEDIA_TYPE,
+    SCHEMA_VERSION,
+    Capabilities,
+    FeatureSpec,
+    Filtration,
+    Input,
+    Limits,
+)
+from workers.spec.distances import DIAGRAM_METRICS, VECTOR_METRICS
+from workers.spec.features import FEATURE_SPEC_VERSION
 from workers.spec.inputs import MAX_COORDINATES
+from workers.spec.requests import MAX_FEATURES
 from workers.spec.results import package_versions
 from workers.spec.tags import members_by_tag
 
@@ -21,6 +33,9 @@ def limits_of(settings: Settings) -> Limits:
         max_body_bytes=settings.max_body_bytes,
         max_dim=settings.max_dim,
         max_coordinates=MAX_COORDINATES,
+        max_features=MAX_FEATURES,
+        max_vector_length=settings.max_vector_length,
+        max_distance_count=settings.max_distance_count,
         job_time_limit_s=settings.job_time_limit_s,
         result_ttl_s=settings.result_ttl_s,
         max_wait_s=settings.max_wait_s,
@@ -28,12 +43,16 @@ def limits_of(settings: Settings) -> Limits:
 
 
 def capabilities_of(limits: Limits) -> Capabilities:
-    """Answer of /v1/capabilities: the input and filtration types come from the spec unions."""
+    """Answer of /v1/capabilities: input, filtration and feature types come from the unions."""
     return Capabilities(
         schema_version=SCHEMA_VERSION,
         input_types=list(members_by_tag(Input)),
         filtrations=list(members_by_tag(Filtration)),
+        features=list(members_by_tag(FeatureSpec)),
+        feature_spec_version=FEATURE_SPEC_VERSION,
+        metrics=[*DIAGRAM_METRICS, *VECTOR_METRICS],
         value_convention="edge_length",
+        binary_media_type=NPY_MEDIA_TYPE,
         limits=limits,
         versions=package_versions(),
     )
@@ -45,6 +64,7 @@ class ServiceState:
 
     settings: Settings
     queue: JobQueue
+    feature_specs: FeatureSpecStore
     limits: Limits
     capabilities: Capabilities
     openapi: dict[str, Any]

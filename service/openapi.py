@@ -11,20 +11,46 @@ from typing import Any
 from pydantic import BaseModel
 from pydantic.json_schema import models_json_schema
 
-from workers.spec import Capabilities, DiagramResult, JobRequest, JobStatus, Problem
+from workers.spec import (
+    NPY_MEDIA_TYPE,
+    Capabilities,
+    DistanceRequest,
+    DistanceResult,
+    FeatureSpecAnswer,
+    JobRequest,
+    JobResult,
+    JobStatus,
+    Problem,
+)
+from workers.spec.features import FeatureSpecBody
 
 __all__ = ["openapi_document", "openapi_text"]
 
-_MODELS: list[type[BaseModel]] = [JobRequest, JobStatus, DiagramResult, Problem, Capabilities]
+_REQUESTS: list[type[BaseModel]] = [JobRequest, DistanceRequest, FeatureSpecBody]
+"""Bodies clients send: their schemas describe what is accepted (validation mode)."""
+
+_MODELS: list[type[BaseModel]] = [
+    *_REQUESTS,
+    JobStatus,
+    JobResult,
+    DistanceResult,
+    FeatureSpecAnswer,
+    Problem,
+    Capabilities,
+]
 
 _DESCRIPTION = """\
-Persistent homology as a service: post a point set, get persistence diagrams back through a
-job queue.
+Persistent homology as a service: post a point set (or diagrams you have), get persistence
+diagrams, fixed-length feature vectors under versioned feature specs, and distances between
+diagrams back through a job queue.
 
 Conventions: Vietoris-Rips values are edge lengths (diameters), not ball radii; a death of
 null means the class never dies within the filtration; pairs are sorted by (birth, death).
 Arithmetic is float64 throughout: values are exact pairwise distances of the input points.
 Errors are RFC 9457 problem details; 422 answers list every offending field as a JSON Pointer.
+
+Binary arrays (feature vectors, distance matrices) are NumPy .npy bytes, media type
+application/x-npy, little-endian float64 in C order; ask for them with that Accept header.
 
 For research use only: results are not for diagnosis or treatment decisions.
 """
@@ -32,6 +58,32 @@ For research use only: results are not for diagnosis or treatment decisions.
 
 def _json(schema: str) -> dict[str, Any]:
     return {"application/json": {"schema": {"$ref": f"#/components/schemas/{schema}"}}}
+
+
+def _result(description: str) -> dict[str, Any]:
+    """A result in JSON (a job's or a distance matrix's) or, on request, as .npy bytes."""
+    return {
+        "description": description,
+        "content": {
+            "application/json": {
+                "schema": {
+                    "oneOf": [
+                        {"$ref": "#/components/schemas/JobResult"},
+                        {"$ref": "#/components/schemas/DistanceResult"},
+                    ]
+                }
+            },
+            NPY_MEDIA_TYPE: {
+                "schema": {
+                    "type": "string",
+                    "contentMediaType": NPY_MEDIA_TYPE,
+                    "description": "With Accept: application/x-npy. A job: its concatenated "
+                    "feature vector (vector_length,). A distance matrix: (N, N), inf where "
+                    "classes that never die cannot be matched, NaN where cosine is undefined.",
+                },
+            },
+        },
+    }
 
 
 def _problem(description: str) -> dict[str, Any]:
@@ -71,10 +123,7 @@ def _paths() -> dict[str, Any]:
                 "parameters": [_PREFER_WAIT],
                 "requestBody": {"required": True, "content": _json("JobRequest")},
                 "responses": {
-                    "200": {
-                        "description": "Finished within Prefer: wait.",
-                        "content": _json("DiagramResult"),
-                    },
+                    "200": _result("Finished within Prefer: wait."),
                     "202": {
                         "description": "Accepted; not succeeded within any Prefer: wait "
                         "(queued, running, failed or cancelled: see status and problem). "
@@ -125,12 +174,80 @@ def _paths() -> dict[str, Any]:
                 "operationId": "getResult",
                 "parameters": [_PREFER_WAIT],
                 "responses": {
-                    "200": {"description": "The result.", "content": _json("DiagramResult")},
+                    "200": _result("The result."),
+                    "406": _problem("Asked for application/x-npy; this result has no array."),
                     "404": _NOT_FOUND,
                     "409": _problem("The job has not succeeded (yet)."),
                     "503": _UNAVAILABLE,
                 },
             },
+        },
+        "/v1/feature-specs": {
+            "post": {
+                "summary": "Check and register a feature spec",
+                "description": "Answers the canonical form and its spec_id (SHA-256 of the "
+                "canonical JSON). Jobs may then name the spec by id alone.",
+                "operationId": "registerFeatureSpec",
+                "requestBody": {"required": True, "content": _json("FeatureSpecBody")},
+                "responses": {
+                    "200": {
+                        "description": "Registered (again, if it already was).",
+                        "headers": {"Location": {"schema": {"type": "string"}}},
+                        "content": _json("FeatureSpecAnswer"),
+                    },
+                    "400": _problem("The body is not JSON."),
+                    "415": _problem("The Content-Type is not application/json."),
+                    "422": _problem("The spec is invalid; `errors` points at each field."),
+                    "503": _UNAVAILABLE,
+                },
+            }
+        },
+        "/v1/feature-specs/{spec_id}": {
+            "parameters": [
+                {
+                    "name": "spec_id",
+                    "in": "path",
+                    "required": True,
+                    "schema": {"type": "string", "pattern": "^[0-9a-f]{64}$"},
+                }
+            ],
+            "get": {
+                "summary": "A registered feature spec",
+                "operationId": "getFeatureSpec",
+                "responses": {
+                    "200": {"description": "The spec.", "content": _json("FeatureSpecAnswer")},
+                    "404": _problem("No spec is registered under this id."),
+                    "503": _UNAVAILABLE,
+                },
+            },
+        },
+        "/v1/distances": {
+            "post": {
+                "summary": "Distance matrix between diagrams or feature vectors",
+                "description": "Runs as a job. Matrices of at most `inline_distance_pairs` "
+                "pairs are waited for (up to the wait cap) and answered with 200; larger ones "
+                "answer 202 with the job, whose status shows progress, unless Prefer: wait "
+                "says otherwise.",
+                "operationId": "submitDistances",
+                "parameters": [_PREFER_WAIT],
+                "requestBody": {"required": True, "content": _json("DistanceRequest")},
+                "responses": {
+                    "200": _result("The matrix, finished in time."),
+                    "202": {
+                        "description": "Accepted; poll the Location header.",
+                        "headers": {"Location": {"schema": {"type": "string"}}},
+                        "content": _json("JobStatus"),
+                    },
+                    "400": _problem("The body is not JSON."),
+                    "413": _problem("The body is above the size limit."),
+                    "415": _problem("The Content-Type is not application/json."),
+                    "422": _problem(
+                        "The request is invalid, or a job id is unknown, unfinished or failed; "
+                        "`errors` points at each field."
+                    ),
+                    "503": _UNAVAILABLE,
+                },
+            }
         },
         "/v1/capabilities": {
             "get": {
@@ -173,7 +290,7 @@ def _paths() -> dict[str, Any]:
 def openapi_document() -> dict[str, Any]:
     """The document as a dict."""
     _, top = models_json_schema(
-        [(model, "validation" if model is JobRequest else "serialization") for model in _MODELS],
+        [(model, "validation" if model in _REQUESTS else "serialization") for model in _MODELS],
         ref_template="#/components/schemas/{model}",
     )
     return {

@@ -12,6 +12,7 @@ from werkzeug.exceptions import HTTPException
 
 from service.errors import (
     BodyNotJson,
+    FeatureSpecNotFound,
     JobAlreadyEnded,
     JobHasNoResult,
     JobNotFound,
@@ -19,7 +20,8 @@ from service.errors import (
     RequestInvalid,
     ServiceError,
 )
-from workers.spec import FieldError, JobRequest, Problem
+from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
+from workers.spec.features import FeatureSpecBody
 from workers.spec.problems import PROBLEM_TYPE
 from workers.spec.tags import discriminated_members, members_by_tag, strip_optional
 
@@ -34,10 +36,13 @@ _KINDS: dict[type[ServiceError], tuple[int, str, str]] = {
     JobNotFound: (404, "job-not-found", "Job not found"),
     JobHasNoResult: (409, "job-not-finished", "Job has no result"),
     JobAlreadyEnded: (409, "job-ended", "Job already ended"),
+    FeatureSpecNotFound: (404, "feature-spec-not-found", "Feature spec not found"),
     NotReady: (503, "not-ready", "Not ready"),
 }
 
-_REQUEST_MODELS: dict[str, type[BaseModel]] = {JobRequest.__name__: JobRequest}
+_REQUEST_MODELS: dict[str, type[BaseModel]] = {
+    model.__name__: model for model in (JobRequest, DistanceRequest, FeatureSpecBody)
+}
 """Models whose ValidationError is the client's fault (a 422); any other is a bug (a 500)."""
 
 
@@ -75,8 +80,9 @@ def pointer_of(location: tuple[int | str, ...], model: type[BaseModel]) -> str:
     node: Any = model
     tags: dict[str, Any] | None = None
     for step in location:
-        if tags is not None:
-            node, tags = tags.get(str(step)), None
+        if tags is not None:  # this step is a union's tag, not a key of the body
+            node = tags.get(str(step))
+            tags = discriminated_members(node) if node is not None else None
             continue
         tokens.append(str(step).replace("~", "~0").replace("/", "~1"))
         node, tags = _child(node, step)

@@ -9,7 +9,6 @@ import uuid
 from datetime import UTC, datetime
 from typing import Any
 
-import numpy as np
 from redis import Redis
 from redis.exceptions import RedisError
 from rq import Queue, Worker
@@ -19,15 +18,22 @@ from rq.job import JobStatus as RQStatus
 from rq.results import Result
 from rq.serializers import JSONSerializer
 
-from service.errors import JobAlreadyEnded, JobHasNoResult, JobNotFound, NotReady
+from service.errors import (
+    JobAlreadyEnded,
+    JobHasNoResult,
+    JobNotFound,
+    NotReady,
+    RequestInvalid,
+)
 from service.settings import Settings
-from workers.spec import SCHEMA_VERSION, JobPayload, JobRequest, JobState, JobStatus
+from service.submissions import Submission, stored_input
+from workers.spec import SCHEMA_VERSION, FieldError, JobPayload, JobState, JobStatus, Progress
 from workers.spec.arrays import array_sha256, canonical_sha256, to_npy_bytes
 from workers.spec.failures import worker_lost
-from workers.spec.jobs import JOB_FUNCTION, StoredInput, cancel_key, input_key
+from workers.spec.jobs import JOB_FUNCTION, cancel_key, input_key
 from workers.spec.problems import CANCELLED_TYPE
 
-__all__ = ["JobQueue"]
+__all__ = ["Job", "JobQueue"]  # Job: the handle routes get from and give back to JobQueue
 
 RQ_TIMEOUT_MARGIN_S = 60
 """RQ's own job timeout is the time limit plus this: a backstop behind the worker's SIGKILL."""
@@ -64,22 +70,16 @@ class JobQueue:
         self.settings = settings
         self.queue = Queue(settings.queue, connection=redis, serializer=JSONSerializer)
 
-    def submit(self, request: JobRequest, owner: str) -> Job:
+    def submit(self, submission: Submission, owner: str) -> Job:
         """Store the input array next to the job and enqueue ``workers.jobs.run``."""
-        points = np.asarray(request.input.points, dtype=np.float64)
-        input_sha = array_sha256(points)
-        described = request.model_dump(mode="json")
-        described["input"]["points"] = {"sha256": input_sha}
+        input_sha = array_sha256(submission.array)
         payload = JobPayload(
             schema_version=SCHEMA_VERSION,
-            input=StoredInput(
-                type=request.input.type,
-                shape=(points.shape[0], points.shape[1]),
-                sha256=input_sha,
-                units=request.input.units,
+            input=stored_input(submission, input_sha),
+            task=submission.task,
+            request_sha256=canonical_sha256(
+                {"request": submission.described, "input_sha256": input_sha}
             ),
-            filtration=request.filtration,
-            request_sha256=canonical_sha256(described),
             time_limit_s=self.settings.job_time_limit_s,
         )
         job_id = str(uuid.uuid4())
@@ -90,7 +90,7 @@ class JobQueue:
                 JOB_FUNCTION,
                 payload.model_dump(mode="json"),
                 job_id=job_id,
-                description=f"{request.filtration.type} on {points.shape[0]} x {points.shape[1]}",
+                description=submission.description,
                 job_timeout=int(self.settings.job_time_limit_s) + RQ_TIMEOUT_MARGIN_S,
                 result_ttl=self.settings.result_ttl_s,
                 failure_ttl=self.settings.result_ttl_s,
@@ -98,7 +98,7 @@ class JobQueue:
                 meta={"owner": owner},
                 pipeline=pipe,  # RQ opens the transaction; the input joins it
             )
-            pipe.set(input_key(job_id), to_npy_bytes(points), ex=keep)
+            pipe.set(input_key(job_id), to_npy_bytes(submission.array), ex=keep)
             pipe.execute()
         return job
 
@@ -115,6 +115,20 @@ class JobQueue:
         if job.meta.get("owner") != owner:
             raise JobNotFound(job_id)
         return job
+
+    def results_of(self, job_ids: list[str], owner: str, pointer: str) -> list[dict[str, Any]]:
+        """Results of succeeded jobs, in order; RequestInvalid pointing at each that is
+        unknown, unfinished or failed (``pointer`` is where the ids sit in the body)."""
+        results: list[dict[str, Any]] = []
+        errors: list[FieldError] = []
+        for index, job_id in enumerate(job_ids):
+            try:
+                results.append(self.result(self.find(job_id, owner)))
+            except (JobNotFound, JobHasNoResult) as error:
+                errors.append(FieldError(pointer=f"{pointer}/{index}", message=error.detail))
+        if errors:
+            raise RequestInvalid(errors)
+        return results
 
     def _refresh(self, job: Job) -> None:
         try:
@@ -137,9 +151,11 @@ class JobQueue:
         links = {"self": f"/v1/jobs/{job.id}"}
         if state is JobState.succeeded:
             links["result"] = f"/v1/jobs/{job.id}/result"
+        progress = job.meta.get("progress")
         return JobStatus(
             job_id=job.id,
             status=state,
+            progress=Progress.model_validate(progress) if progress else None,
             created_at=_utc(job.created_at),
             started_at=_utc(job.started_at),
             ended_at=_utc(job.ended_at),

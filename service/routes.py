@@ -5,12 +5,16 @@ import re
 from typing import Any
 
 from flask import Blueprint, Response, current_app, jsonify, request
-from werkzeug.exceptions import UnsupportedMediaType
+from werkzeug.exceptions import NotAcceptable, UnsupportedMediaType
 
 from service.auth import owner_of
-from service.errors import BodyNotJson, RequestInvalid
+from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
+from service.errors import BodyNotJson, FeatureSpecNotFound, RequestInvalid
 from service.extension import ServiceState
-from workers.spec import JobRequest, JobState
+from service.queue import Job
+from service.submissions import distance_submission, job_submission
+from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
+from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_of
 
 __all__ = ["v1", "health"]
 
@@ -18,6 +22,8 @@ v1 = Blueprint("v1", __name__, url_prefix="/v1")
 health = Blueprint("health", __name__)
 
 # RFC 7240 preference "wait=N"; at most 6 digits, so an absurd value cannot cost a parse.
+_SPEC_ID = re.compile("[0-9a-f]{64}")
+
 _WAIT = re.compile(r"(?:^|[,;\s])wait\s*=\s*\"?(\d{1,6})\"?(?![\d])", re.IGNORECASE)
 
 
@@ -45,21 +51,112 @@ def _requested_wait() -> int:
     return min(int(match.group(1)), _state().settings.max_wait_s) if match else 0
 
 
+def _answer(job: Job, wait: int) -> tuple[Response, int, dict[str, str]]:
+    """200 with the result if the job succeeds within ``wait`` seconds, else 202 with its
+    status; Location names the job either way."""
+    queue = _state().queue
+    headers = {"Location": f"/v1/jobs/{job.id}"}
+    result = queue.wait(job, wait)
+    if result is not None:
+        return _result_response(result), 200, headers
+    return jsonify(queue.status(job).model_dump(mode="json")), 202, headers
+
+
+def _result_response(result: dict[str, Any]) -> Response:
+    """A result as JSON, or as .npy bytes when the client asks for them (Accept)."""
+    if not wants_npy(request):
+        return jsonify(result)
+    array = result_array(result)
+    if array is None:
+        raise NotAcceptable(
+            f"this result has no array to send as {NPY_MEDIA_TYPE} (no feature vectors); "
+            "ask for application/json"
+        )
+    return Response(npy_bytes(array), mimetype=NPY_MEDIA_TYPE)
+
+
+def _resolved(job_request: JobRequest) -> JobRequest:
+    """``job_request`` with every feature given by spec_id replaced by the registered spec."""
+    references = job_request.references()
+    found = _state().feature_specs.find([spec_id for _, spec_id in references])
+    missing = [
+        FieldError(
+            pointer=f"/features/{index}/spec_id",
+            message=f"no spec is registered under {spec_id}; POST the spec to "
+            "/v1/feature-specs first",
+        )
+        for index, spec_id in references
+        if spec_id not in found
+    ]
+    if missing:
+        raise RequestInvalid(missing)
+    return job_request.with_features({index: found[spec_id] for index, spec_id in references})
+
+
 @v1.post("/jobs")
 def submit_job() -> tuple[Response, int, dict[str, str]]:
     """Queue a job; with ``Prefer: wait=N`` answer its result inline if it succeeds in time."""
     state = _state()
     wait = _requested_wait()
-    job_request = JobRequest.model_validate(_json_body())
+    job_request = _resolved(JobRequest.model_validate(_json_body()))
     errors = job_request.field_errors(state.limits)
     if errors:
         raise RequestInvalid(errors)
-    job = state.queue.submit(job_request, owner_of(request))
-    headers = {"Location": f"/v1/jobs/{job.id}"}
-    result = state.queue.wait(job, wait)
-    if result is not None:
-        return jsonify(result), 200, headers
-    return jsonify(state.queue.status(job).model_dump(mode="json")), 202, headers
+    job = state.queue.submit(job_submission(job_request), owner_of(request))
+    return _answer(job, wait)
+
+
+@v1.post("/feature-specs")
+def register_feature_spec() -> tuple[Response, int, dict[str, str]]:
+    """Check a feature spec, keep it, and answer its canonical form and spec_id."""
+    spec = FeatureSpecBody.model_validate(_json_body()).root
+    spec_id = spec_id_of(spec)
+    if spec.spec_id is not None and spec.spec_id != spec_id:
+        raise RequestInvalid(
+            [
+                FieldError(
+                    pointer="/spec_id",
+                    message=f"this spec hashes to {spec_id}, not to the spec_id given",
+                )
+            ]
+        )
+    _state().feature_specs.register(spec)
+    answer = feature_spec_answer(spec)
+    return jsonify(answer.model_dump(mode="json")), 200, {
+        "Location": f"/v1/feature-specs/{spec_id}"
+    }
+
+
+@v1.get("/feature-specs/<spec_id>")
+def feature_spec(spec_id: str) -> Response:
+    """A registered feature spec, in canonical form."""
+    found = _state().feature_specs.find([spec_id]) if _SPEC_ID.fullmatch(spec_id) else {}
+    if spec_id not in found:
+        raise FeatureSpecNotFound(spec_id)
+    return jsonify(feature_spec_answer(found[spec_id]).model_dump(mode="json"))
+
+
+@v1.post("/distances")
+def submit_distances() -> tuple[Response, int, dict[str, str]]:
+    """Queue a distance matrix; small ones are waited for and answered with 200."""
+    state = _state()
+    distance_request = DistanceRequest.model_validate(_json_body())
+    errors = distance_request.field_errors(state.limits)
+    if errors:
+        raise RequestInvalid(errors)
+    owner = owner_of(request)
+    results = None
+    if distance_request.job_ids is not None:
+        results = state.queue.results_of(distance_request.job_ids, owner, "/job_ids")
+    submission = distance_submission(distance_request, results)
+    job = state.queue.submit(submission, owner)
+    wait = _requested_wait()
+    count = submission.task.count if isinstance(submission.task, DistanceTask) else 0
+    if "wait" not in request.headers.get("Prefer", "") and (
+        count * (count - 1) // 2 <= state.settings.inline_distance_pairs
+    ):
+        wait = state.settings.max_wait_s
+    return _answer(job, wait)
 
 
 @v1.get("/jobs/<job_id>")
@@ -73,10 +170,12 @@ def job_status(job_id: str) -> Response:
 
 @v1.get("/jobs/<job_id>/result")
 def job_result(job_id: str) -> Response:
-    """Result of a succeeded job (409 while unfinished); ``Prefer: wait=N`` waits first."""
+    """Result of a succeeded job (409 while unfinished); ``Prefer: wait=N`` waits first.
+
+    ``Accept: application/x-npy`` asks for the result's array as .npy bytes."""
     queue = _state().queue
     job = queue.find(job_id, owner_of(request))
-    return jsonify(queue.wait(job, _requested_wait()) or queue.result(job))
+    return _result_response(queue.wait(job, _requested_wait()) or queue.result(job))
 
 
 @v1.delete("/jobs/<job_id>")

@@ -27,6 +27,19 @@ class Settings(BaseSettings):
     )
     max_body_bytes: int = Field(64 * 1024 * 1024, ge=1024, description="Largest request body.")
     max_dim: int = Field(2, ge=0, le=2, description="Highest homology dimension allowed.")
+    max_vector_length: int = Field(
+        250_000, ge=1, description="Most values in one job's concatenated feature vector."
+    )
+    max_distance_count: int = Field(
+        2000, ge=2, description="Most diagrams or vectors in one distance matrix."
+    )
+    inline_distance_pairs: int = Field(
+        2000,
+        ge=0,
+        description="Distance matrices with at most this many pairs are waited for (up to "
+        "max_wait_s) and answered with 200; larger ones answer 202 at once unless the client "
+        "sends Prefer: wait.",
+    )
     job_time_limit_s: float = Field(300.0, gt=0, description="Wall-time limit of one job.")
     result_ttl_s: int = Field(86_400, ge=1, description="How long results are kept.")
     queued_ttl_s: int = Field(

@@ -23,12 +23,18 @@ from typing import Any
 from workers.core.errors import CoreError
 from workers.spec import JobPayload, Problem, failures
 
-__all__ = ["ComputeProcess", "JobAborted", "Handler", "problem_for"]
+__all__ = ["ComputeProcess", "JobAborted", "Handler", "Report", "problem_for"]
 
 log = logging.getLogger(__name__)
 
-Handler = Callable[[dict[str, Any], bytes], dict[str, Any]]
-"""(JSON header, .npy bytes) -> result dict; runs in the child."""
+Report = Callable[[int, int], None]
+"""(done, total): how far a computation is."""
+
+Handler = Callable[[dict[str, Any], bytes, Report], dict[str, Any]]
+"""(JSON header, .npy bytes, progress callback) -> result dict; runs in the child."""
+
+PROGRESS_INTERVAL_S = 0.25
+"""Least time between two progress messages from the child (the last one is always sent)."""
 
 _PR_SET_PDEATHSIG = 1  # from <sys/prctl.h>
 
@@ -64,6 +70,20 @@ def _die_with_parent() -> None:
         pass
 
 
+class _ProgressSender:
+    """The child's progress callback: a JSON message to the parent, at most every 0.25 s."""
+
+    def __init__(self, connection: Connection) -> None:
+        self._connection = connection
+        self._last = 0.0
+
+    def __call__(self, done: int, total: int) -> None:
+        now = time.monotonic()
+        if now - self._last >= PROGRESS_INTERVAL_S or done == total:
+            self._last = now
+            self._connection.send_bytes(json.dumps({"progress": [done, total]}).encode("utf-8"))
+
+
 def _child_main(connection: Connection, parent_end: Connection, handler: Handler) -> None:
     _die_with_parent()
     parent_end.close()  # else the child holds the pipe open and never sees EOF
@@ -77,7 +97,7 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
         except EOFError:
             return
         try:
-            reply: dict[str, Any] = {"result": handler(header, data)}
+            reply: dict[str, Any] = {"result": handler(header, data, _ProgressSender(connection))}
         except Exception as error:  # reported as the job's problem; the child lives on
             reply = {"problem": problem_for(error).model_dump(mode="json", exclude_none=True)}
         connection.send_bytes(json.dumps(reply, allow_nan=False).encode("utf-8"))
@@ -130,8 +150,12 @@ class ComputeProcess:
         input_bytes: bytes,
         time_limit_s: float,
         should_stop: Callable[[], bool],
+        on_progress: Report | None = None,
     ) -> dict[str, Any]:
-        """Run one job in the child; raise ``JobAborted`` on overrun, cancel, crash or error."""
+        """Run one job in the child; raise ``JobAborted`` on overrun, cancel, crash or error.
+
+        Progress messages of the child go to ``on_progress`` as they arrive.
+        """
         if not self._process.is_alive():
             if not self._connection.closed:
                 self._connection.close()
@@ -141,14 +165,20 @@ class ComputeProcess:
         try:
             self._connection.send_bytes(json.dumps(header).encode("utf-8"))
             self._connection.send_bytes(input_bytes)
-            while not self._connection.poll(
-                max(0.0, min(POLL_INTERVAL_S, deadline - time.monotonic()))
-            ):
+            while True:
+                if self._connection.poll(
+                    max(0.0, min(POLL_INTERVAL_S, deadline - time.monotonic()))
+                ):
+                    reply = json.loads(self._connection.recv_bytes())
+                    if "progress" not in reply:
+                        break
+                    if on_progress is not None:
+                        on_progress(*reply["progress"])
+                    continue
                 if time.monotonic() >= deadline:
                     raise JobAborted(failures.time_limit_exceeded(time_limit_s))
                 if should_stop():
                     raise JobAborted(failures.cancelled())
-            reply = json.loads(self._connection.recv_bytes())
         except (EOFError, OSError):
             code = self._process.exitcode
             self.kill()

@@ -11,20 +11,27 @@ from typing import Any
 import numpy as np
 from pydantic import ValidationError
 from rq import get_current_job
+from rq.job import Job
 
-from workers.compute import ComputeProcess, JobAborted, problem_for
+from workers.compute import ComputeProcess, JobAborted, Report, problem_for
+from workers.core.diagrams import drop_empty_bars, sort_pairs
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
+from workers.features import feature_vectors
+from workers.pairwise import distance_matrix, usable_cores
 from workers.spec import (
     SCHEMA_VERSION,
     Diagram,
-    DiagramResult,
+    DistanceResult,
+    DistanceTask,
     JobPayload,
+    JobResult,
+    PersistenceTask,
     Problem,
     Provenance,
     failures,
 )
-from workers.spec.arrays import array_sha256, from_npy_bytes
+from workers.spec.arrays import array_sha256, diagrams_of_rows, from_npy_bytes
 from workers.spec.jobs import cancel_key, input_key
 from workers.spec.results import package_versions
 
@@ -40,28 +47,64 @@ def _diagram(dim: int, pairs: np.ndarray) -> Diagram:
     )
 
 
-def execute(payload: JobPayload, points: np.ndarray, *, job_id: str) -> dict[str, Any]:
-    """Compute the result of one job from its payload and input array (n, d) float64."""
+def _provenance(payload: JobPayload, started: float, **extra: Any) -> Provenance:
+    return Provenance(
+        input_sha256=payload.input.sha256,
+        request_sha256=payload.request_sha256,
+        versions=package_versions(),
+        elapsed_s=time.perf_counter() - started,
+        **extra,
+    )
+
+
+def _ignore(done: int, total: int) -> None:
+    """Progress callback of computations nobody watches."""
+
+
+def execute(
+    payload: JobPayload, array: np.ndarray, *, job_id: str, report: Report = _ignore
+) -> dict[str, Any]:
+    """Compute the result of one job from its payload and its stored input array."""
+    if isinstance(payload.task, DistanceTask):
+        return _distances(payload, payload.task, array, job_id, report)
+    return _persistence(payload, payload.task, array, job_id)
+
+
+def _persistence(
+    payload: JobPayload, task: PersistenceTask, array: np.ndarray, job_id: str
+) -> dict[str, Any]:
+    """Diagrams of the filtration on a point set, or the given diagrams; then the features."""
     started = time.perf_counter()
-    filtration = payload.filtration
     sample = None
-    if filtration.subsample is not None:
-        choose = maxmin_subsample if filtration.subsample.method == "maxmin" else random_subsample
-        sample = choose(points, size=filtration.subsample.size, seed=filtration.subsample.seed)
-        points = points[sample.indices]
-    diagrams = rips_diagrams(points, max_dim=filtration.max_dim, max_edge=filtration.max_edge)
-    elapsed = time.perf_counter() - started
-    result = DiagramResult(
+    filtration = task.filtration
+    if filtration is not None:  # a point set (n, d)
+        points = array
+        if filtration.subsample is not None:
+            choose = (
+                maxmin_subsample if filtration.subsample.method == "maxmin" else random_subsample
+            )
+            sample = choose(points, size=filtration.subsample.size, seed=filtration.subsample.seed)
+            points = points[sample.indices]
+        computed = rips_diagrams(points, max_dim=filtration.max_dim, max_edge=filtration.max_edge)
+        diagrams = dict(enumerate(computed))
+    else:  # given diagrams, rows of (dim, birth, death)
+        labels = sorted({int(label) for label in array[:, 0]}) if len(array) else []
+        given = diagrams_of_rows(array, labels)
+        diagrams = {dim: sort_pairs(drop_empty_bars(pairs)) for dim, pairs in given.items()}
+    vectors, layout, layout_id = feature_vectors(task.features, diagrams)
+    result = JobResult(
         job_id=job_id,
         schema_version=SCHEMA_VERSION,
-        value_convention="edge_length",
+        value_convention="edge_length" if filtration is not None else None,
         units=payload.input.units,
-        diagrams=[_diagram(dim, pairs) for dim, pairs in enumerate(diagrams)],
-        provenance=Provenance(
-            input_sha256=payload.input.sha256,
-            request_sha256=payload.request_sha256,
-            versions=package_versions(),
-            elapsed_s=elapsed,
+        diagrams=[_diagram(dim, pairs) for dim, pairs in sorted(diagrams.items())],
+        vectors=vectors,
+        vector_length=sum(entry.stop - entry.start for entry in layout),
+        layout=layout,
+        layout_id=layout_id,
+        provenance=_provenance(
+            payload,
+            started,
             subsample_indices=None if sample is None else sample.indices.tolist(),
             subsample_covering_radius=None if sample is None else sample.covering_radius,
         ),
@@ -69,11 +112,44 @@ def execute(payload: JobPayload, points: np.ndarray, *, job_id: str) -> dict[str
     return result.model_dump(mode="json")
 
 
-def execute_bytes(header: dict[str, Any], input_bytes: bytes) -> dict[str, Any]:
+def _distances(
+    payload: JobPayload, task: DistanceTask, array: np.ndarray, job_id: str, report: Report
+) -> dict[str, Any]:
+    """The distance matrix between the stored diagrams (rows of (index, birth, death)) or
+    vectors (N, L)."""
+    started = time.perf_counter()
+    if payload.input.type == "vectors":
+        items: list[np.ndarray] = list(array)
+    else:
+        by_index = diagrams_of_rows(array, list(range(task.count)))
+        items = [by_index[index] for index in range(task.count)]
+    matrix, nulls = distance_matrix(items, task, report, processes=usable_cores())
+    finite = np.isfinite(matrix)
+    diagram_metric = payload.input.type != "vectors"
+    result = DistanceResult(
+        job_id=job_id,
+        schema_version=SCHEMA_VERSION,
+        metric=task.metric,
+        order=task.order,
+        directions=task.directions,
+        dim=task.dim,
+        ground_metric="l_infinity" if diagram_metric else None,
+        count=task.count,
+        matrix=[
+            [float(v) if ok else None for v, ok in zip(row, oks, strict=True)]
+            for row, oks in zip(matrix.tolist(), finite.tolist(), strict=True)
+        ],
+        nulls=nulls,
+        provenance=_provenance(payload, started),
+    )
+    return result.model_dump(mode="json")
+
+
+def execute_bytes(header: dict[str, Any], input_bytes: bytes, report: Report) -> dict[str, Any]:
     """Entry used inside the compute child: JSON header and .npy bytes in, result dict out."""
     payload = JobPayload.model_validate(header["payload"])
-    points = from_npy_bytes(input_bytes).astype(np.float64, copy=False)
-    return execute(payload, points, job_id=header["job_id"])
+    array = from_npy_bytes(input_bytes).astype(np.float64, copy=False)
+    return execute(payload, array, job_id=header["job_id"], report=report)
 
 
 def compute_process() -> ComputeProcess:
@@ -93,27 +169,39 @@ INLINE_MAX_POINTS = 150
 at most ~20 ms, far below any time limit, so the compute child's round trip would only
 add overhead."""
 
+INLINE_MAX_PAIRS = 5000
+"""Jobs on given diagrams up to this many pairs run in the worker itself (features of 5000
+pairs take a few ms)."""
+
 
 def _checked_input(data: object, payload: JobPayload) -> np.ndarray:
     """The stored array if it is the one the service recorded, else JobAborted."""
     if not isinstance(data, bytes):
         raise JobAborted(failures.input_missing())
     try:
-        points = from_npy_bytes(data)
+        array = from_npy_bytes(data)
     except ValueError:
         raise JobAborted(failures.input_corrupt()) from None
-    if tuple(points.shape) != payload.input.shape or array_sha256(points) != payload.input.sha256:
+    if tuple(array.shape) != payload.input.shape or array_sha256(array) != payload.input.sha256:
         raise JobAborted(failures.input_corrupt())
-    return points.astype(np.float64, copy=False)
+    return array.astype(np.float64, copy=False)
 
 
 def _runs_inline(payload: JobPayload) -> bool:
-    filtration = payload.filtration
-    return (
-        payload.input.shape[0] <= INLINE_MAX_POINTS
-        and filtration.max_dim <= 1
-        and filtration.subsample is None
+    """Is this job so small that the compute child's round trip would cost more than it?"""
+    task, rows = payload.task, payload.input.shape[0]
+    if isinstance(task, DistanceTask):
+        return task.count <= 8 and rows <= 2000
+    if task.filtration is None:
+        return rows <= INLINE_MAX_PAIRS
+    return rows <= INLINE_MAX_POINTS and task.filtration.max_dim <= 1 and (
+        task.filtration.subsample is None
     )
+
+
+def _save_progress(job: Job, done: int, total: int) -> None:
+    job.meta["progress"] = {"done": done, "total": total}
+    job.save_meta()
 
 
 def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
@@ -135,10 +223,10 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
         cancelled, stored = pipe.execute()
         if cancelled:
             raise JobAborted(failures.cancelled())
-        points = _checked_input(stored, payload)
+        array = _checked_input(stored, payload)
         if _runs_inline(payload):
             try:
-                return execute(payload, points, job_id=job.id)
+                return execute(payload, array, job_id=job.id)
             except Exception as error:
                 raise JobAborted(problem_for(error)) from None
         assert isinstance(stored, bytes)  # _checked_input refused anything else
@@ -148,6 +236,7 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
             input_bytes=stored,
             time_limit_s=payload.time_limit_s,
             should_stop=lambda: bool(connection.exists(cancel_key(job.id))),
+            on_progress=lambda done, total: _save_progress(job, done, total),
         )
     except JobAborted as aborted:
         connection.delete(input_key(job.id))  # if the payload was refused before GETDEL

@@ -17,7 +17,7 @@ from workers.spec.arrays import array_sha256, to_npy_bytes
 def payload(points: np.ndarray, max_dim: int) -> JobPayload:
     return JobPayload.model_validate(
         {
-            "schema_version": "1",
+            "schema_version": "2",
             "input": {
                 "type": "points",
                 "shape": list(points.shape),

@@ -7,10 +7,13 @@ class Limits(BaseModel):
     """Configured limits; requests above them are refused with a problem naming the limit."""
 
     max_points: int = Field(description="Most points a Rips filtration runs on (after subsample).")
-    max_input_points: int = Field(description="Most points accepted in one request.")
+    max_input_points: int = Field(description="Most points (or diagram pairs) in one request.")
     max_body_bytes: int
     max_dim: int
     max_coordinates: int
+    max_features: int = Field(description="Most feature specs in one job.")
+    max_vector_length: int = Field(description="Most values in one job's concatenated vector.")
+    max_distance_count: int = Field(description="Most diagrams or vectors in one distance matrix.")
     job_time_limit_s: float
     result_ttl_s: int
     max_wait_s: int = Field(description="Cap on the Prefer: wait=N request header.")
@@ -22,6 +25,10 @@ class Capabilities(BaseModel):
     schema_version: str
     input_types: list[str]
     filtrations: list[str]
+    features: list[str]
+    feature_spec_version: str
+    metrics: list[str]
     value_convention: str
+    binary_media_type: str = Field(description="Media type of binary arrays (NumPy .npy).")
     limits: Limits
     versions: dict[str, str]

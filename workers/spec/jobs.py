@@ -6,6 +6,8 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from workers.spec.distances import Metric
+from workers.spec.features import FeatureSpec
 from workers.spec.filtrations import Filtration
 from workers.spec.problems import Problem
 
@@ -16,6 +18,9 @@ __all__ = [
     "JobPayload",
     "JobState",
     "JobStatus",
+    "DistanceTask",
+    "PersistenceTask",
+    "Progress",
     "StoredInput",
     "cancel_key",
     "input_key",
@@ -51,6 +56,13 @@ class JobState(StrEnum):
     cancelled = "cancelled"
 
 
+class Progress(BaseModel):
+    """``done`` of ``total`` units of work (pairs of a distance matrix)."""
+
+    done: int
+    total: int
+
+
 class JobStatus(BaseModel):
     """Answer of ``GET /v1/jobs/{id}``."""
 
@@ -60,18 +72,53 @@ class JobStatus(BaseModel):
     started_at: datetime | None = None
     ended_at: datetime | None = None
     problem: Annotated[Problem | None, Field(description="Why the job failed.")] = None
+    progress: Annotated[
+        Progress | None, Field(description="How far a running job is (jobs that report it).")
+    ] = None
     links: dict[str, str]
 
 
 class StoredInput(BaseModel):
-    """Description of an input array kept in Redis next to the job (not on the queue)."""
+    """Description of an input array kept in Redis next to the job (not on the queue).
+
+    Arrays by type: ``points`` (n, d) coordinates; ``diagrams`` and ``diagram_set`` (k, 3)
+    rows of (dimension or diagram index, birth, death with inf for never); ``vectors`` (N, L).
+    """
 
     model_config = ConfigDict(extra="forbid")
 
-    type: Literal["points"]
+    type: Literal["points", "diagrams", "diagram_set", "vectors"]
     shape: tuple[int, int]
     sha256: str
     units: str | None = None
+
+
+class PersistenceTask(BaseModel):
+    """Diagrams of a filtration (or the given diagrams) and their feature vectors."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["persistence"]
+    filtration: Filtration | None
+    features: Annotated[
+        list[FeatureSpec], Field(description="Resolved specs, each with its spec_id set.")
+    ] = []
+
+
+class DistanceTask(BaseModel):
+    """An N x N distance matrix between the stored diagrams or vectors."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["distances"]
+    metric: Metric
+    order: float | None = None
+    directions: int | None = None
+    dim: int | None = None
+    count: Annotated[int, Field(ge=1)]
+
+
+Task = Annotated[PersistenceTask | DistanceTask, Field(discriminator="type")]
 
 
 class JobPayload(BaseModel):
@@ -81,6 +128,6 @@ class JobPayload(BaseModel):
 
     schema_version: str
     input: StoredInput
-    filtration: Filtration
+    task: Task
     request_sha256: str
     time_limit_s: Annotated[float, Field(gt=0)]

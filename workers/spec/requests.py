@@ -1,28 +1,94 @@
-"""The body of ``POST /v1/jobs``."""
+"""The bodies of ``POST /v1/jobs`` and their checks that span several fields."""
 
-from pydantic import BaseModel, ConfigDict
+from typing import Annotated
+
+from pydantic import BaseModel, ConfigDict, Field
 
 from workers.spec.capabilities import Limits
+from workers.spec.features import (
+    BettiCurveSpec,
+    FeatureItem,
+    FeatureSpec,
+    LandscapeSpec,
+    PersistenceImageSpec,
+    SpecReference,
+    spec_id_of,
+    vector_shape,
+)
 from workers.spec.filtrations import Filtration
-from workers.spec.inputs import Input
+from workers.spec.inputs import DiagramsInput, Input, PointsInput
 from workers.spec.problems import FieldError
+
+__all__ = ["JobRequest", "MAX_FEATURES"]
+
+MAX_FEATURES = 64
+"""Most feature specs one job may ask for."""
+
+_SIZE_FIELD = {
+    PersistenceImageSpec: "resolution",
+    LandscapeSpec: "samples",
+    BettiCurveSpec: "samples",
+}
+"""The field that sets a spec's vector length, pointed at when it is too long."""
 
 
 class JobRequest(BaseModel):
-    """One computation: an input and the filtration to build on it."""
+    """One computation: an input, the filtration to build on it (none for given diagrams), and
+    the feature vectors to make of the diagrams."""
 
     model_config = ConfigDict(extra="forbid")
 
     input: Input
-    filtration: Filtration
+    filtration: Filtration | None = None
+    features: Annotated[
+        list[FeatureItem],
+        Field(
+            max_length=MAX_FEATURES,
+            description="Vectorisations, each of one homology dimension; the result lists "
+            "their vectors in this order.",
+        ),
+    ] = []
+
+    def references(self) -> list[tuple[int, str]]:
+        """(position, spec_id) of every feature given only by the id of a registered spec."""
+        return [
+            (index, item.spec_id)
+            for index, item in enumerate(self.features)
+            if isinstance(item, SpecReference)
+        ]
 
     def field_errors(self, limits: Limits) -> list[FieldError]:
         """Checks that span several fields or depend on configured limits.
 
         Pydantic validates each field on its own; what only makes sense together (all rows of
-        one length, a subsample no larger than the set, the point limit) is checked here.
+        one length, a subsample no larger than the set, features of computed dimensions, the
+        configured limits) is checked here. Features given by reference must have been
+        resolved (``with_features``) before.
         """
-        points = self.input.points
+        if isinstance(self.input, PointsInput):
+            errors = self._points_errors(self.input, limits)
+            computed = set(range(self.filtration.max_dim + 1)) if self.filtration else set()
+        else:
+            errors = self._diagrams_errors(self.input, limits)
+            computed = {diagram.dim for diagram in self.input.diagrams}
+        return errors + self._feature_errors(computed, limits)
+
+    def specs(self) -> list[FeatureSpec]:
+        """The feature specs, each with its spec_id set (references must be resolved)."""
+        specs: list[FeatureSpec] = []
+        for item in self.features:
+            if isinstance(item, SpecReference):
+                raise ValueError("resolve feature references before asking for specs")
+            specs.append(item.model_copy(update={"spec_id": spec_id_of(item)}))
+        return specs
+
+    def with_features(self, resolved: dict[int, FeatureSpec]) -> "JobRequest":
+        """This request with the features at the given positions replaced by full specs."""
+        features = [resolved.get(index, item) for index, item in enumerate(self.features)]
+        return self.model_copy(update={"features": features})
+
+    def _points_errors(self, points_input: PointsInput, limits: Limits) -> list[FieldError]:
+        points = points_input.points
         width = len(points[0])
         for row, coordinates in enumerate(points):
             if len(coordinates) != width:
@@ -33,6 +99,13 @@ class JobRequest(BaseModel):
                         " every row needs the same number",
                     )
                 ]
+        if self.filtration is None:
+            return [
+                FieldError(
+                    pointer="/filtration",
+                    message='a point set needs a filtration, e.g. {"type": "rips", "max_dim": 1}',
+                )
+            ]
         errors: list[FieldError] = []
         n = len(points)
         subsample = self.filtration.subsample
@@ -78,3 +151,103 @@ class JobRequest(BaseModel):
                 )
             )
         return errors
+
+    def _diagrams_errors(self, given: DiagramsInput, limits: Limits) -> list[FieldError]:
+        errors: list[FieldError] = []
+        if self.filtration is not None:
+            errors.append(
+                FieldError(
+                    pointer="/filtration",
+                    message="given diagrams take no filtration; leave it out",
+                )
+            )
+        seen: set[int] = set()
+        total = 0
+        for index, diagram in enumerate(given.diagrams):
+            if diagram.dim in seen:
+                errors.append(
+                    FieldError(
+                        pointer=f"/input/diagrams/{index}/dim",
+                        message=f"dimension {diagram.dim} is given twice; send one diagram per "
+                        "dimension",
+                    )
+                )
+            seen.add(diagram.dim)
+            total += len(diagram.pairs)
+            errors.extend(pair_errors(diagram.pairs, f"/input/diagrams/{index}/pairs"))
+        if total > limits.max_input_points:
+            errors.append(
+                FieldError(
+                    pointer="/input/diagrams",
+                    message=f"{total} pairs is above the limit of {limits.max_input_points} "
+                    "per request",
+                )
+            )
+        return errors
+
+    def _feature_errors(self, computed: set[int], limits: Limits) -> list[FieldError]:
+        errors: list[FieldError] = []
+        total = 0
+        for index, item in enumerate(self.features):
+            if isinstance(item, SpecReference):
+                raise ValueError("resolve feature references before checking the request")
+            where = f"/features/{index}"
+            if item.dim not in computed:
+                source = "the filtration computes" if self.filtration else "the input gives"
+                errors.append(
+                    FieldError(
+                        pointer=f"{where}/dim",
+                        message=f"dimension {item.dim} is not among the dimensions {source} "
+                        f"({', '.join(map(str, sorted(computed))) or 'none'})",
+                    )
+                )
+            if item.spec_id is not None and item.spec_id != spec_id_of(item):
+                errors.append(
+                    FieldError(
+                        pointer=f"{where}/spec_id",
+                        message=f"this spec hashes to {spec_id_of(item)}, not to the spec_id "
+                        "given; the spec differs from the one the id names",
+                    )
+                )
+            length = _length(item)
+            total += length
+            if length > limits.max_vector_length:
+                errors.append(
+                    FieldError(
+                        pointer=f"{where}/{_SIZE_FIELD.get(type(item), 'quantiles')}",
+                        message=f"this feature has {length} values, above the vector length "
+                        f"limit of {limits.max_vector_length}",
+                    )
+                )
+        if total > limits.max_vector_length and not errors:
+            errors.append(
+                FieldError(
+                    pointer="/features",
+                    message=f"the features have {total} values together, above the vector "
+                    f"length limit of {limits.max_vector_length}",
+                )
+            )
+        return errors
+
+
+def _length(spec: FeatureSpec) -> int:
+    length = 1
+    for size in vector_shape(spec):
+        length *= size
+    return length
+
+
+def pair_errors(pairs: list[tuple[float, float | None]], where: str) -> list[FieldError]:
+    """A FieldError for each pair whose death is below its birth (at most 10)."""
+    errors = []
+    for row, (birth, death) in enumerate(pairs):
+        if death is not None and death < birth:
+            errors.append(
+                FieldError(
+                    pointer=f"{where}/{row}/1",
+                    message=f"death {death:g} is below birth {birth:g}",
+                )
+            )
+            if len(errors) == 10:
+                break
+    return errors

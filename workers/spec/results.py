@@ -4,7 +4,9 @@ from functools import cache
 from importlib.metadata import version
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, Field
+from pydantic import BaseModel, ConfigDict, Field
+
+from workers.spec.numbers import Coordinate
 
 PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "gudhi")
 """Packages whose versions shape a result; every provenance records them."""
@@ -26,18 +28,53 @@ def package_versions() -> dict[str, str]:
     return dict(_installed_versions())
 
 
-Pair = tuple[float, float | None]
+Pair = tuple[Coordinate, Coordinate | None]
 """(birth, death); death null means the class never dies within the filtration."""
+
+MAX_DIAGRAM_DIM = 7
+"""Highest homology dimension a diagram can carry."""
+
+Dimension = Annotated[
+    int, Field(strict=True, ge=0, le=MAX_DIAGRAM_DIM, description="Homology dimension k.")
+]
 
 
 class Diagram(BaseModel):
     """Persistence diagram of one homology dimension."""
 
-    dim: int
+    model_config = ConfigDict(extra="forbid")
+
+    dim: Dimension
     pairs: Annotated[
         list[Pair],
-        Field(description="Sorted by (birth, death), null deaths last; no zero-length pairs."),
+        Field(
+            description="[birth, death] pairs, death >= birth or null. In results: sorted by "
+            "(birth, death), null deaths last, no zero-length pairs."
+        ),
     ]
+
+
+class FeatureVector(BaseModel):
+    """The values of one feature spec on one diagram."""
+
+    type: str
+    dim: int
+    spec_id: str
+    shape: list[int]
+    values: Annotated[list[float], Field(description="Flattened row-major (C order).")]
+    labels: Annotated[
+        list[str] | None, Field(description="Name of each value (summary features).")
+    ] = None
+
+
+class LayoutEntry(BaseModel):
+    """Where one feature's values sit in the concatenated vector: [start, stop)."""
+
+    type: str
+    dim: int
+    spec_id: str
+    start: int
+    stop: int
 
 
 class Provenance(BaseModel):
@@ -68,15 +105,35 @@ class Provenance(BaseModel):
     ] = None
 
 
-class DiagramResult(BaseModel):
-    """Result of a job: one diagram per dimension 0..max_dim."""
+class JobResult(BaseModel):
+    """Result of a job: its diagrams, and the feature vectors it asked for."""
 
     job_id: str
     schema_version: str
     value_convention: Annotated[
-        Literal["edge_length"],
-        Field(description="Rips values are edge lengths (diameters), twice the ball radius."),
+        Literal["edge_length"] | None,
+        Field(
+            description="Rips values are edge lengths (diameters), twice the ball radius; "
+            "null for diagrams given as input, whose convention is the client's."
+        ),
     ]
     units: str | None = None
-    diagrams: list[Diagram]
+    diagrams: Annotated[
+        list[Diagram],
+        Field(description="One per dimension 0..max_dim, or the given diagrams normalised."),
+    ]
+    vectors: Annotated[
+        list[FeatureVector], Field(description="One per requested feature, in request order.")
+    ] = []
+    vector_length: Annotated[int, Field(description="Length of the concatenated vector.")] = 0
+    layout: Annotated[
+        list[LayoutEntry], Field(description="Slices of the concatenated vector, in order.")
+    ] = []
+    layout_id: Annotated[
+        str | None,
+        Field(
+            description="SHA-256 of the JSON list of spec_ids in order: equal layout_ids mean "
+            "concatenated vectors that can be stacked."
+        ),
+    ] = None
     provenance: Provenance

@@ -3,7 +3,7 @@
 from types import UnionType
 from typing import Annotated, Any, Union, get_args, get_origin
 
-from pydantic import BaseModel
+from pydantic import BaseModel, Discriminator, Tag
 from pydantic.fields import FieldInfo
 
 __all__ = ["members_by_tag", "discriminated_members", "strip_optional"]
@@ -16,12 +16,18 @@ def members_by_tag(annotation: Any) -> dict[str, type[BaseModel]]:
     return {get_args(m.model_fields["type"].annotation)[0]: m for m in members}
 
 
-def discriminated_members(annotation: Any) -> dict[str, type[BaseModel]] | None:
-    """The tag map if ``annotation`` is a discriminated union (possibly Optional), else None."""
+def discriminated_members(annotation: Any) -> dict[str, Any] | None:
+    """The tag map if ``annotation`` is a discriminated union (possibly Optional), else None.
+
+    Unions told apart by a ``type`` field map each tag to its model; unions told apart by a
+    callable ``Discriminator`` map each member's ``Tag`` to the member's annotation.
+    """
     if get_origin(annotation) is Annotated:
         base, *metadata = get_args(annotation)
         if any(isinstance(m, FieldInfo) and m.discriminator for m in metadata):
             return members_by_tag(base)
+        if any(isinstance(m, Discriminator) for m in metadata):
+            return {_tag_of(member): member for member in get_args(base)}
         return discriminated_members(base)
     if get_origin(annotation) in (Union, UnionType):
         inner = [a for a in get_args(annotation) if a is not type(None)]
@@ -41,3 +47,11 @@ def strip_optional(annotation: Any) -> Any:
             annotation = inner[0]
         else:
             return annotation
+
+
+def _tag_of(member: Any) -> str:
+    """The ``Tag`` a member of a callable-discriminated union is annotated with."""
+    tags = [m.tag for m in get_args(member)[1:] if isinstance(m, Tag)]
+    if not tags:
+        raise TypeError(f"{member} has no Tag")
+    return str(tags[0])

@@ -1,0 +1,87 @@
+"""Feature specs applied to diagrams: the glue between ``workers.spec`` and ``workers.core``."""
+
+from collections.abc import Mapping, Sequence
+
+import numpy as np
+
+from workers.core.betti_curve import betti_curve
+from workers.core.diagrams import finite_part
+from workers.core.landscape import landscape, sample_grid
+from workers.core.persistence_image import persistence_images
+from workers.core.summary import summary, summary_names
+from workers.spec.arrays import canonical_sha256
+from workers.spec.features import (
+    BettiCurveSpec,
+    FeatureSpec,
+    LandscapeSpec,
+    LinearWeight,
+    PersistenceImageSpec,
+    PowerWeight,
+    SummarySpec,
+    spec_id_of,
+    vector_shape,
+)
+from workers.spec.results import FeatureVector, LayoutEntry
+
+__all__ = ["feature_values", "feature_vectors", "layout_id_of"]
+
+
+def feature_values(spec: FeatureSpec, pairs: np.ndarray) -> np.ndarray:
+    """The values of ``spec`` on one diagram (k, 2) with inf deaths, shaped as the spec says."""
+    finite = finite_part(pairs, spec.infinite, spec.cap)
+    if isinstance(spec, PersistenceImageSpec):
+        weight = spec.weight
+        image: np.ndarray = persistence_images(
+            [finite],
+            birth_range=spec.birth_range,
+            persistence_range=spec.persistence_range,
+            resolution=spec.resolution,
+            sigma=spec.sigma,
+            weight=weight.type,
+            max_persistence=weight.max_persistence if isinstance(weight, LinearWeight) else None,
+            exponent=weight.exponent if isinstance(weight, PowerWeight) else None,
+        )[0]
+        return image
+    if isinstance(spec, LandscapeSpec):
+        return landscape(finite, levels=spec.levels, grid=sample_grid(spec.t_range, spec.samples))
+    if isinstance(spec, BettiCurveSpec):
+        return betti_curve(finite, grid=sample_grid(spec.t_range, spec.samples))
+    if isinstance(spec, SummarySpec):
+        return summary(finite, order=spec.order, quantiles=spec.quantiles)
+    raise TypeError(f"not a feature spec: {type(spec).__name__}")
+
+
+def layout_id_of(spec_ids: Sequence[str]) -> str:
+    """SHA-256 of the JSON list of spec_ids: the identity of a concatenated vector's layout."""
+    return canonical_sha256(list(spec_ids))
+
+
+def feature_vectors(
+    specs: Sequence[FeatureSpec], diagrams: Mapping[int, np.ndarray]
+) -> tuple[list[FeatureVector], list[LayoutEntry], str | None]:
+    """Vectors of ``specs`` on ``diagrams`` (dimension -> (k, 2)), their layout and its id."""
+    vectors: list[FeatureVector] = []
+    layout: list[LayoutEntry] = []
+    start = 0
+    for spec in specs:
+        spec_id = spec.spec_id or spec_id_of(spec)
+        values = feature_values(spec, diagrams.get(spec.dim, np.empty((0, 2))))
+        shape = vector_shape(spec)
+        vectors.append(
+            FeatureVector(
+                type=spec.type,
+                dim=spec.dim,
+                spec_id=spec_id,
+                shape=shape,
+                values=values.ravel().tolist(),
+                labels=summary_names(spec.quantiles) if isinstance(spec, SummarySpec) else None,
+            )
+        )
+        layout.append(
+            LayoutEntry(
+                type=spec.type, dim=spec.dim, spec_id=spec_id, start=start, stop=start + values.size
+            )
+        )
+        start += values.size
+    layout_id = layout_id_of([entry.spec_id for entry in layout]) if layout else None
+    return vectors, layout, layout_id

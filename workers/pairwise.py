@@ -1,0 +1,175 @@
+"""Distance matrices: every pair of diagrams (or vectors), on all cores, with progress.
+
+Pairs are split into chunks; with more than one core, forked processes take chunks in turn
+and send each chunk's values back over a pipe as raw float64 bytes (nothing is pickled). The
+children inherit the diagrams through fork and die with their parent (PR_SET_PDEATHSIG), so
+killing a job's compute process stops them too.
+"""
+
+import ctypes
+import json
+import os
+import signal
+from collections.abc import Callable, Sequence
+from multiprocessing.connection import Connection, Pipe, wait
+
+import numpy as np
+
+from workers.core.diagram_distances import (
+    DiagramMetric,
+    distances_for_pairs,
+    essential_counts,
+    vector_distance_matrix,
+)
+from workers.spec.distances import DEFAULT_DIRECTIONS, NullEntry
+from workers.spec.jobs import DistanceTask
+
+__all__ = ["Report", "distance_matrix", "usable_cores"]
+
+Report = Callable[[int, int], None]
+"""(done, total) units of work; called as chunks finish."""
+
+CHUNK_PAIRS = 256
+"""Most pairs per chunk: small enough for steady progress, large enough to amortise a send."""
+
+FORK_FROM_PAIRS = 64
+"""Fewer pairs than this are computed in this process: forking would cost more."""
+
+_PR_SET_PDEATHSIG = 1
+
+
+def usable_cores() -> int:
+    """Cores this process may run on."""
+    return len(os.sched_getaffinity(0))
+
+
+def distance_matrix(
+    items: Sequence[np.ndarray], task: DistanceTask, report: Report, processes: int
+) -> tuple[np.ndarray, list[NullEntry]]:
+    """(N, N) distances of ``items`` under ``task``'s metric (nan: undefined, inf: infinite),
+    and the reason for each entry that is not finite, above the diagonal."""
+    count = len(items)
+    if task.metric in ("euclidean", "cosine"):
+        matrix = vector_distance_matrix(np.asarray(items), task.metric)
+        report(count * (count - 1) // 2, count * (count - 1) // 2)
+        return matrix, _vector_nulls(matrix)
+    metric = DiagramMetric(
+        name=task.metric,  # type: ignore[arg-type]  # a diagram metric: checked at submission
+        order=task.order or 1.0,
+        directions=task.directions or DEFAULT_DIRECTIONS,
+    )
+    rows, cols = np.triu_indices(count, k=1)
+
+    def compute(chunk: np.ndarray) -> np.ndarray:
+        return distances_for_pairs(items, rows[chunk], cols[chunk], metric)
+
+    values = _fan_out(compute, len(rows), processes, report)
+    matrix = np.zeros((count, count))
+    matrix[rows, cols] = values
+    matrix[cols, rows] = values
+    return matrix, _diagram_nulls(matrix, essential_counts(items))
+
+
+def _diagram_nulls(matrix: np.ndarray, essential: np.ndarray) -> list[NullEntry]:
+    return [
+        NullEntry(
+            row=int(i),
+            column=int(j),
+            reason=f"diagram {i} has {essential[i]} classes that never die and diagram {j} has "
+            f"{essential[j]}; such classes are matched only to each other, so the distance is "
+            "infinite",
+        )
+        for i, j in zip(*np.nonzero(np.triu(~np.isfinite(matrix), k=1)), strict=True)
+    ]
+
+
+def _vector_nulls(matrix: np.ndarray) -> list[NullEntry]:
+    return [
+        NullEntry(
+            row=int(i),
+            column=int(j),
+            reason="a vector of all zeros has no direction, so the cosine distance is undefined",
+        )
+        for i, j in zip(*np.nonzero(np.triu(np.isnan(matrix), k=1)), strict=True)
+    ]
+
+
+def _fan_out(
+    compute: Callable[[np.ndarray], np.ndarray], total: int, processes: int, report: Report
+) -> np.ndarray:
+    """compute(indices) over 0..total-1 in chunks, on up to ``processes`` forked processes."""
+    chunks = np.array_split(np.arange(total), max(1, -(-total // CHUNK_PAIRS)))
+    values = np.empty(total)
+    done = 0
+    if processes <= 1 or total < FORK_FROM_PAIRS:
+        for chunk in chunks:
+            values[chunk] = compute(chunk)
+            done += len(chunk)
+            report(done, total)
+        return values
+    processes = min(processes, len(chunks))
+    children: list[tuple[int, Connection]] = []
+    try:
+        for rank in range(processes):
+            receiver, sender = Pipe(duplex=False)
+            pid = os.fork()
+            if pid == 0:  # the child: never returns
+                receiver.close()
+                mine = [(index, chunks[index]) for index in range(rank, len(chunks), processes)]
+                _serve_chunks(compute, mine, sender)
+            sender.close()
+            children.append((pid, receiver))
+        open_ends = {receiver: pid for pid, receiver in children}
+        while open_ends:
+            for ready in wait(list(open_ends)):
+                assert isinstance(ready, Connection)
+                try:
+                    message = ready.recv_bytes()
+                except EOFError:
+                    del open_ends[ready]
+                    continue
+                index = int.from_bytes(message[:8], "little")
+                if index == _FAILED:
+                    raise RuntimeError(json.loads(message[8:])["error"])
+                chunk = chunks[index]
+                values[chunk] = np.frombuffer(message[8:], dtype="<f8")
+                done += len(chunk)
+                report(done, total)
+        if done != total:
+            raise RuntimeError("a distance process ended before sending all its values")
+        return values
+    finally:
+        for pid, receiver in children:
+            receiver.close()
+            try:
+                os.kill(pid, signal.SIGKILL)  # a no-op for one that has exited
+            except ProcessLookupError:
+                pass
+            os.waitpid(pid, 0)
+
+
+_FAILED = (1 << 63) - 1
+"""Chunk index that marks an error message instead of values."""
+
+
+def _serve_chunks(
+    compute: Callable[[np.ndarray], np.ndarray],
+    chunks: list[tuple[int, np.ndarray]],
+    sender: Connection,
+) -> None:
+    """In a forked child: compute every chunk, send each as (index, float64 bytes), exit."""
+    code = 0
+    try:
+        ctypes.CDLL(None, use_errno=True).prctl(_PR_SET_PDEATHSIG, signal.SIGKILL)
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+        for index, chunk in chunks:
+            values = np.ascontiguousarray(compute(chunk), dtype="<f8")
+            sender.send_bytes(index.to_bytes(8, "little") + values.tobytes())
+    except BaseException as error:  # reported to the parent, which raises it
+        code = 1
+        text = json.dumps({"error": f"{type(error).__name__}: {error}"}).encode()
+        sender.send_bytes(_FAILED.to_bytes(8, "little") + text)
+    finally:
+        sender.close()
+        os._exit(code)
+

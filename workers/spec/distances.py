@@ -1,0 +1,230 @@
+"""Distances between diagrams or feature vectors: the request and its result."""
+
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
+
+from workers.spec.capabilities import Limits
+from workers.spec.numbers import FiniteFloat
+from workers.spec.problems import FieldError
+from workers.spec.requests import pair_errors
+from workers.spec.results import Diagram, Dimension, Pair, Provenance
+
+__all__ = [
+    "DIAGRAM_METRICS",
+    "DEFAULT_DIRECTIONS",
+    "DiagramItem",
+    "DistanceRequest",
+    "DistanceResult",
+    "NullEntry",
+    "VECTOR_METRICS",
+    "distance_field_errors",
+]
+
+DIAGRAM_METRICS = ("bottleneck", "wasserstein", "sliced_wasserstein")
+VECTOR_METRICS = ("euclidean", "cosine")
+DEFAULT_DIRECTIONS = 50
+"""Directions of sliced_wasserstein when the request names none (echoed in the result)."""
+
+Metric = Literal["bottleneck", "wasserstein", "sliced_wasserstein", "euclidean", "cosine"]
+
+
+def _diagram_kind(value: Any) -> str | None:
+    if isinstance(value, list):
+        return "pairs"
+    if isinstance(value, dict):
+        return "diagram"
+    return None
+
+
+DiagramItem = Annotated[
+    Annotated[list[Pair], Tag("pairs")] | Annotated[Diagram, Tag("diagram")],
+    Discriminator(
+        _diagram_kind,
+        custom_error_type="diagram_item",
+        custom_error_message='a diagram is a list of [birth, death] pairs or an object '
+        '{"dim": k, "pairs": [...]}',
+    ),
+]
+"""One inline diagram: bare pairs, or a diagram object as results carry them."""
+
+
+class DistanceRequest(BaseModel):
+    """Body of ``POST /v1/distances``: a metric and N diagrams, vectors or finished jobs.
+
+    Diagram metrics (bottleneck, wasserstein, sliced_wasserstein) use the L-infinity ground
+    metric and match classes that never die only to each other. Vector metrics (euclidean,
+    cosine) compare feature vectors: given inline, or the concatenated vectors of jobs.
+    """
+
+    model_config = ConfigDict(extra="forbid")
+
+    metric: Metric
+    order: Annotated[
+        FiniteFloat | None,
+        Field(ge=1, le=64, description="p of wasserstein (default 1); only with wasserstein."),
+    ] = None
+    directions: Annotated[
+        int | None,
+        Field(
+            strict=True,
+            ge=1,
+            le=10_000,
+            description=f"Angles of sliced_wasserstein (default {DEFAULT_DIRECTIONS}).",
+        ),
+    ] = None
+    dim: Annotated[
+        Dimension | None,
+        Field(description="Homology dimension compared; required with job_ids and a diagram "
+        "metric."),
+    ] = None
+    diagrams: Annotated[list[DiagramItem] | None, Field(min_length=1)] = None
+    vectors: Annotated[
+        list[Annotated[list[FiniteFloat], Field(min_length=1)]] | None, Field(min_length=1)
+    ] = None
+    job_ids: Annotated[
+        list[Annotated[str, Field(max_length=64)]] | None,
+        Field(min_length=1, description="Succeeded jobs of this owner, in matrix order."),
+    ] = None
+
+    def field_errors(self, limits: Limits) -> list[FieldError]:
+        """Checks that span several fields or depend on configured limits."""
+        return distance_field_errors(self, limits)
+
+
+class NullEntry(BaseModel):
+    """Why the distance between rows ``row`` and ``column`` is null."""
+
+    row: int
+    column: int
+    reason: str
+
+
+class DistanceResult(BaseModel):
+    """The N x N distance matrix (symmetric, zero diagonal), in the order of the request."""
+
+    job_id: str
+    schema_version: str
+    metric: Metric
+    order: float | None = None
+    directions: int | None = None
+    dim: int | None = None
+    ground_metric: Annotated[
+        Literal["l_infinity"] | None,
+        Field(description="Ground metric between diagram points (diagram metrics only)."),
+    ] = None
+    count: int
+    matrix: Annotated[
+        list[list[float | None]],
+        Field(description="null where the distance is infinite or undefined; see nulls."),
+    ]
+    nulls: Annotated[
+        list[NullEntry], Field(description="One entry per null above the diagonal.")
+    ] = []
+    provenance: Provenance
+
+
+def _sources(request: DistanceRequest) -> list[str]:
+    return [name for name in ("diagrams", "vectors", "job_ids") if getattr(request, name)]
+
+
+def distance_field_errors(request: DistanceRequest, limits: Limits) -> list[FieldError]:
+    """Checks of a DistanceRequest that span fields or depend on configured limits."""
+    errors: list[FieldError] = []
+    sources = _sources(request)
+    diagram_metric = request.metric in DIAGRAM_METRICS
+    if len(sources) != 1:
+        return [
+            FieldError(
+                pointer="",
+                message="send exactly one of diagrams, vectors or job_ids"
+                + (f" (got {', '.join(sources)})" if sources else ""),
+            )
+        ]
+    source = sources[0]
+    if diagram_metric and source == "vectors":
+        errors.append(
+            FieldError(
+                pointer="/vectors",
+                message=f"{request.metric} compares diagrams; vectors take euclidean or cosine",
+            )
+        )
+    if not diagram_metric and source == "diagrams":
+        errors.append(
+            FieldError(
+                pointer="/diagrams",
+                message=f"{request.metric} compares feature vectors; diagrams take bottleneck, "
+                "wasserstein or sliced_wasserstein",
+            )
+        )
+    if request.order is not None and request.metric != "wasserstein":
+        errors.append(FieldError(pointer="/order", message="order is only used by wasserstein"))
+    if request.directions is not None and request.metric != "sliced_wasserstein":
+        errors.append(
+            FieldError(
+                pointer="/directions", message="directions is only used by sliced_wasserstein"
+            )
+        )
+    if request.dim is not None and not diagram_metric:
+        errors.append(FieldError(pointer="/dim", message="dim is only used by diagram metrics"))
+    if source == "job_ids" and diagram_metric and request.dim is None:
+        errors.append(
+            FieldError(pointer="/dim", message="name the homology dimension to compare (dim)")
+        )
+    items = getattr(request, source)
+    if len(items) > limits.max_distance_count:
+        errors.append(
+            FieldError(
+                pointer=f"/{source}",
+                message=f"{len(items)} items is above the limit of "
+                f"{limits.max_distance_count} per distance matrix",
+            )
+        )
+    if source == "diagrams":
+        errors.extend(_diagram_errors(request, limits))
+    if source == "vectors":
+        width = len(request.vectors[0]) if request.vectors else 0
+        for row, vector in enumerate(request.vectors or []):
+            if len(vector) != width:
+                errors.append(
+                    FieldError(
+                        pointer=f"/vectors/{row}",
+                        message=f"vector {row} has {len(vector)} values, vector 0 has {width}",
+                    )
+                )
+                break
+    return errors
+
+
+def _diagram_errors(request: DistanceRequest, limits: Limits) -> list[FieldError]:
+    errors: list[FieldError] = []
+    total = 0
+    first_dim: tuple[int, int] | None = None  # (index, dim) of the first diagram with a dim
+    for index, item in enumerate(request.diagrams or []):
+        pairs = item.pairs if isinstance(item, Diagram) else item
+        where = f"/diagrams/{index}" + ("/pairs" if isinstance(item, Diagram) else "")
+        errors.extend(pair_errors(pairs, where))
+        total += len(pairs)
+        if not isinstance(item, Diagram):
+            continue
+        expected = request.dim if request.dim is not None else first_dim and first_dim[1]
+        if expected is not None and item.dim != expected:
+            said = "dim" if request.dim is not None else f"diagram {first_dim and first_dim[0]}"
+            errors.append(
+                FieldError(
+                    pointer=f"/diagrams/{index}/dim",
+                    message=f"diagram {index} is of dimension {item.dim} but {said} is of "
+                    f"dimension {expected}; distances compare diagrams of one dimension",
+                )
+            )
+        if first_dim is None:
+            first_dim = (index, item.dim)
+    if total > limits.max_input_points:
+        errors.append(
+            FieldError(
+                pointer="/diagrams",
+                message=f"{total} pairs is above the limit of {limits.max_input_points} per "
+                "request",
+            )
+        )
+    return errors

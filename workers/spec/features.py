@@ -1,0 +1,290 @@
+"""Feature specs: how a diagram of one homology dimension becomes a vector of fixed length.
+
+Every grid parameter is part of the spec, never inferred from the data, so two vectors made
+under the same spec mean the same thing whenever and wherever they were computed. A spec's
+``spec_id`` is the SHA-256 of its canonical JSON (``canonical_spec``): every field with its
+default filled in, plus ``spec_version``, keys sorted, no spaces. A client can compute it
+itself; the server recomputes and compares it when a request carries one.
+"""
+
+from typing import Annotated, Any, Literal
+
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Discriminator,
+    Field,
+    RootModel,
+    Tag,
+    ValidationInfo,
+    field_validator,
+)
+
+from workers.spec.arrays import canonical_sha256
+from workers.spec.numbers import FiniteFloat
+
+__all__ = [
+    "FEATURE_SPEC_VERSION",
+    "MAX_FEATURE_DIM",
+    "BettiCurveSpec",
+    "FeatureItem",
+    "FeatureSpec",
+    "FeatureSpecAnswer",
+    "FeatureSpecBody",
+    "feature_spec_answer",
+    "LandscapeSpec",
+    "PersistenceImageSpec",
+    "SpecReference",
+    "SummarySpec",
+    "canonical_spec",
+    "spec_id_of",
+    "vector_shape",
+]
+
+FEATURE_SPEC_VERSION = "1"
+"""Version of the feature computations; part of every spec_id, bumped if any value changes."""
+
+MAX_FEATURE_DIM = 7
+"""Highest homology dimension a feature can name (the filtration decides what exists)."""
+
+Dimension = Annotated[
+    int, Field(strict=True, ge=0, le=MAX_FEATURE_DIM, description="Homology dimension k.")
+]
+
+
+def _increasing(bounds: tuple[float, float]) -> tuple[float, float]:
+    if not bounds[0] < bounds[1]:
+        raise ValueError(f"must be [low, high] with low < high, got {list(bounds)}")
+    return bounds
+
+
+Range = Annotated[
+    tuple[FiniteFloat, FiniteFloat],
+    AfterValidator(_increasing),
+    Field(description="[low, high] with low < high, in the units of the diagram values."),
+]
+Count = Annotated[int, Field(strict=True, ge=1)]
+
+
+class _Feature(BaseModel):
+    """Fields every feature spec has."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    dim: Dimension
+    spec_id: Annotated[
+        str | None,
+        Field(
+            pattern="^[0-9a-f]{64}$",
+            description="Optional: the id this spec is expected to have; a request whose spec "
+            "hashes to another id is refused (422). Not part of the canonical form.",
+        ),
+    ] = None
+    infinite: Annotated[
+        Literal["drop", "cap"],
+        Field(
+            description='Classes that never die: "drop" leaves them out; "cap" ends them at '
+            "`cap` (a class born at or after the cap then has zero persistence and is left "
+            "out)."
+        ),
+    ] = "drop"
+    cap: Annotated[
+        FiniteFloat | None,
+        Field(
+            validate_default=True,
+            description='Death given to classes that never die; required with "cap".',
+        ),
+    ] = None
+
+    @field_validator("cap")
+    @classmethod
+    def _cap_goes_with_infinite(cls, cap: float | None, info: ValidationInfo) -> float | None:
+        infinite = info.data.get("infinite")
+        if infinite == "cap" and cap is None:
+            raise ValueError('infinite "cap" needs a cap value')
+        if infinite == "drop" and cap is not None:
+            raise ValueError('cap is only used with infinite "cap"')
+        return cap
+
+
+class LinearWeight(BaseModel):
+    """w = min(p / max_persistence, 1): ramps up to 1 at ``max_persistence``."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["linear"]
+    max_persistence: Annotated[FiniteFloat, Field(gt=0)]
+
+
+class ConstantWeight(BaseModel):
+    """w = 1 for every point (points on the diagonal are left out all the same)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["constant"]
+
+
+class PowerWeight(BaseModel):
+    """w = p ** exponent."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["power"]
+    exponent: Annotated[FiniteFloat, Field(gt=0, le=16)]
+
+
+Weight = Annotated[LinearWeight | ConstantWeight | PowerWeight, Field(discriminator="type")]
+
+
+class PersistenceImageSpec(_Feature):
+    """Persistence image (Adams et al. 2017) in birth-persistence coordinates.
+
+    Pixel values are integrals of the weighted Gaussians over each pixel. Shape
+    [nx, ny]: row i is the i-th birth interval, column j the j-th persistence interval;
+    values are flattened row-major.
+    """
+
+    type: Literal["persistence_image"]
+    birth_range: Range
+    persistence_range: Range
+    resolution: Annotated[
+        tuple[Count, Count], Field(description="[nx, ny]: pixels along birth, persistence.")
+    ]
+    sigma: Annotated[
+        FiniteFloat, Field(gt=0, description="Standard deviation of the Gaussian, value units.")
+    ]
+    weight: Weight
+
+    @field_validator("persistence_range")
+    @classmethod
+    def _persistence_is_not_negative(cls, bounds: tuple[float, float]) -> tuple[float, float]:
+        if bounds[0] < 0:
+            raise ValueError("persistence_range cannot start below 0")
+        return bounds
+
+
+class LandscapeSpec(_Feature):
+    """Persistence landscape (Bubenik 2015): lambda_1..lambda_levels sampled at ``samples``
+    evenly spaced values of t from t_range[0] to t_range[1] (both included). Shape
+    [levels, samples]."""
+
+    type: Literal["landscape"]
+    levels: Count
+    t_range: Range
+    samples: Annotated[int, Field(strict=True, ge=2)]
+
+
+class BettiCurveSpec(_Feature):
+    """Betti curve: the number of classes with birth <= t < death at ``samples`` evenly
+    spaced values of t from t_range[0] to t_range[1] (both included). Shape [samples]."""
+
+    type: Literal["betti_curve"]
+    t_range: Range
+    samples: Annotated[int, Field(strict=True, ge=2)]
+
+
+DEFAULT_QUANTILES = (0.1, 0.25, 0.5, 0.75, 0.9)
+
+
+class SummarySpec(_Feature):
+    """Lifetime statistics, in this order: count, total_persistence (sum of lifetime ** order),
+    max_persistence, mean_lifetime, std_lifetime (population), persistent_entropy (natural
+    log), then one quantile of lifetime per entry of ``quantiles`` (linear interpolation).
+    An empty diagram gives zeros. Shape [6 + len(quantiles)]."""
+
+    type: Literal["summary"]
+    order: Annotated[FiniteFloat, Field(gt=0, le=16)] = 1.0
+    quantiles: Annotated[
+        list[Annotated[FiniteFloat, Field(ge=0, le=1)]], Field(max_length=64)
+    ] = list(DEFAULT_QUANTILES)
+
+
+FeatureSpec = Annotated[
+    PersistenceImageSpec | LandscapeSpec | BettiCurveSpec | SummarySpec,
+    Field(discriminator="type"),
+]
+"""Every vectorisation, told apart by ``type``."""
+
+
+class SpecReference(BaseModel):
+    """A feature spec registered earlier with ``POST /v1/feature-specs``, by its id."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    spec_id: Annotated[str, Field(pattern="^[0-9a-f]{64}$")]
+
+
+def _feature_kind(value: Any) -> str | None:
+    if isinstance(value, dict):
+        return "spec" if "type" in value else "reference"
+    return None
+
+
+FeatureItem = Annotated[
+    Annotated[FeatureSpec, Tag("spec")] | Annotated[SpecReference, Tag("reference")],
+    Discriminator(
+        _feature_kind,
+        custom_error_type="feature_item",
+        custom_error_message='a feature is an object: a spec with "type" and "dim", or '
+        '{"spec_id": ...} naming a registered spec',
+    ),
+]
+"""One entry of a request's ``features``: a whole spec, or the id of a registered one."""
+
+
+class FeatureSpecAnswer(BaseModel):
+    """Answer of ``POST /v1/feature-specs``: the canonical form and its id."""
+
+    spec_id: str
+    spec_version: str
+    vector_length: int
+    shape: list[int]
+    canonical: Annotated[
+        dict[str, Any],
+        Field(description="The spec with every default filled in; spec_id hashes this."),
+    ]
+
+
+class FeatureSpecBody(RootModel[FeatureSpec]):
+    """Body of ``POST /v1/feature-specs``: one feature spec."""
+
+
+def feature_spec_answer(spec: BaseModel) -> FeatureSpecAnswer:
+    """What ``/v1/feature-specs`` answers for ``spec``."""
+    shape = vector_shape(spec)
+    length = 1
+    for size in shape:
+        length *= size
+    return FeatureSpecAnswer(
+        spec_id=spec_id_of(spec),
+        spec_version=FEATURE_SPEC_VERSION,
+        vector_length=length,
+        shape=shape,
+        canonical=canonical_spec(spec),
+    )
+
+
+def canonical_spec(spec: BaseModel) -> dict[str, Any]:
+    """The spec as hashed: every field (defaults included) plus ``spec_version``."""
+    document = spec.model_dump(mode="json", exclude={"spec_id"})
+    document["spec_version"] = FEATURE_SPEC_VERSION
+    return document
+
+
+def spec_id_of(spec: BaseModel) -> str:
+    """SHA-256 of the canonical JSON of ``spec`` (sorted keys, no spaces, UTF-8)."""
+    return canonical_sha256(canonical_spec(spec))
+
+
+def vector_shape(spec: BaseModel) -> list[int]:
+    """Shape of the values a spec produces (their product is the vector length)."""
+    if isinstance(spec, PersistenceImageSpec):
+        return list(spec.resolution)
+    if isinstance(spec, LandscapeSpec):
+        return [spec.levels, spec.samples]
+    if isinstance(spec, BettiCurveSpec):
+        return [spec.samples]
+    if isinstance(spec, SummarySpec):
+        return [6 + len(spec.quantiles)]
+    raise TypeError(f"not a feature spec: {type(spec).__name__}")
