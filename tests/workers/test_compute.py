@@ -8,7 +8,7 @@ import numpy as np
 import pytest
 
 from tests.processes import running
-from workers.compute import ComputeProcess, JobAborted
+from workers.compute import ComputeProcess, JobAborted, Report
 from workers.jobs import execute_bytes
 from workers.spec import JobPayload
 from workers.spec.arrays import array_sha256, to_npy_bytes
@@ -23,7 +23,7 @@ def payload(points: np.ndarray, max_dim: int) -> JobPayload:
                 "shape": list(points.shape),
                 "sha256": array_sha256(points),
             },
-            "filtration": {"type": "rips", "max_dim": max_dim},
+            "task": {"type": "persistence", "filtration": {"type": "rips", "max_dim": max_dim}},
             "request_sha256": "0" * 64,
             "time_limit_s": 1,
         }
@@ -70,7 +70,7 @@ def test_time_limit_kills_the_native_loop(compute: ComputeProcess) -> None:
     assert compute.pid not in (None, old_pid)
 
 
-def _exit_mid_job(header: dict, data: bytes) -> dict:
+def _exit_mid_job(header: dict, data: bytes, report: Report) -> dict:
     os._exit(3)  # what an out-of-memory kill or a segfault looks like from outside
 
 

@@ -33,12 +33,15 @@ def _covers(rows: np.ndarray, cols: np.ndarray, wanted: np.ndarray, width: int) 
     if need == 0:
         return True
     keep = wanted[rows]
-    rows, cols = rows[keep], cols[keep]
-    if np.unique(rows).size < need:  # a big point with no edge at all
+    index = (np.cumsum(wanted) - 1)[rows[keep]]  # the wanted rows renumbered 0..need-1
+    per_row = np.bincount(index, minlength=need)
+    if not per_row.all():  # a big point with no edge at all
         return False
-    index = np.cumsum(wanted) - 1  # renumber the wanted rows 0..need-1
+    indptr = np.zeros(need + 1, dtype=np.int32)
+    np.cumsum(per_row, out=indptr[1:])
+    indices = cols[keep][np.argsort(index, kind="stable")].astype(np.int32)
     graph = csr_matrix(
-        (np.ones(rows.size, dtype=np.int8), (index[rows], cols)), shape=(need, width)
+        (np.ones(indices.size, dtype=np.int8), indices, indptr), shape=(need, width)
     )
     match = maximum_bipartite_matching(graph, perm_type="column")
     return bool((match >= 0).sum() == need)
