@@ -60,7 +60,7 @@ def summary(pairs: np.ndarray, *, order: float, quantiles: Sequence[float]) -> n
         lives.max(),
         lives.mean(),
         lives.std(),
-        float(-(shares * np.log(shares)).sum()),
+        float(-(shares * np.log(shares)).sum()) + 0.0,  # + 0.0: one bar gives 0, not -0
     )
     values[6:] = np.quantile(lives, list(quantiles)) if len(quantiles) else []
     return values
