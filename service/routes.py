@@ -152,7 +152,7 @@ def submit_distances() -> tuple[Response, int, dict[str, str]]:
     job = state.queue.submit(submission, owner)
     wait = _requested_wait()
     count = submission.task.count if isinstance(submission.task, DistanceTask) else 0
-    if "wait" not in request.headers.get("Prefer", "") and (
+    if _WAIT.search(request.headers.get("Prefer", "")) is None and (
         count * (count - 1) // 2 <= state.settings.inline_distance_pairs
     ):
         wait = state.settings.max_wait_s

@@ -32,6 +32,7 @@ from workers.spec import (
     failures,
 )
 from workers.spec.arrays import array_sha256, diagrams_of_rows, from_npy_bytes
+from workers.spec.features import vector_length
 from workers.spec.jobs import cancel_key, input_key
 from workers.spec.results import package_versions
 
@@ -171,7 +172,10 @@ add overhead."""
 
 INLINE_MAX_PAIRS = 5000
 """Jobs on given diagrams up to this many pairs run in the worker itself (features of 5000
-pairs take a few ms)."""
+pairs take a few ms)..."""
+
+INLINE_MAX_VALUES = 10_000
+"""... when their feature vectors have at most this many values together."""
 
 
 def _checked_input(data: object, payload: JobPayload) -> np.ndarray:
@@ -193,7 +197,8 @@ def _runs_inline(payload: JobPayload) -> bool:
     if isinstance(task, DistanceTask):
         return task.count <= 8 and rows <= 2000
     if task.filtration is None:
-        return rows <= INLINE_MAX_PAIRS
+        values = sum(vector_length(spec) for spec in task.features)
+        return rows <= INLINE_MAX_PAIRS and values <= INLINE_MAX_VALUES
     return rows <= INLINE_MAX_POINTS and task.filtration.max_dim <= 1 and (
         task.filtration.subsample is None
     )

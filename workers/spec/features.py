@@ -7,6 +7,7 @@ default filled in, plus ``spec_version``, keys sorted, no spaces. A client can c
 itself; the server recomputes and compares it when a request carries one.
 """
 
+import math
 from typing import Annotated, Any, Literal
 
 from pydantic import (
@@ -39,6 +40,7 @@ __all__ = [
     "SummarySpec",
     "canonical_spec",
     "spec_id_of",
+    "vector_length",
     "vector_shape",
 ]
 
@@ -252,15 +254,11 @@ class FeatureSpecBody(RootModel[FeatureSpec]):
 
 def feature_spec_answer(spec: BaseModel) -> FeatureSpecAnswer:
     """What ``/v1/feature-specs`` answers for ``spec``."""
-    shape = vector_shape(spec)
-    length = 1
-    for size in shape:
-        length *= size
     return FeatureSpecAnswer(
         spec_id=spec_id_of(spec),
         spec_version=FEATURE_SPEC_VERSION,
-        vector_length=length,
-        shape=shape,
+        vector_length=vector_length(spec),
+        shape=vector_shape(spec),
         canonical=canonical_spec(spec),
     )
 
@@ -288,3 +286,8 @@ def vector_shape(spec: BaseModel) -> list[int]:
     if isinstance(spec, SummarySpec):
         return [6 + len(spec.quantiles)]
     raise TypeError(f"not a feature spec: {type(spec).__name__}")
+
+
+def vector_length(spec: BaseModel) -> int:
+    """Number of values a spec produces."""
+    return math.prod(vector_shape(spec))

@@ -13,7 +13,7 @@ from workers.spec.features import (
     PersistenceImageSpec,
     SpecReference,
     spec_id_of,
-    vector_shape,
+    vector_length,
 )
 from workers.spec.filtrations import Filtration
 from workers.spec.inputs import DiagramsInput, Input, PointsInput
@@ -209,7 +209,7 @@ class JobRequest(BaseModel):
                         "given; the spec differs from the one the id names",
                     )
                 )
-            length = _length(item)
+            length = vector_length(item)
             total += length
             if length > limits.max_vector_length:
                 errors.append(
@@ -228,13 +228,6 @@ class JobRequest(BaseModel):
                 )
             )
         return errors
-
-
-def _length(spec: FeatureSpec) -> int:
-    length = 1
-    for size in vector_shape(spec):
-        length *= size
-    return length
 
 
 def pair_errors(pairs: list[tuple[float, float | None]], where: str) -> list[FieldError]:
