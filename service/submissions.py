@@ -62,7 +62,7 @@ def job_submission(request: JobRequest) -> Submission:
         array=array,
         input_type="diagrams",
         units=request.input.units,
-        task=task,
+        task=task.model_copy(update={"given_dims": [d.dim for d in request.input.diagrams]}),
         described=described,
         description=f"features of {len(array)} given pairs",
     )
@@ -92,7 +92,7 @@ def distance_submission(
         directions=(request.directions or DEFAULT_DIRECTIONS)
         if request.metric == "sliced_wasserstein"
         else None,
-        dim=request.dim if diagram_metric else None,
+        dim=_dimension_of(request) if diagram_metric else None,
         count=count,
     )
     return Submission(
@@ -103,6 +103,14 @@ def distance_submission(
         described=described,
         description=f"{request.metric} between {count} items",
     )
+
+
+def _dimension_of(request: DistanceRequest) -> int | None:
+    """The dimension compared: named in the request, or carried by the diagram objects."""
+    if request.dim is not None:
+        return request.dim
+    dims = [item.dim for item in request.diagrams or [] if isinstance(item, Diagram)]
+    return dims[0] if dims else None
 
 
 def _from_results(

@@ -89,8 +89,7 @@ def _persistence(
         computed = rips_diagrams(points, max_dim=filtration.max_dim, max_edge=filtration.max_edge)
         diagrams = dict(enumerate(computed))
     else:  # given diagrams, rows of (dim, birth, death)
-        labels = sorted({int(label) for label in array[:, 0]}) if len(array) else []
-        given = diagrams_of_rows(array, labels)
+        given = diagrams_of_rows(array, sorted(task.given_dims))
         diagrams = {dim: sort_pairs(drop_empty_bars(pairs)) for dim, pairs in given.items()}
     vectors, layout, layout_id = feature_vectors(task.features, diagrams)
     result = JobResult(

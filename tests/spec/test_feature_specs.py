@@ -1,10 +1,13 @@
 """Feature spec ids: the SHA-256 of a documented canonical JSON, stable across releases."""
 
 import hashlib
-import json
 
+import numpy as np
+import pytest
+import rfc8785
 from pydantic import TypeAdapter
 
+from workers.spec.arrays import canonical_json
 from workers.spec.features import FEATURE_SPEC_VERSION, FeatureSpec, canonical_spec, spec_id_of
 
 SPEC = TypeAdapter(FeatureSpec)
@@ -20,14 +23,30 @@ IMAGE = {
 }
 
 
-def test_spec_id_is_sha256_of_the_documented_canonical_json() -> None:
-    # A client can compute the id itself: sorted keys, no spaces, UTF-8 (as documented).
+def test_spec_id_is_sha256_of_the_rfc8785_canonical_json() -> None:
+    # A client can compute the id itself with any JSON Canonicalization Scheme library;
+    # rfc8785 (PyPI) is the reference implementation checked against here.
     spec = SPEC.validate_python(IMAGE)
     canonical = dict(IMAGE, infinite="drop", cap=None, spec_version=FEATURE_SPEC_VERSION)
-    canonical["birth_range"] = [0.0, 1.0]
-    canonical["persistence_range"] = [0.0, 0.5]
-    text = json.dumps(canonical, sort_keys=True, separators=(",", ":"))
-    assert spec_id_of(spec) == hashlib.sha256(text.encode("utf-8")).hexdigest()
+    assert spec_id_of(spec) == hashlib.sha256(rfc8785.dumps(canonical)).hexdigest()
+
+
+@pytest.mark.parametrize(
+    "value",
+    # Number forms of RFC 8785 section 3.2.2.3 (ECMAScript Number::toString), from memory:
+    # integers lose ".0", exponents from 1e21 up and below 1e-6, "-0" is "0".
+    [1.0, 100.0, 1e21, 1e20, 1e-7, 1e-6, 0.00001, 4.5, 0.002, -0.0, 333333333.3333333, 5e-324],
+)
+def test_numbers_are_written_as_rfc8785_writes_them(value: float) -> None:
+    assert canonical_json(value) == rfc8785.dumps(value).decode()
+
+
+def test_random_documents_match_the_rfc8785_reference() -> None:
+    rng = np.random.default_rng(0)
+    for _ in range(200):
+        values = (rng.standard_normal(8) * 10.0 ** rng.integers(-30, 30, 8)).tolist()
+        document = {"z": values, "a": {"é\n": values[:2], "b": [1, None, True, "x"]}}
+        assert canonical_json(document) == rfc8785.dumps(document).decode()
 
 
 def test_defaults_are_part_of_the_canonical_form() -> None:
@@ -73,5 +92,5 @@ def test_ids_stay_the_same_across_releases() -> None:
     assert spec_id_of(SPEC.validate_python(landscape)) == PINNED_LANDSCAPE_ID
 
 
-PINNED_IMAGE_ID = "445c2e7213b6bf564342702e87496be66913b01f5d8bcd5663242afab1aef8c1"
-PINNED_LANDSCAPE_ID = "a8f9ea3c2af056e6f2e846f58b467ce00ab15f913d50b5394b4206ae703b6a33"
+PINNED_IMAGE_ID = "a776c33fbefdbcf78166eb1c550ae2abeea67e63c3d63176d12dd5a7276a5587"
+PINNED_LANDSCAPE_ID = "192cc61333fa29f4a0f34f6ae79e224753c77bcdd5ed5fcc32a7fff83e4c1ad5"

@@ -3,12 +3,15 @@
 import hashlib
 import io
 import json
+import math
+from decimal import Decimal
 from typing import Any
 
 import numpy as np
 
 __all__ = [
     "array_sha256",
+    "canonical_json",
     "canonical_sha256",
     "diagram_rows",
     "diagrams_of_rows",
@@ -39,9 +42,58 @@ def array_sha256(array: np.ndarray) -> str:
 
 
 def canonical_sha256(document: Any) -> str:
-    """SHA-256 of the canonical JSON of ``document``: sorted keys, no spaces, UTF-8."""
-    text = json.dumps(document, sort_keys=True, separators=(",", ":"), allow_nan=False)
-    return hashlib.sha256(text.encode("utf-8")).hexdigest()
+    """SHA-256 of the canonical JSON of ``document`` (RFC 8785, UTF-8)."""
+    return hashlib.sha256(canonical_json(document).encode("utf-8")).hexdigest()
+
+
+def canonical_json(document: Any) -> str:
+    """``document`` in the JSON Canonicalization Scheme (RFC 8785).
+
+    Keys sorted, no white space, strings escaped as JSON.stringify does, and numbers written
+    as ECMAScript writes them (1.0 -> 1, 1e-7 -> 1e-7, 0.00001 -> 0.00001), so a client in any
+    language with a JCS library gets the same text, and the same hash, for the same document.
+    """
+    if isinstance(document, dict):
+        items = sorted(document.items())
+        return "{" + ",".join(f"{_string(k)}:{canonical_json(v)}" for k, v in items) + "}"
+    if isinstance(document, list | tuple):
+        return "[" + ",".join(canonical_json(item) for item in document) + "]"
+    if isinstance(document, str):
+        return _string(document)
+    if document is None or isinstance(document, bool):
+        return json.dumps(document)
+    if isinstance(document, int):
+        return str(document)
+    if isinstance(document, float):
+        return _number(document)
+    raise TypeError(f"not JSON: {type(document).__name__}")
+
+
+def _string(text: str) -> str:
+    return json.dumps(text, ensure_ascii=False)
+
+
+def _number(value: float) -> str:
+    """ECMAScript's Number::toString (ECMA-262, 7.1.12.1), as RFC 8785 requires."""
+    if not math.isfinite(value):
+        raise ValueError("JSON has no NaN or Infinity")
+    if value == 0:
+        return "0"
+    sign = "-" if value < 0 else ""
+    # repr gives the shortest digits that round-trip, as ECMAScript does.
+    _, digit_tuple, exponent = Decimal(repr(abs(value))).normalize().as_tuple()
+    digits = "".join(map(str, digit_tuple))
+    k, n = len(digits), int(exponent) + len(digits)  # value = 0.digits * 10**n
+    if k <= n <= 21:
+        text = digits + "0" * (n - k)
+    elif 0 < n <= 21:
+        text = digits[:n] + "." + digits[n:]
+    elif -6 < n <= 0:
+        text = "0." + "0" * -n + digits
+    else:
+        mantissa = digits if k == 1 else digits[0] + "." + digits[1:]
+        text = f"{mantissa}e{'+' if n - 1 >= 0 else '-'}{abs(n - 1)}"
+    return sign + text
 
 
 def diagram_rows(diagrams: list[tuple[int, list[tuple[float, float | None]]]]) -> np.ndarray:

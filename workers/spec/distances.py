@@ -30,9 +30,10 @@ Metric = Literal["bottleneck", "wasserstein", "sliced_wasserstein", "euclidean",
 
 
 def _diagram_kind(value: Any) -> str | None:
-    if isinstance(value, list):
+    """Which member an inline diagram is: raw JSON when validating, parsed when dumping."""
+    if isinstance(value, list | tuple):
         return "pairs"
-    if isinstance(value, dict):
+    if isinstance(value, dict | Diagram):
         return "diagram"
     return None
 

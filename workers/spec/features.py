@@ -3,8 +3,9 @@
 Every grid parameter is part of the spec, never inferred from the data, so two vectors made
 under the same spec mean the same thing whenever and wherever they were computed. A spec's
 ``spec_id`` is the SHA-256 of its canonical JSON (``canonical_spec``): every field with its
-default filled in, plus ``spec_version``, keys sorted, no spaces. A client can compute it
-itself; the server recomputes and compares it when a request carries one.
+default filled in, plus ``spec_version``, written in the JSON Canonicalization Scheme
+(RFC 8785). A client with any JCS library can compute it itself; the server recomputes and
+compares it when a request carries one.
 """
 
 import math
@@ -218,8 +219,13 @@ class SpecReference(BaseModel):
 
 
 def _feature_kind(value: Any) -> str | None:
+    """Which member a feature item is: raw JSON when validating, a model when dumping."""
     if isinstance(value, dict):
         return "spec" if "type" in value else "reference"
+    if isinstance(value, SpecReference):
+        return "reference"
+    if isinstance(value, _Feature):
+        return "spec"
     return None
 
 
@@ -271,7 +277,7 @@ def canonical_spec(spec: BaseModel) -> dict[str, Any]:
 
 
 def spec_id_of(spec: BaseModel) -> str:
-    """SHA-256 of the canonical JSON of ``spec`` (sorted keys, no spaces, UTF-8)."""
+    """SHA-256 of the canonical JSON (RFC 8785) of ``spec``, UTF-8."""
     return canonical_sha256(canonical_spec(spec))
 
 

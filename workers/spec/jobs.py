@@ -100,6 +100,11 @@ class PersistenceTask(BaseModel):
 
     type: Literal["persistence"]
     filtration: Filtration | None
+    given_dims: Annotated[
+        list[int],
+        Field(description="Dimensions of the given diagrams, empty ones included (input "
+        "type diagrams)."),
+    ] = []
     features: Annotated[
         list[FeatureSpec], Field(description="Resolved specs, each with its spec_id set.")
     ] = []

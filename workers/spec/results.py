@@ -90,8 +90,9 @@ class Provenance(BaseModel):
     request_sha256: Annotated[
         str,
         Field(
-            description="SHA-256 of the canonical JSON (sorted keys, no spaces) of the request "
-            "with the input array replaced by input_sha256."
+            description='SHA-256 of the canonical JSON (RFC 8785) of {"request": the request '
+            'with its input array set to null, "input_sha256": input_sha256}; features named '
+            "by spec_id count as the specs they name."
         ),
     ]
     versions: dict[str, str]
