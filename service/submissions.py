@@ -20,7 +20,7 @@ from workers.spec import (
 )
 from workers.spec.arrays import diagram_rows
 from workers.spec.distances import DEFAULT_DIRECTIONS, DIAGRAM_METRICS
-from workers.spec.jobs import StoredInput
+from workers.spec.jobs import StoredInput, StoredType
 from workers.spec.results import Diagram
 
 __all__ = ["Submission", "job_submission", "distance_submission"]
@@ -31,7 +31,7 @@ class Submission:
     """One job ready for the queue."""
 
     array: np.ndarray
-    input_type: Any  # StoredInput's literal type
+    input_type: StoredType
     units: str | None
     task: PersistenceTask | DistanceTask
     described: dict[str, Any]
@@ -74,6 +74,7 @@ def distance_submission(
     """A ``POST /v1/distances`` request; ``results`` are those of its job_ids, in order."""
     diagram_metric = request.metric in DIAGRAM_METRICS
     described = request.model_dump(mode="json")
+    input_type: StoredType
     if results is not None:
         array, input_type = _from_results(request, results, diagram_metric)
     elif request.vectors is not None:
@@ -115,7 +116,7 @@ def _dimension_of(request: DistanceRequest) -> int | None:
 
 def _from_results(
     request: DistanceRequest, results: list[dict[str, Any]], diagram_metric: bool
-) -> tuple[np.ndarray, str]:
+) -> tuple[np.ndarray, StoredType]:
     """The diagrams of dimension ``dim``, or the concatenated vectors, of finished jobs."""
     errors: list[FieldError] = []
     if diagram_metric:

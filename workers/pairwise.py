@@ -35,6 +35,9 @@ CHUNK_PAIRS = 256
 FORK_FROM_PAIRS = 64
 """Fewer pairs than this are computed in this process: forking would cost more."""
 
+_FAILED = (1 << 63) - 1
+"""Chunk index that marks an error message instead of values."""
+
 _PR_SET_PDEATHSIG = 1
 
 
@@ -146,10 +149,6 @@ def _fan_out(
             except ProcessLookupError:
                 pass
             os.waitpid(pid, 0)
-
-
-_FAILED = (1 << 63) - 1
-"""Chunk index that marks an error message instead of values."""
 
 
 def _serve_chunks(

@@ -22,6 +22,7 @@ __all__ = [
     "PersistenceTask",
     "Progress",
     "StoredInput",
+    "StoredType",
     "cancel_key",
     "input_key",
 ]
@@ -78,6 +79,9 @@ class JobStatus(BaseModel):
     links: dict[str, str]
 
 
+StoredType = Literal["points", "diagrams", "diagram_set", "vectors"]
+
+
 class StoredInput(BaseModel):
     """Description of an input array kept in Redis next to the job (not on the queue).
 
@@ -87,7 +91,7 @@ class StoredInput(BaseModel):
 
     model_config = ConfigDict(extra="forbid")
 
-    type: Literal["points", "diagrams", "diagram_set", "vectors"]
+    type: StoredType
     shape: tuple[int, int]
     sha256: str
     units: str | None = None
