@@ -27,24 +27,34 @@ from workers.core.matching import edges_within, half_persistence
 __all__ = ["bottleneck_distance"]
 
 
-def _covers(rows: np.ndarray, cols: np.ndarray, wanted: np.ndarray, width: int) -> bool:
-    """Is there a matching on edges (rows, cols) covering every row where ``wanted``?"""
+def _covering(
+    rows: np.ndarray, cols: np.ndarray, wanted: np.ndarray, width: int
+) -> np.ndarray | None:
+    """A matching on edges (rows, cols) covering every row where ``wanted``, as the set of
+    matched columns (a boolean mask of ``width``), or None if there is none."""
     need = int(wanted.sum())
     if need == 0:
-        return True
+        return np.zeros(width, dtype=bool)
     keep = wanted[rows]
     index = (np.cumsum(wanted) - 1)[rows[keep]]  # the wanted rows renumbered 0..need-1
     per_row = np.bincount(index, minlength=need)
     if not per_row.all():  # a big point with no edge at all
-        return False
+        return None
     indptr = np.zeros(need + 1, dtype=np.int32)
     np.cumsum(per_row, out=indptr[1:])
-    indices = cols[keep][np.argsort(index, kind="stable")].astype(np.int32)
+    # Column order within each row: scipy's Hopcroft-Karp is orders of magnitude slower on
+    # rows whose columns are unsorted (seen: 21 s against 0.05 s on 47k edges).
+    kept_cols = cols[keep]
+    indices = kept_cols[np.lexsort((kept_cols, index))].astype(np.int32)
     graph = csr_matrix(
         (np.ones(indices.size, dtype=np.int8), indices, indptr), shape=(need, width)
     )
     match = maximum_bipartite_matching(graph, perm_type="column")
-    return bool((match >= 0).sum() == need)
+    if (match >= 0).sum() < need:
+        return None
+    matched = np.zeros(width, dtype=bool)
+    matched[match[match >= 0]] = True
+    return matched
 
 
 def bottleneck_distance(a: np.ndarray, b: np.ndarray) -> float:
@@ -64,7 +74,9 @@ def bottleneck_distance(a: np.ndarray, b: np.ndarray) -> float:
         rows, cols, costs = _edges_up_to(a, b, half_a, half_b, lower, reach)
         if reach >= upper or _feasible(rows, cols, costs, half_a, half_b, reach):
             break
-        lower, reach = reach, max(2 * reach, np.nextafter(reach, np.inf))
+        # Double, but from at least a millionth of the upper bound: a lower bound of 0 (exact
+        # copies on both sides) would otherwise take a thousand doublings from 5e-324.
+        lower, reach = reach, max(2 * reach, upper * 2.0**-20)
     if reach == lower:
         return float(lower)
     # Now infeasible at `lower`, feasible at `reach`: the answer is a candidate in between.
@@ -81,10 +93,18 @@ def bottleneck_distance(a: np.ndarray, b: np.ndarray) -> float:
 
 
 def _lower_bound(a: np.ndarray, b: np.ndarray, half_a: np.ndarray, half_b: np.ndarray) -> float:
-    """max over all points of the cheapest option each has: a candidate value and a bound."""
+    """A lower bound that is itself a candidate value: every point pays at least its cheapest
+    option, and Hall's condition must hold for the big points of each side."""
     nearest_a, _ = cKDTree(b).query(a, k=1, p=np.inf)
     nearest_b, _ = cKDTree(a).query(b, k=1, p=np.inf)
-    return float(max(np.minimum(half_a, nearest_a).max(), np.minimum(half_b, nearest_b).max()))
+    # Hall's condition on the whole diagram: at most m points of a can be farther than the
+    # answer from the diagonal (they need distinct partners in b), and vice versa.
+    by_count = [
+        float(np.sort(half)[::-1][other]) if len(half) > other else 0.0
+        for half, other in ((half_a, len(b)), (half_b, len(a)))
+    ]
+    cheapest = [np.minimum(half_a, nearest_a).max(), np.minimum(half_b, nearest_b).max()]
+    return float(max(*cheapest, *by_count))
 
 
 def _edges_up_to(
@@ -95,18 +115,30 @@ def _edges_up_to(
     Such an edge has an end farther than the threshold from the diagonal, so it is found
     from the points with half persistence > lower, which are few near the answer.
     """
+    big_a = np.flatnonzero(half_a > lower)
+    big_b = np.flatnonzero(half_b > lower)
+    a_is_big = half_a > lower
+
+    # An edge must cost less than the larger half persistence of its ends. Edges with a big
+    # end in a come from the scan of those rows; the scan from b's big points skips them.
+    def from_a(block: slice) -> np.ndarray:
+        larger = np.maximum(half_a[big_a[block], None], half_b[None, :])
+        limit: np.ndarray = np.minimum(reach, np.nextafter(larger, -np.inf))
+        return limit
+
+    def from_b(block: slice) -> np.ndarray:
+        limit = np.minimum(reach, np.nextafter(half_b[big_b[block], None], -np.inf))
+        return np.where(a_is_big[None, :], -np.inf, limit)
+
     found = []
-    for mine, theirs, half, swap in ((a, b, half_a, False), (b, a, half_b, True)):
-        big = np.flatnonzero(half > lower)
-        # an edge must cost less than the half persistence of its big end
-        limits = np.minimum(reach, np.nextafter(half[big], -np.inf))[:, None]
-        rows, cols, costs = edges_within(mine[big], theirs, limits.__getitem__)
+    for big, mine, theirs, limits, swap in (
+        (big_a, a, b, from_a, False),
+        (big_b, b, a, from_b, True),
+    ):
+        rows, cols, costs = edges_within(mine[big], theirs, limits)
         rows = big[rows]
         found.append((cols, rows, costs) if swap else (rows, cols, costs))
     rows, cols, costs = (np.concatenate(part) for part in zip(*found, strict=True))
-    # An edge with two big ends is found from both sides.
-    _, first = np.unique(rows.astype(np.int64) * len(b) + cols, return_index=True)
-    rows, cols, costs = rows[first], cols[first], costs[first]
     order = np.argsort(costs, kind="stable")
     return rows[order], cols[order], costs[order]
 
@@ -122,6 +154,10 @@ def _feasible(
     """Can every point farther than r from the diagonal be matched within r?"""
     within = int(np.searchsorted(costs, r, side="right"))
     rows, cols = rows[:within], cols[:within]
-    return _covers(rows, cols, half_a > r, len(half_b)) and _covers(
-        cols, rows, half_b > r, len(half_a)
-    )
+    big_b = half_b > r
+    matched_b = _covering(rows, cols, half_a > r, len(half_b))
+    if matched_b is None:
+        return False
+    if not (big_b & ~matched_b).any():  # that matching already covers B's big points
+        return True
+    return _covering(cols, rows, big_b, len(half_a)) is not None
