@@ -9,7 +9,8 @@ import json
 from pydantic import TypeAdapter
 from redis import Redis
 
-from workers.spec import FeatureSpec
+from service.errors import RequestInvalid
+from workers.spec import FeatureSpec, FieldError, JobRequest
 from workers.spec.features import spec_id_of
 
 __all__ = ["FeatureSpecStore"]
@@ -33,6 +34,24 @@ class FeatureSpecStore:
         document = spec.model_dump(mode="json", exclude={"spec_id"})
         self.redis.set(_key(spec_id), json.dumps(document, sort_keys=True))
         return spec_id
+
+    def resolve(self, request: JobRequest) -> JobRequest:
+        """``request`` with every feature given by spec_id replaced by the registered spec;
+        RequestInvalid pointing at each id that is not registered."""
+        references = request.references()
+        found = self.find([spec_id for _, spec_id in references])
+        missing = [
+            FieldError(
+                pointer=f"/features/{index}/spec_id",
+                message=f"no spec is registered under {spec_id}; POST the spec to "
+                "/v1/feature-specs first",
+            )
+            for index, spec_id in references
+            if spec_id not in found
+        ]
+        if missing:
+            raise RequestInvalid(missing)
+        return request.with_features({index: found[spec_id] for index, spec_id in references})
 
     def find(self, spec_ids: list[str]) -> dict[str, FeatureSpec]:
         """The registered specs among ``spec_ids`` (unknown ids are absent from the answer)."""

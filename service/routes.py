@@ -13,8 +13,8 @@ from service.errors import BodyNotJson, FeatureSpecNotFound, RequestInvalid
 from service.extension import ServiceState
 from service.queue import Job
 from service.submissions import distance_submission, job_submission
-from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
-from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_of
+from workers.spec import DistanceRequest, DistanceTask, JobRequest, JobState
+from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
 
 __all__ = ["v1", "health"]
 
@@ -75,30 +75,12 @@ def _result_response(result: dict[str, Any]) -> Response:
     return Response(npy_bytes(array), mimetype=NPY_MEDIA_TYPE)
 
 
-def _resolved(job_request: JobRequest) -> JobRequest:
-    """``job_request`` with every feature given by spec_id replaced by the registered spec."""
-    references = job_request.references()
-    found = _state().feature_specs.find([spec_id for _, spec_id in references])
-    missing = [
-        FieldError(
-            pointer=f"/features/{index}/spec_id",
-            message=f"no spec is registered under {spec_id}; POST the spec to "
-            "/v1/feature-specs first",
-        )
-        for index, spec_id in references
-        if spec_id not in found
-    ]
-    if missing:
-        raise RequestInvalid(missing)
-    return job_request.with_features({index: found[spec_id] for index, spec_id in references})
-
-
 @v1.post("/jobs")
 def submit_job() -> tuple[Response, int, dict[str, str]]:
     """Queue a job; with ``Prefer: wait=N`` answer its result inline if it succeeds in time."""
     state = _state()
     wait = _requested_wait()
-    job_request = _resolved(JobRequest.model_validate(_json_body()))
+    job_request = state.feature_specs.resolve(JobRequest.model_validate(_json_body()))
     errors = job_request.field_errors(state.limits)
     if errors:
         raise RequestInvalid(errors)
@@ -110,17 +92,10 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
 def register_feature_spec() -> tuple[Response, int, dict[str, str]]:
     """Check a feature spec, keep it, and answer its canonical form and spec_id."""
     spec = FeatureSpecBody.model_validate(_json_body()).root
-    spec_id = spec_id_of(spec)
-    if spec.spec_id is not None and spec.spec_id != spec_id:
-        raise RequestInvalid(
-            [
-                FieldError(
-                    pointer="/spec_id",
-                    message=f"this spec hashes to {spec_id}, not to the spec_id given",
-                )
-            ]
-        )
-    _state().feature_specs.register(spec)
+    mismatch = spec_id_mismatch(spec, "/spec_id")
+    if mismatch is not None:
+        raise RequestInvalid([mismatch])
+    spec_id = _state().feature_specs.register(spec)
     answer = feature_spec_answer(spec)
     return jsonify(answer.model_dump(mode="json")), 200, {
         "Location": f"/v1/feature-specs/{spec_id}"

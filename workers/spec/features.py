@@ -25,6 +25,7 @@ from pydantic import (
 
 from workers.spec.arrays import canonical_sha256
 from workers.spec.numbers import FiniteFloat
+from workers.spec.problems import FieldError
 
 __all__ = [
     "FEATURE_SPEC_VERSION",
@@ -40,6 +41,7 @@ __all__ = [
     "SpecReference",
     "SummarySpec",
     "canonical_spec",
+    "spec_id_mismatch",
     "spec_id_of",
     "vector_length",
     "vector_shape",
@@ -279,6 +281,19 @@ def canonical_spec(spec: BaseModel) -> dict[str, Any]:
 def spec_id_of(spec: BaseModel) -> str:
     """SHA-256 of the canonical JSON (RFC 8785) of ``spec``, UTF-8."""
     return canonical_sha256(canonical_spec(spec))
+
+
+def spec_id_mismatch(spec: BaseModel, pointer: str) -> FieldError | None:
+    """A FieldError at ``pointer`` when ``spec`` carries a spec_id it does not hash to."""
+    given = getattr(spec, "spec_id", None)
+    actual = spec_id_of(spec)
+    if given is None or given == actual:
+        return None
+    return FieldError(
+        pointer=pointer,
+        message=f"this spec hashes to {actual}, not to the spec_id given; the spec differs "
+        "from the one the id names",
+    )
 
 
 def vector_shape(spec: BaseModel) -> list[int]:

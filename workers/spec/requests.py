@@ -12,6 +12,7 @@ from workers.spec.features import (
     LandscapeSpec,
     PersistenceImageSpec,
     SpecReference,
+    spec_id_mismatch,
     spec_id_of,
     vector_length,
 )
@@ -201,14 +202,9 @@ class JobRequest(BaseModel):
                         f"({', '.join(map(str, sorted(computed))) or 'none'})",
                     )
                 )
-            if item.spec_id is not None and item.spec_id != spec_id_of(item):
-                errors.append(
-                    FieldError(
-                        pointer=f"{where}/spec_id",
-                        message=f"this spec hashes to {spec_id_of(item)}, not to the spec_id "
-                        "given; the spec differs from the one the id names",
-                    )
-                )
+            mismatch = spec_id_mismatch(item, f"{where}/spec_id")
+            if mismatch is not None:
+                errors.append(mismatch)
             length = vector_length(item)
             total += length
             if length > limits.max_vector_length:
