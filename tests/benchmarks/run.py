@@ -1,13 +1,16 @@
 """``make bench``: lacuna against reference libraries, measured side by side in one run.
 
-Three tables, all ratios (no absolute targets in tests):
+Seven tables, all ratios (no absolute targets in tests):
 
 1. Rips engine (H0+H1, full filtration) against ripser, gudhi with edge collapse and
    giotto-ph, on uniform points and noisy circles; diagrams are checked equal.
 2. End to end through HTTP, Redis and a worker against the in-process computation.
 3. Throughput of 200 small jobs on 2 workers against a bare in-process loop.
+4.-7. Persistence images, bottleneck and 1-Wasserstein distances of one pair, and distance
+   matrices, against gudhi, hera and persim (tests/benchmarks/vectors.py).
 
-Options: ``--quick`` skips n = 2000; ``--cap S`` bounds each reference run (default 120 s).
+Options: ``--quick`` skips n = 2000 (Rips) and 5000 (one pair); ``--cap S`` bounds each
+reference run (default 120 s); ``--only`` runs one group of tables.
 """
 
 import argparse
@@ -29,6 +32,7 @@ import numpy as np
 import requests
 
 from tests.benchmarks.engines import REFERENCES, Engine, lacuna, ripser
+from tests.benchmarks.vectors import distance_tables, features_table
 from tests.synthetic import FAMILIES, free_port, noisy_circle
 
 
@@ -220,16 +224,22 @@ def throughput_table(base: str, count: int = 200) -> None:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__)
-    parser.add_argument("--quick", action="store_true", help="skip n = 2000")
+    parser.add_argument("--quick", action="store_true", help="skip n = 2000 and 5000")
     parser.add_argument("--cap", type=float, default=120.0, help="seconds per reference run")
-    parser.add_argument("--only", choices=["engine", "service"], default=None)
+    parser.add_argument(
+        "--only", choices=["engine", "service", "features", "distances"], default=None
+    )
     args = parser.parse_args()
-    if args.only != "engine":
+    if args.only in (None, "service"):
         with Stack() as base:
             end_to_end_table(base)
             throughput_table(base)
-    if args.only != "service":
+    if args.only in (None, "engine"):
         engine_table([500, 1000] if args.quick else [500, 1000, 2000], args.cap)
+    if args.only in (None, "features"):
+        features_table(args.cap)
+    if args.only in (None, "distances"):
+        distance_tables([1000] if args.quick else [1000, 5000], args.cap)
 
 
 if __name__ == "__main__":
