@@ -20,7 +20,7 @@ import numpy as np
 from scipy.spatial.distance import pdist, squareform
 
 from workers.core.bottleneck import bottleneck_distance
-from workers.core.diagrams import split_essential
+from workers.core.diagrams import checked_diagram, split_essential
 from workers.core.errors import ParameterError
 from workers.core.sliced_wasserstein import sliced_wasserstein_distance
 from workers.core.wasserstein import wasserstein_distance
@@ -57,8 +57,8 @@ def essential_counts(diagrams: Sequence[np.ndarray]) -> np.ndarray:
 
 def diagram_distance(a: np.ndarray, b: np.ndarray, metric: DiagramMetric) -> float:
     """Distance between diagrams a (n, 2) and b (m, 2); deaths may be inf."""
-    finite_a, essential_a = split_essential(a)
-    finite_b, essential_b = split_essential(b)
+    finite_a, essential_a = split_essential(checked_diagram(a))
+    finite_b, essential_b = split_essential(checked_diagram(b))
     if len(essential_a) != len(essential_b):
         return float("inf")
     gaps = np.abs(np.sort(essential_a) - np.sort(essential_b))

@@ -16,7 +16,6 @@ __all__ = [
     "checked_diagram",
     "finite_part",
     "split_essential",
-    "lifetimes",
 ]
 
 InfiniteDeaths = Literal["drop", "cap"]
@@ -61,7 +60,7 @@ def finite_part(pairs: np.ndarray, infinite: InfiniteDeaths, cap: float | None) 
     With ``"cap"``, a death ``inf`` becomes ``max(birth, cap)``, so a class born at or after
     the cap has zero persistence and, like every zero-length pair, is left out.
     """
-    pairs = np.asarray(pairs, dtype=np.float64).reshape(-1, 2)
+    pairs = checked_diagram(np.asarray(pairs, dtype=np.float64).reshape(-1, 2))
     essential = np.isinf(pairs[:, 1])
     if infinite == "drop":
         return drop_empty_bars(pairs[~essential])
@@ -78,8 +77,3 @@ def split_essential(pairs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     essential = np.isinf(pairs[:, 1])
     return pairs[~essential], pairs[essential, 0]
 
-
-def lifetimes(pairs: np.ndarray) -> np.ndarray:
-    """death - birth of each pair (k,), the persistence of each class."""
-    pairs = np.asarray(pairs, dtype=np.float64).reshape(-1, 2)
-    return pairs[:, 1] - pairs[:, 0]
