@@ -5,7 +5,7 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
 
 from workers.spec.capabilities import Limits
-from workers.spec.numbers import FiniteFloat
+from workers.spec.numbers import Coordinate, FiniteFloat
 from workers.spec.problems import FieldError
 from workers.spec.requests import pair_errors
 from workers.spec.results import Diagram, Dimension, Pair, Provenance
@@ -81,7 +81,7 @@ class DistanceRequest(BaseModel):
     ] = None
     diagrams: Annotated[list[DiagramItem] | None, Field(min_length=1)] = None
     vectors: Annotated[
-        list[Annotated[list[FiniteFloat], Field(min_length=1)]] | None, Field(min_length=1)
+        list[Annotated[list[Coordinate], Field(min_length=1)]] | None, Field(min_length=1)
     ] = None
     job_ids: Annotated[
         list[Annotated[str, Field(max_length=64)]] | None,
