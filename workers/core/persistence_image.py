@@ -22,7 +22,6 @@ Points with zero persistence are left out, so they contribute nothing whatever t
 """
 
 from collections.abc import Sequence
-from concurrent.futures import ThreadPoolExecutor
 from typing import Literal
 
 import numpy as np
@@ -75,13 +74,14 @@ def _cdf_steps(centres: np.ndarray, edges: np.ndarray, sigma: float, out: np.nda
     """
     scale = 1.0 / (sigma * np.sqrt(2.0))
     step = edges[1] - edges[0]
-    width = int(np.ceil(2 * SATURATION * sigma / step)) + 2
-    if 2 * width > edges.size:
+    reach = 2 * SATURATION * sigma / step + 2  # edges within SATURATION sigma, at most
+    if not reach * 2 <= edges.size:  # also when it overflows to inf or nan
         z = edges[None, :] - centres[:, None]
         z *= scale
         erf(z, out=z)
         np.subtract(z[:, 1:], z[:, :-1], out=out)
         return
+    width = int(np.ceil(reach))
     first = np.floor((centres - SATURATION * sigma - edges[0]) / step).astype(np.int64)
     np.clip(first, 0, edges.size - width, out=first)
     window = first[:, None] + np.arange(width)
@@ -103,24 +103,22 @@ def persistence_images(
     weight: Weight = "linear",
     max_persistence: float | None = None,
     exponent: float | None = None,
-    threads: int = 1,
 ) -> np.ndarray:
     """Persistence images of ``diagrams``, each a (k, 2) array of finite (birth, death).
 
     Returns (len(diagrams), nx, ny) float64. ``sigma`` is in the units of the diagram values.
-    ``threads`` > 1 splits the erf evaluations (which release the GIL) over that many threads.
+    Points are taken a block at a time, so memory is bounded by the block and the images,
+    whatever the number of points.
     """
     nx, ny = resolution
     if nx < 1 or ny < 1:
         raise ParameterError("resolution must be at least 1 x 1", field="resolution")
     if not sigma > 0:
         raise ParameterError("sigma must be > 0", field="sigma")
-    if not birth_range[0] < birth_range[1]:
-        raise ParameterError("birth_range must be increasing", field="birth_range")
-    if not persistence_range[0] < persistence_range[1]:
-        raise ParameterError("persistence_range must be increasing", field="persistence_range")
-    birth_edges = np.linspace(birth_range[0], birth_range[1], nx + 1)
-    persistence_edges = np.linspace(persistence_range[0], persistence_range[1], ny + 1)
+    birth_edges = _edges(birth_range, nx, "birth_range")
+    persistence_edges = _edges(persistence_range, ny, "persistence_range")
+    if not np.isfinite(1.0 / sigma):
+        raise ParameterError("sigma is too small for float64", field="sigma")
 
     kept = []
     for pairs in diagrams:
@@ -128,35 +126,38 @@ def persistence_images(
         if not np.isfinite(pairs).all():
             raise ParameterError("persistence images need finite deaths", field="infinite")
         kept.append(pairs[pairs[:, 1] > pairs[:, 0]])
-    sizes = np.array([len(pairs) for pairs in kept], dtype=np.int64)
+    offsets = np.concatenate([[0], np.cumsum([len(pairs) for pairs in kept])]).astype(np.int64)
     points = np.concatenate(kept) if kept else np.empty((0, 2))
-    births = points[:, 0]
-    persistence = points[:, 1] - points[:, 0]
-    # 0.25: each axis's erf differences are twice the Gaussian mass (see _cdf_steps).
-    weights = 0.25 * point_weights(
-        persistence, weight, max_persistence=max_persistence, exponent=exponent
-    )
-
-    along_birth = np.empty((len(points), nx))
-    along_persistence = np.empty((len(points), ny))
-
-    def fill(start: int) -> None:
-        block = slice(start, start + _CHUNK)
-        _cdf_steps(births[block], birth_edges, sigma, along_birth[block])
-        along_birth[block] *= weights[block, None]
-        _cdf_steps(persistence[block], persistence_edges, sigma, along_persistence[block])
-
-    starts = range(0, len(points), _CHUNK)
-    if threads > 1 and len(points) > _CHUNK:
-        with ThreadPoolExecutor(threads) as pool:
-            list(pool.map(fill, starts))
-    else:
-        for start in starts:
-            fill(start)
-
-    images = np.empty((len(kept), nx, ny))
-    offsets = np.concatenate([[0], np.cumsum(sizes)])
-    for index in range(len(kept)):
-        rows = slice(offsets[index], offsets[index + 1])
-        np.matmul(along_birth[rows].T, along_persistence[rows], out=images[index])
+    images = np.zeros((len(kept), nx, ny))
+    for start in range(0, len(points), _CHUNK):
+        block = points[start : start + _CHUNK]
+        persistence = block[:, 1] - block[:, 0]
+        along_birth = np.empty((len(block), nx))
+        along_persistence = np.empty((len(block), ny))
+        _cdf_steps(block[:, 0], birth_edges, sigma, along_birth)
+        _cdf_steps(persistence, persistence_edges, sigma, along_persistence)
+        # 0.25: each axis's erf differences are twice the Gaussian mass (see _cdf_steps).
+        along_birth *= 0.25 * point_weights(
+            persistence, weight, max_persistence=max_persistence, exponent=exponent
+        )[:, None]
+        # Each diagram whose points fall in this block adds its share: A^T @ B.
+        first = int(np.searchsorted(offsets, start, side="right")) - 1
+        stop = start + len(block)
+        for index in range(first, len(kept)):
+            low, high = max(offsets[index], start), min(offsets[index + 1], stop)
+            if low >= stop:
+                break
+            rows = slice(low - start, high - start)
+            images[index] += along_birth[rows].T @ along_persistence[rows]
     return images
+
+
+def _edges(bounds: tuple[float, float], pixels: int, field: str) -> np.ndarray:
+    """pixels + 1 evenly spaced edges from bounds[0] to bounds[1], strictly increasing."""
+    edges = np.linspace(bounds[0], bounds[1], pixels + 1)
+    if not np.isfinite(edges).all() or not (np.diff(edges) > 0).all():
+        raise ParameterError(
+            f"{field} must be increasing and wide enough for {pixels} distinct pixels",
+            field=field,
+        )
+    return edges
