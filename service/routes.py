@@ -84,6 +84,11 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
     errors = job_request.field_errors(state.limits)
     if errors:
         raise RequestInvalid(errors)
+    if wants_npy(request) and not job_request.features:  # refused before it is queued
+        raise NotAcceptable(
+            f"a job without features has no vector to send as {NPY_MEDIA_TYPE}; add features "
+            "or ask for application/json"
+        )
     job = state.queue.submit(job_submission(job_request), owner_of(request))
     return _answer(job, wait)
 

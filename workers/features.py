@@ -6,6 +6,7 @@ import numpy as np
 
 from workers.core.betti_curve import betti_curve
 from workers.core.diagrams import finite_part
+from workers.core.errors import ParameterError
 from workers.core.landscape import landscape, sample_grid
 from workers.core.persistence_image import persistence_images
 from workers.core.summary import summary, summary_names
@@ -63,9 +64,15 @@ def feature_vectors(
     vectors: list[FeatureVector] = []
     layout: list[LayoutEntry] = []
     start = 0
-    for spec in specs:
+    for index, spec in enumerate(specs):
         spec_id = spec.spec_id or spec_id_of(spec)
         values = feature_values(spec, diagrams.get(spec.dim, np.empty((0, 2))))
+        if not np.isfinite(values).all():  # JSON has no inf or NaN, and neither do vectors
+            raise ParameterError(
+                "the values of this feature overflow float64 on this diagram; lower the "
+                "exponent or order, or rescale the diagram",
+                field=f"/features/{index}",
+            )
         shape = vector_shape(spec)
         vectors.append(
             FeatureVector(

@@ -192,13 +192,13 @@ INVALID_JOBS = [
     pytest.param(
         points_body([changed(IMAGE, sigma=0.0)]),
         ["/features/0/sigma"],
-        "greater than 0",
+        "greater than or equal to 1e-100",  # the smallest width float64 can take (MIN_SIGMA)
         id="sigma-0",
     ),
     pytest.param(
         points_body([changed(IMAGE, sigma=-0.1)]),
         ["/features/0/sigma"],
-        "greater than 0",
+        "greater than or equal to 1e-100",
         id="negative-sigma",
     ),
     pytest.param(
@@ -291,6 +291,31 @@ INVALID_JOBS = [
         ["/input/diagrams/1/dim"],
         "given twice",
         id="same-dim-twice",
+    ),
+    # Magnitudes bounded like coordinates, so no grid or cap can overflow float64.
+    pytest.param(
+        points_body([changed(IMAGE, sigma=1e-101)]),
+        ["/features/0/sigma"],
+        "1e-100",
+        id="sigma-too-small-for-float64",
+    ),
+    pytest.param(
+        points_body([changed(LANDSCAPE, t_range=[-1e308, 1e308])]),
+        ["/features/0/t_range/0", "/features/0/t_range/1"],
+        "1e+100",
+        id="t-range-beyond-float64",
+    ),
+    pytest.param(
+        points_body([changed(SUMMARY, infinite="cap", cap=1.7e308)]),
+        ["/features/0/cap"],
+        "1e+100",
+        id="cap-beyond-float64",
+    ),
+    pytest.param(
+        points_body([changed(SUMMARY, quantiles=[0.5, 0.9, 0.5])]),
+        ["/features/0/quantiles"],
+        "once",
+        id="repeated-quantile",
     ),
 ]
 
@@ -622,6 +647,32 @@ def test_npy_result_equals_the_json_vectors(
     )
     assert inline.status_code == 200
     assert np.array_equal(np.load(io.BytesIO(inline.data), allow_pickle=False), expected)
+
+
+def test_feature_values_that_overflow_fail_the_job_naming_the_feature(
+    client: FlaskClient, worker: subprocess.Popen[bytes]
+) -> None:
+    # Lifetime 1e20 to the power 16 is 1e320, beyond float64: the job fails with a problem
+    # pointing at the feature, never "succeeds" with values JSON cannot carry.
+    body = diagrams_body([{"dim": 0, "pairs": [[0.0, 1e20]]}])
+    body["features"] = [changed(SUMMARY, dim=0, order=16.0)]
+    submitted = post(client, JOBS, body, headers=WAIT)
+    assert submitted.status_code == 202, submitted.get_data(as_text=True)
+    status = submitted.get_json()
+    assert status["status"] == "failed"
+    assert status["problem"]["status"] == 422
+    assert status["problem"]["errors"][0]["pointer"] == "/features/0"
+    assert "overflow" in status["problem"]["detail"]
+
+
+def test_asking_npy_of_a_job_without_features_is_406_before_queueing(
+    client: FlaskClient,
+) -> None:
+    # A job that can never have a vector is refused up front, so no job is lost unseen.
+    body = diagrams_body([{"dim": 1, "pairs": [[0.0, 1.0]]}])
+    problem = problem_of(post(client, JOBS, body, headers={"Accept": NPY}), 406)
+    assert "features" in problem["detail"]
+    assert client.application.extensions["lacuna"].queue.queue.count == 0
 
 
 def test_npy_of_a_job_without_vectors_is_406(

@@ -34,8 +34,9 @@ SUMMARY_NAMES = (
 
 
 def summary_names(quantiles: Sequence[float]) -> list[str]:
-    """Names of every value of ``summary``, in order (quantiles as ``quantile_<q>``)."""
-    return [*SUMMARY_NAMES, *(f"quantile_{q:g}" for q in quantiles)]
+    """Names of every value of ``summary``, in order (quantiles as ``quantile_<q>``, q in its
+    shortest exact form, so distinct levels get distinct names)."""
+    return [*SUMMARY_NAMES, *(f"quantile_{float(q)!r}" for q in quantiles)]
 
 
 def summary(pairs: np.ndarray, *, order: float, quantiles: Sequence[float]) -> np.ndarray:

@@ -24,12 +24,13 @@ from pydantic import (
 )
 
 from workers.spec.arrays import canonical_sha256
-from workers.spec.numbers import FiniteFloat
+from workers.spec.numbers import Coordinate, FiniteFloat
 from workers.spec.problems import FieldError
+from workers.spec.results import Dimension
 
 __all__ = [
     "FEATURE_SPEC_VERSION",
-    "MAX_FEATURE_DIM",
+    "MIN_SIGMA",
     "BettiCurveSpec",
     "FeatureItem",
     "FeatureSpec",
@@ -50,12 +51,8 @@ __all__ = [
 FEATURE_SPEC_VERSION = "1"
 """Version of the feature computations; part of every spec_id, bumped if any value changes."""
 
-MAX_FEATURE_DIM = 7
-"""Highest homology dimension a feature can name (the filtration decides what exists)."""
-
-Dimension = Annotated[
-    int, Field(strict=True, ge=0, le=MAX_FEATURE_DIM, description="Homology dimension k.")
-]
+MIN_SIGMA = 1e-100
+"""Smallest Gaussian width: 1 / sigma and the erf arguments stay finite in float64."""
 
 
 def _increasing(bounds: tuple[float, float]) -> tuple[float, float]:
@@ -65,7 +62,7 @@ def _increasing(bounds: tuple[float, float]) -> tuple[float, float]:
 
 
 Range = Annotated[
-    tuple[FiniteFloat, FiniteFloat],
+    tuple[Coordinate, Coordinate],
     AfterValidator(_increasing),
     Field(description="[low, high] with low < high, in the units of the diagram values."),
 ]
@@ -95,7 +92,7 @@ class _Feature(BaseModel):
         ),
     ] = "drop"
     cap: Annotated[
-        FiniteFloat | None,
+        Coordinate | None,
         Field(
             validate_default=True,
             description='Death given to classes that never die; required with "cap".',
@@ -119,7 +116,7 @@ class LinearWeight(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
     type: Literal["linear"]
-    max_persistence: Annotated[FiniteFloat, Field(gt=0)]
+    max_persistence: Annotated[Coordinate, Field(gt=0)]
 
 
 class ConstantWeight(BaseModel):
@@ -157,7 +154,8 @@ class PersistenceImageSpec(_Feature):
         tuple[Count, Count], Field(description="[nx, ny]: pixels along birth, persistence.")
     ]
     sigma: Annotated[
-        FiniteFloat, Field(gt=0, description="Standard deviation of the Gaussian, value units.")
+        Coordinate,
+        Field(ge=MIN_SIGMA, description="Standard deviation of the Gaussian, value units."),
     ]
     weight: Weight
 
@@ -192,6 +190,12 @@ class BettiCurveSpec(_Feature):
 DEFAULT_QUANTILES = (0.1, 0.25, 0.5, 0.75, 0.9)
 
 
+def _distinct(levels: list[float]) -> list[float]:
+    if len(set(levels)) != len(levels):
+        raise ValueError("each quantile may appear once")
+    return levels
+
+
 class SummarySpec(_Feature):
     """Lifetime statistics, in this order: count, total_persistence (sum of lifetime ** order),
     max_persistence, mean_lifetime, std_lifetime (population), persistent_entropy (natural
@@ -201,7 +205,9 @@ class SummarySpec(_Feature):
     type: Literal["summary"]
     order: Annotated[FiniteFloat, Field(gt=0, le=16)] = 1.0
     quantiles: Annotated[
-        list[Annotated[FiniteFloat, Field(ge=0, le=1)]], Field(max_length=64)
+        list[Annotated[FiniteFloat, Field(ge=0, le=1)]],
+        AfterValidator(_distinct),
+        Field(max_length=64, description="Distinct levels in [0, 1]."),
     ] = list(DEFAULT_QUANTILES)
 
 
