@@ -501,3 +501,26 @@ def test_checked_diagram_accepts_diagrams() -> None:
     np.testing.assert_array_equal(checked_diagram(pairs), pairs)
     assert checked_diagram(EMPTY).shape == (0, 2)
     assert checked_diagram(np.array([[1, 2]])).dtype == np.float64
+
+
+@pytest.mark.parametrize("scale", [1e-9, 1e-6, 1e6, 1e90])
+@pytest.mark.parametrize("order", [1.0, 2.0, 64.0])
+def test_wasserstein_scales_with_the_diagrams(scale: float, order: float) -> None:
+    # Homogeneity (common practice): every cost is a length, so W(sA, sB) = s W(A, B).
+    # Diagrams in metres sit near 1e-6; exponents of 64 overflow or underflow lengths raised
+    # to them unless the computation works in relative units. Reference: POT (through
+    # gudhi.wasserstein) on the unscaled diagrams, where its tolerances are not an issue.
+    rng = np.random.default_rng(int(order))
+    a, b = spread(rng, 7), spread(rng, 9)
+    expected = scale * pot_wasserstein(a, b, min(order, 3.0)) if order <= 3 else None
+    ours = wasserstein_distance(scale * a, scale * b, order=order)
+    assert math.isfinite(ours) and ours > 0
+    assert ours == pytest.approx(scale * wasserstein_distance(a, b, order=order), rel=1e-12)
+    if expected is not None:
+        assert ours == pytest.approx(expected, rel=1e-9)
+
+
+def test_wasserstein_of_one_point_against_nothing_at_extreme_orders() -> None:
+    # By hand: a single point goes to the diagonal, W = its half persistence for every order.
+    assert wasserstein_distance(np.array([[0.0, 1e-6]]), EMPTY, order=64.0) == 5e-7
+    assert wasserstein_distance(np.array([[0.0, 1e100]]), EMPTY, order=4.0) == 5e99

@@ -31,10 +31,16 @@ def wasserstein_distance(a: np.ndarray, b: np.ndarray, *, order: float = 1.0) ->
     if len(a) > len(b):
         a, b = b, a
     n, m = len(a), len(b)
+    # Work in units of the largest half persistence: costs^order then neither overflow nor
+    # underflow (every edge kept costs at most 2 of these units), and W scales back linearly.
+    unit = float(max(half_persistence(a).max(initial=0.0), half_persistence(b).max(initial=0.0)))
+    if unit == 0.0:  # every point on the diagonal
+        return 0.0
+    a, b = a / unit, b / unit
     to_diagonal_a = half_persistence(a) ** order
     to_diagonal_b = half_persistence(b) ** order
     if n == 0:
-        return float(to_diagonal_b.sum() ** (1 / order))
+        return unit * float(to_diagonal_b.sum() ** (1 / order))
 
     def limit(block: slice) -> np.ndarray:
         bound: np.ndarray = (to_diagonal_a[block, None] + to_diagonal_b[None, :]) ** (1 / order)
@@ -44,8 +50,9 @@ def wasserstein_distance(a: np.ndarray, b: np.ndarray, *, order: float = 1.0) ->
     powered = costs**order
     weights = np.concatenate([powered - to_diagonal_b[cols], to_diagonal_a])
     # LAPJVsp needs non-zero weights; every full matching has n edges, so a common shift
-    # leaves the optimum unchanged.
-    weights += 1.0 - min(0.0, float(weights.min()))
+    # leaves the optimum unchanged. The weights lie in [-1, 2**order] here, so the shift
+    # costs no more precision than the largest weight already does.
+    weights += 2.0
     graph = csr_matrix(
         (weights, (np.concatenate([rows, np.arange(n)]), np.concatenate([cols, m + np.arange(n)]))),
         shape=(n, m + n),
@@ -65,4 +72,4 @@ def wasserstein_distance(a: np.ndarray, b: np.ndarray, *, order: float = 1.0) ->
         + to_diagonal_a[matched_rows[~to_point]].sum()
         + to_diagonal_b[left_b].sum()
     )
-    return float(total ** (1 / order))
+    return unit * float(total ** (1 / order))
