@@ -5,7 +5,7 @@ import uuid
 from typing import Any, get_args, get_origin
 
 from flask import Flask, Response, current_app, request
-from pydantic import BaseModel, ValidationError
+from pydantic import BaseModel, RootModel, ValidationError
 from pydantic_core import ErrorDetails
 from redis.exceptions import RedisError
 from werkzeug.exceptions import HTTPException
@@ -79,6 +79,10 @@ def pointer_of(location: tuple[int | str, ...], model: type[BaseModel]) -> str:
     tokens: list[str] = []
     node: Any = model
     tags: dict[str, Any] | None = None
+    if issubclass(model, RootModel):  # the body is the root value itself, maybe a union
+        root = model.model_fields["root"]
+        node = root.annotation
+        tags = members_by_tag(node) if root.discriminator else discriminated_members(node)
     for step in location:
         if tags is not None:  # this step is a union's tag, not a key of the body
             node = tags.get(str(step))

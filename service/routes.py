@@ -15,15 +15,16 @@ from service.queue import Job
 from service.submissions import distance_submission, job_submission
 from workers.spec import DistanceRequest, DistanceTask, JobRequest, JobState
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
+from workers.spec.requests import length_error
 
 __all__ = ["v1", "health"]
 
 v1 = Blueprint("v1", __name__, url_prefix="/v1")
 health = Blueprint("health", __name__)
 
-# RFC 7240 preference "wait=N"; at most 6 digits, so an absurd value cannot cost a parse.
 _SPEC_ID = re.compile("[0-9a-f]{64}")
 
+# RFC 7240 preference "wait=N"; at most 6 digits, so an absurd value cannot cost a parse.
 _WAIT = re.compile(r"(?:^|[,;\s])wait\s*=\s*\"?(\d{1,6})\"?(?![\d])", re.IGNORECASE)
 
 
@@ -97,9 +98,9 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
 def register_feature_spec() -> tuple[Response, int, dict[str, str]]:
     """Check a feature spec, keep it, and answer its canonical form and spec_id."""
     spec = FeatureSpecBody.model_validate(_json_body()).root
-    mismatch = spec_id_mismatch(spec, "/spec_id")
-    if mismatch is not None:
-        raise RequestInvalid([mismatch])
+    errors = [spec_id_mismatch(spec, "/spec_id"), length_error(spec, "", _state().limits)]
+    if any(errors):
+        raise RequestInvalid([error for error in errors if error is not None])
     spec_id = _state().feature_specs.register(spec)
     answer = feature_spec_answer(spec)
     return jsonify(answer.model_dump(mode="json")), 200, {

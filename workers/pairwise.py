@@ -75,15 +75,19 @@ def distance_matrix(
 
 def _diagram_nulls(matrix: np.ndarray, essential: np.ndarray) -> list[NullEntry]:
     return [
-        NullEntry(
-            row=int(i),
-            column=int(j),
-            reason=f"diagram {i} has {essential[i]} classes that never die and diagram {j} has "
-            f"{essential[j]}; such classes are matched only to each other, so the distance is "
-            "infinite",
-        )
+        NullEntry(row=int(i), column=int(j), reason=_diagram_reason(i, j, essential))
         for i, j in zip(*np.nonzero(np.triu(~np.isfinite(matrix), k=1)), strict=True)
     ]
+
+
+def _diagram_reason(i: int, j: int, essential: np.ndarray) -> str:
+    if essential[i] != essential[j]:
+        return (
+            f"diagram {i} has {essential[i]} classes that never die and diagram {j} has "
+            f"{essential[j]}; such classes are matched only to each other, so the distance is "
+            "infinite"
+        )
+    return "the distance is beyond the range of float64"
 
 
 def _vector_nulls(matrix: np.ndarray) -> list[NullEntry]:
@@ -91,9 +95,11 @@ def _vector_nulls(matrix: np.ndarray) -> list[NullEntry]:
         NullEntry(
             row=int(i),
             column=int(j),
-            reason="a vector of all zeros has no direction, so the cosine distance is undefined",
+            reason="a vector of all zeros has no direction, so the cosine distance is undefined"
+            if np.isnan(matrix[i, j])
+            else "the distance is beyond the range of float64",
         )
-        for i, j in zip(*np.nonzero(np.triu(np.isnan(matrix), k=1)), strict=True)
+        for i, j in zip(*np.nonzero(np.triu(~np.isfinite(matrix), k=1)), strict=True)
     ]
 
 
@@ -104,6 +110,7 @@ def _fan_out(
     chunks = np.array_split(np.arange(total), max(1, -(-total // CHUNK_PAIRS)))
     values = np.empty(total)
     done = 0
+    report(done, total)  # the job shows its total from the start
     if processes <= 1 or total < FORK_FROM_PAIRS:
         for chunk in chunks:
             values[chunk] = compute(chunk)

@@ -524,3 +524,12 @@ def test_wasserstein_of_one_point_against_nothing_at_extreme_orders() -> None:
     # By hand: a single point goes to the diagonal, W = its half persistence for every order.
     assert wasserstein_distance(np.array([[0.0, 1e-6]]), EMPTY, order=64.0) == 5e-7
     assert wasserstein_distance(np.array([[0.0, 1e100]]), EMPTY, order=4.0) == 5e99
+
+
+def test_cosine_of_tiny_vectors_is_defined() -> None:
+    # A vector of norm below 1e-154 has a direction all the same; its squared norm underflows.
+    tiny = np.array([[1e-320, 0.0], [1.0, 0.0], [0.0, 3e-200]])
+    matrix = vector_distance_matrix(tiny, "cosine")
+    # scipy's cosine metric on vectors of the same directions (reference library).
+    directions = np.array([[1.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
+    assert matrix == pytest.approx(cdist(directions, directions, "cosine"), abs=1e-15)

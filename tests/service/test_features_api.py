@@ -379,8 +379,8 @@ def test_registering_a_spec_with_a_mismatched_spec_id_is_422(client: FlaskClient
     ("body", "pointer", "hint"),
     [
         ({"type": "blob", "dim": 1}, "/type", "betti_curve"),
-        (changed(LANDSCAPE, t_range=[3.0, 1.0]), "/landscape/t_range", "low < high"),
-        (changed(SUMMARY, quantiles=[1.5]), "/summary/quantiles/0", "less than or equal to 1"),
+        (changed(LANDSCAPE, t_range=[3.0, 1.0]), "/t_range", "low < high"),
+        (changed(SUMMARY, quantiles=[1.5]), "/quantiles/0", "less than or equal to 1"),
     ],
     ids=["unknown-type", "inverted-t-range", "quantile-above-1"],
 )
@@ -703,3 +703,26 @@ def test_capabilities_list_features_and_vector_limits(redis_url: str) -> None:
     assert answer["limits"]["max_vector_length"] == 777
     assert answer["limits"]["max_distance_count"] == 55
     assert answer["limits"]["max_features"] >= 1
+
+
+def test_registering_a_spec_longer_than_the_limit_is_422(small_client: FlaskClient) -> None:
+    # A spec no job could use is not kept either (the limit is in /v1/capabilities).
+    body = changed(BETTI, samples=1_000_000_000_000)
+    problem = problem_of(post(small_client, SPECS, body), 422)
+    assert pointers_of(problem) == ["/samples"]
+    assert "limit" in said(problem)
+
+
+@pytest.mark.parametrize(
+    ("body", "pointer"),
+    [
+        (changed(SUMMARY, dim=8), "/dim"),
+        (changed(IMAGE, birth_range=[1.0, 0.0]), "/birth_range"),
+        (changed(IMAGE, weight={"type": "power", "exponent": 0}), "/weight/exponent"),
+    ],
+)
+def test_registering_points_at_the_field_without_the_union_tag(
+    client: FlaskClient, body: dict[str, Any], pointer: str
+) -> None:
+    # The body is the spec itself: pointers start at its own fields (RFC 6901).
+    assert pointers_of(problem_of(post(client, SPECS, body), 422)) == [pointer]

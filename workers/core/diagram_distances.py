@@ -97,9 +97,11 @@ def vector_distance_matrix(vectors: np.ndarray, metric: VectorMetric) -> np.ndar
         matrix: np.ndarray = squareform(pdist(vectors, "euclidean"))
         return matrix
     if metric == "cosine":
-        norms = np.linalg.norm(vectors, axis=1)
-        zero = norms == 0
-        unit = vectors / np.where(zero, 1.0, norms)[:, None]
+        # Each row over its largest entry first: the norm of a tiny row would underflow to 0.
+        largest = np.abs(vectors).max(axis=1)
+        zero = largest == 0
+        scaled = vectors / np.where(zero, 1.0, largest)[:, None]
+        unit = scaled / np.where(zero, 1.0, np.linalg.norm(scaled, axis=1))[:, None]
         matrix = np.clip(1.0 - unit @ unit.T, 0.0, 2.0)
         matrix[zero, :] = np.nan
         matrix[:, zero] = np.nan

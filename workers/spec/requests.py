@@ -20,7 +20,7 @@ from workers.spec.filtrations import Filtration
 from workers.spec.inputs import DiagramsInput, Input, PointsInput
 from workers.spec.problems import FieldError
 
-__all__ = ["JobRequest", "MAX_FEATURES"]
+__all__ = ["JobRequest", "MAX_FEATURES", "length_error", "pair_errors"]
 
 MAX_FEATURES = 64
 """Most feature specs one job may ask for."""
@@ -205,16 +205,10 @@ class JobRequest(BaseModel):
             mismatch = spec_id_mismatch(item, f"{where}/spec_id")
             if mismatch is not None:
                 errors.append(mismatch)
-            length = vector_length(item)
-            total += length
-            if length > limits.max_vector_length:
-                errors.append(
-                    FieldError(
-                        pointer=f"{where}/{_SIZE_FIELD.get(type(item), 'quantiles')}",
-                        message=f"this feature has {length} values, above the vector length "
-                        f"limit of {limits.max_vector_length}",
-                    )
-                )
+            total += vector_length(item)
+            too_long = length_error(item, where, limits)
+            if too_long is not None:
+                errors.append(too_long)
         if total > limits.max_vector_length and not errors:
             errors.append(
                 FieldError(
@@ -224,6 +218,18 @@ class JobRequest(BaseModel):
                 )
             )
         return errors
+
+
+def length_error(spec: FeatureSpec, where: str, limits: Limits) -> FieldError | None:
+    """A FieldError at the field that sets the length of ``spec`` when it is over the limit."""
+    length = vector_length(spec)
+    if length <= limits.max_vector_length:
+        return None
+    return FieldError(
+        pointer=f"{where}/{_SIZE_FIELD.get(type(spec), 'quantiles')}",
+        message=f"this feature has {length} values, above the vector length limit of "
+        f"{limits.max_vector_length}",
+    )
 
 
 def pair_errors(pairs: list[tuple[float, float | None]], where: str) -> list[FieldError]:
