@@ -533,3 +533,30 @@ def test_cosine_of_tiny_vectors_is_defined() -> None:
     # scipy's cosine metric on vectors of the same directions (reference library).
     directions = np.array([[1.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
     assert matrix == pytest.approx(cdist(directions, directions, "cosine"), abs=1e-15)
+
+
+@pytest.mark.parametrize("order", [1.0, 2.0, 4.0, 8.0])
+@pytest.mark.parametrize("noise", [1e-2, 1e-5])
+def test_wasserstein_of_small_points_beside_a_large_one(order: float, noise: float) -> None:
+    # One far point in each diagram, matched to each other at no cost, beside many points
+    # 2 to 5 decades smaller: W is decided by the small points alone. Reference: POT (through
+    # gudhi.wasserstein) on the small points rescaled to about 1, where it is exact.
+    rng = np.random.default_rng(int(order))
+    for _ in range(5):
+        small_a = np.sort(rng.random((20, 2)) * noise, axis=1)
+        small_b = np.sort(rng.random((20, 2)) * noise, axis=1)
+        a, b = np.vstack([[0.0, 2.0], small_a]), np.vstack([[0.0, 2.0], small_b])
+        expected = noise * pot_wasserstein(small_a / noise, small_b / noise, order)
+        assert wasserstein_distance(a, b, order=order) == pytest.approx(expected, rel=1e-9)
+        # A diagram against itself, its points in another order: 0 (a metric, common practice).
+        assert wasserstein_distance(a, a[::-1].copy(), order=order) == 0.0
+
+
+def test_whole_wasserstein_stays_finite_at_extreme_scales() -> None:
+    # The finite and the never-dying parts are added in units of the larger one, so neither
+    # overflows nor underflows when raised to the order (by hand: one point to the diagonal).
+    metric = DiagramMetric(name="wasserstein", order=8.0)
+    big = np.array([[0.0, 2e99], [0.0, np.inf]])
+    assert diagram_distance(big, np.array([[0.0, np.inf]]), metric) == pytest.approx(1e99)
+    tiny = np.array([[0.0, 2e-200], [0.0, np.inf]])
+    assert diagram_distance(tiny, np.array([[0.0, np.inf]]), metric) == pytest.approx(1e-200)

@@ -183,6 +183,12 @@ INVALID = [
         id="order-with-bottleneck",
     ),
     pytest.param(
+        {"metric": "wasserstein", "order": 9, "diagrams": [A, B]},
+        ["/order"],
+        "less than or equal to 8",  # beyond, float64 cannot resolve costs to the order
+        id="order-above-8",
+    ),
+    pytest.param(
         {"metric": "wasserstein", "order": 0.5, "diagrams": [A, B]},
         ["/order"],
         "greater than or equal to 1",

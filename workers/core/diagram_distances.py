@@ -66,7 +66,13 @@ def diagram_distance(a: np.ndarray, b: np.ndarray, metric: DiagramMetric) -> flo
         return max(bottleneck_distance(finite_a, finite_b), float(gaps.max(initial=0.0)))
     if metric.name == "wasserstein":
         finite = wasserstein_distance(finite_a, finite_b, order=metric.order)
-        return float((finite**metric.order + (gaps**metric.order).sum()) ** (1 / metric.order))
+        # In units of the largest part, as the finite part itself is computed: the parts
+        # raised to the order neither overflow nor underflow.
+        unit = max(finite, float(gaps.max(initial=0.0)))
+        if unit == 0.0:
+            return 0.0
+        parts = (finite / unit) ** metric.order + ((gaps / unit) ** metric.order).sum()
+        return unit * float(parts ** (1 / metric.order))
     if metric.name == "sliced_wasserstein":
         finite = sliced_wasserstein_distance(finite_a, finite_b, directions=metric.directions)
         return finite + float(gaps.sum())
