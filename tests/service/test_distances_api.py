@@ -6,7 +6,6 @@ Requests go through ``call`` (from test_errors), so no answer may be a 500.
 """
 
 import io
-import json
 import math
 import subprocess
 import time
@@ -29,9 +28,11 @@ from tests.service.test_errors import (
     app_with,
     call,
     fresh_queue,
-    pointers_of,
-    problem_of,
+    pairs_array,
+    post,
+    refused,
     said,
+    stored_jobs,
 )
 from tests.synthetic import noisy_circle
 
@@ -49,28 +50,6 @@ SUMMARY = {"type": "summary", "dim": 0}
 # --- helpers ---------------------------------------------------------------------------------
 
 
-def post(client: FlaskClient, path: str, body: Any, **kwargs: Any) -> TestResponse:
-    return call(
-        client, "POST", path, data=json.dumps(body), content_type="application/json", **kwargs
-    )
-
-
-def stored_jobs(client: FlaskClient) -> int:
-    """Jobs RQ holds in the test database (each test starts on a flushed one)."""
-    redis = client.application.extensions["lacuna"].queue.redis
-    return sum(1 for _ in redis.scan_iter("rq:job:*"))
-
-
-def refused(response: TestResponse, pointers: list[str], hint: str) -> dict[str, Any]:
-    """The 422 problem after checking its pointers, that the detail names the first (the
-    whole body, pointer "", is written "/"), and that the words carry ``hint``."""
-    problem = problem_of(response, 422)
-    assert pointers_of(problem) == pointers
-    assert problem["detail"].startswith((pointers[0] or "/") + ":"), problem["detail"]
-    assert hint.lower() in said(problem), said(problem)
-    return problem
-
-
 def random_diagram(
     rng: np.random.Generator, finite: int, essential: int = 0
 ) -> list[list[float | None]]:
@@ -81,13 +60,6 @@ def random_diagram(
     ]
     pairs += [[float(b), None] for b in rng.uniform(0.0, 0.5, essential)]
     return pairs
-
-
-def as_array(pairs: list[list[float | None]]) -> np.ndarray:
-    """Pairs as JSON carries them (null death = never dies) as (k, 2) with inf deaths."""
-    return np.array([[b, math.inf if d is None else d] for b, d in pairs], dtype=float).reshape(
-        -1, 2
-    )
 
 
 def matrix_of(answer: dict[str, Any]) -> np.ndarray:
@@ -437,7 +409,7 @@ def test_diagram_metrics_match_gudhi(client: FlaskClient, worker: subprocess.Pop
         matrix = matrix_of(answer)
         for i in range(4):
             for j in range(i + 1, 4):
-                expected = reference(as_array(diagrams[i]), as_array(diagrams[j]))
+                expected = reference(pairs_array(diagrams[i]), pairs_array(diagrams[j]))
                 assert matrix[i, j] == pytest.approx(expected, abs=1e-9), (metric, i, j)
                 assert matrix[i, j] > 0  # distinct diagrams
 
@@ -459,7 +431,7 @@ def test_sliced_wasserstein_matches_its_definition(
         matrix = matrix_of(answer)
         for i in range(3):
             for j in range(i + 1, 3):
-                a, b = as_array(diagrams[i]), as_array(diagrams[j])
+                a, b = pairs_array(diagrams[i]), pairs_array(diagrams[j])
                 expected = _sliced_by_definition(a, b, echoed)
                 assert matrix[i, j] == pytest.approx(expected, abs=1e-9), (directions, i, j)
 
@@ -474,7 +446,7 @@ def test_unmatched_essential_classes_give_null_and_inf(
         random_diagram(rng, finite=2, essential=1),
     ]
     answer = answered(post(client, DISTANCES, {"metric": "bottleneck", "diagrams": diagrams}))
-    arrays = [as_array(d) for d in diagrams]
+    arrays = [pairs_array(d) for d in diagrams]
     # gudhi agrees that these are infinitely far apart.
     assert bottleneck_reference(arrays[0], arrays[1]) == math.inf
     assert bottleneck_reference(arrays[1], arrays[2]) == math.inf
@@ -542,7 +514,7 @@ def test_distances_between_jobs(client: FlaskClient, worker: subprocess.Popen[by
 
     def of_dim(job: dict[str, Any], dim: int) -> np.ndarray:
         (pairs,) = [d["pairs"] for d in job["diagrams"] if d["dim"] == dim]
-        return as_array(pairs)
+        return pairs_array(pairs)
 
     # Diagram metrics on the jobs' own diagrams, against gudhi.
     for metric, dim, reference in [
@@ -607,7 +579,7 @@ def test_large_request_answers_202_and_reports_progress(few_inline: FlaskClient)
     assert_distance_matrix(result, 12)
     for i in range(12):
         for j in range(i + 1, 12):
-            expected = bottleneck_reference(as_array(diagrams[i]), as_array(diagrams[j]))
+            expected = bottleneck_reference(pairs_array(diagrams[i]), pairs_array(diagrams[j]))
             assert result["matrix"][i][j] == pytest.approx(expected, abs=1e-9)
     # The client may still ask to wait for a large one (RFC 7240).
     waited = post(

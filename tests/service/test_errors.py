@@ -6,12 +6,14 @@ The app is in testing mode, so an unhandled exception fails the test instead of 
 """
 
 import json
+import math
 import socket
 import subprocess
 import time
 import uuid
 from typing import Any
 
+import numpy as np
 import pytest
 from flask import Flask
 from flask.testing import FlaskClient
@@ -73,6 +75,36 @@ def said(problem: dict[str, Any]) -> str:
     """Everything the client is told in words, lower-cased for keyword checks."""
     messages = [error["message"] for error in problem.get("errors") or []]
     return " ".join([problem["detail"], *messages]).lower()
+
+
+def post(client: FlaskClient, path: str, body: Any, **kwargs: Any) -> TestResponse:
+    """POST ``body`` as JSON to ``path`` through ``call``."""
+    return call(
+        client, "POST", path, data=json.dumps(body), content_type="application/json", **kwargs
+    )
+
+
+def stored_jobs(client: FlaskClient) -> int:
+    """Jobs RQ holds in the test database (each test starts on a flushed one)."""
+    redis = client.application.extensions["lacuna"].queue.redis
+    return sum(1 for _ in redis.scan_iter("rq:job:*"))
+
+
+def refused(response: TestResponse, pointers: list[str], hint: str) -> dict[str, Any]:
+    """The 422 problem after checking its pointers, that the detail names the first (the
+    whole body, pointer "", is written "/"), and that the words carry ``hint``."""
+    problem = problem_of(response, 422)
+    assert pointers_of(problem) == pointers
+    assert problem["detail"].startswith((pointers[0] or "/") + ":"), problem["detail"]
+    assert hint.lower() in said(problem), said(problem)
+    return problem
+
+
+def pairs_array(pairs: list[list[float | None]]) -> np.ndarray:
+    """Pairs as JSON carries them (null death = never dies) as (k, 2) with inf deaths."""
+    return np.array(
+        [[b, math.inf if d is None else d] for b, d in pairs], dtype=np.float64
+    ).reshape(-1, 2)
 
 
 def closed_port() -> int:

@@ -16,15 +16,18 @@ import pytest
 import rfc8785
 from flask.testing import FlaskClient
 from pydantic import TypeAdapter
-from werkzeug.test import TestResponse
 
 from tests.service.test_errors import (
     app_with,
     call,
     fresh_queue,
+    pairs_array,
     pointers_of,
+    post,
     problem_of,
+    refused,
     said,
+    stored_jobs,
 )
 from tests.synthetic import noisy_circle
 from workers.features import feature_values
@@ -70,12 +73,6 @@ _SPEC = TypeAdapter(FeatureSpec)
 # --- helpers ---------------------------------------------------------------------------------
 
 
-def post(client: FlaskClient, path: str, body: Any, **kwargs: Any) -> TestResponse:
-    return call(
-        client, "POST", path, data=json.dumps(body), content_type="application/json", **kwargs
-    )
-
-
 def points_body(features: list[Any], points: Any = None, **filtration: Any) -> dict[str, Any]:
     if points is None:
         points = noisy_circle(40, seed=1).tolist()
@@ -92,29 +89,6 @@ def diagrams_body(diagrams: list[Any], features: list[Any] | None = None) -> dic
 
 def changed(spec: dict[str, Any], **changes: Any) -> dict[str, Any]:
     return {**spec, **changes}
-
-
-def stored_jobs(client: FlaskClient) -> int:
-    """Jobs RQ holds in the test database (each test starts on a flushed one)."""
-    redis = client.application.extensions["lacuna"].queue.redis
-    return sum(1 for _ in redis.scan_iter("rq:job:*"))
-
-
-def refused(response: TestResponse, pointers: list[str], hint: str) -> dict[str, Any]:
-    """The 422 problem after checking its pointers, that the detail names the first, and
-    that the words a client reads carry ``hint``."""
-    problem = problem_of(response, 422)
-    assert pointers_of(problem) == pointers
-    assert problem["detail"].startswith(pointers[0] + ":"), problem["detail"]
-    assert hint.lower() in said(problem), said(problem)
-    return problem
-
-
-def pairs_array(pairs: list[list[float | None]]) -> np.ndarray:
-    """Pairs of a result (null death = never dies) as a (k, 2) array with inf deaths."""
-    return np.array(
-        [[b, math.inf if d is None else d] for b, d in pairs], dtype=np.float64
-    ).reshape(-1, 2)
 
 
 def diagram_of(result: dict[str, Any], dim: int) -> np.ndarray:
