@@ -6,6 +6,7 @@ from typing import Any
 from service.feature_specs import FeatureSpecStore
 from service.queue import JobQueue
 from service.settings import Settings
+from service.uploads import UPLOAD_FORMATS
 from workers.spec import (
     NPY_MEDIA_TYPE,
     SCHEMA_VERSION,
@@ -36,6 +37,9 @@ def limits_of(settings: Settings) -> Limits:
         max_features=MAX_FEATURES,
         max_vector_length=settings.max_vector_length,
         max_distance_count=settings.max_distance_count,
+        max_image_pixels=settings.max_image_pixels,
+        max_volume_voxels=settings.max_volume_voxels,
+        max_upload_bytes=settings.max_upload_bytes,
         job_time_limit_s=settings.job_time_limit_s,
         result_ttl_s=settings.result_ttl_s,
         max_wait_s=settings.max_wait_s,
@@ -51,8 +55,9 @@ def capabilities_of(limits: Limits) -> Capabilities:
         features=list(members_by_tag(FeatureSpec)),
         feature_spec_version=FEATURE_SPEC_VERSION,
         metrics=[*DIAGRAM_METRICS, *VECTOR_METRICS],
-        value_convention="edge_length",
+        value_convention="edge_length",  # of Rips; results name their own
         binary_media_type=NPY_MEDIA_TYPE,
+        upload_formats=list(UPLOAD_FORMATS),
         limits=limits,
         versions=package_versions(),
     )

@@ -40,17 +40,24 @@ _MODELS: list[type[BaseModel]] = [
 ]
 
 _DESCRIPTION = """\
-Persistent homology as a service: post a point set (or diagrams you have), get persistence
-diagrams, fixed-length feature vectors under versioned feature specs, and distances between
-diagrams back through a job queue.
+Persistent homology as a service: post a point set, an image, a mask or a volume (or diagrams
+you have), get persistence diagrams, fixed-length feature vectors under versioned feature
+specs, and distances between diagrams back through a job queue.
 
 Conventions: Vietoris-Rips values are edge lengths (diameters), not ball radii; a death of
 null means the class never dies within the filtration; pairs are sorted by (birth, death).
 Arithmetic is float64 throughout: values are exact pairwise distances of the input points.
-Errors are RFC 9457 problem details; 422 answers list every offending field as a JSON Pointer.
+Images and masks: pixels (voxels) are the top-dimensional cells of a cubical complex, so
+foreground pixels touching at a corner are connected (8-connectivity in 2D, 26 in 3D) and
+holes connect through shared sides (4 / 6); coordinates and spacing are in array-axis order
+and pixel (0, 0) is centred at the origin; each result's value_convention says what its
+numbers are. Errors are RFC 9457 problem details; 422 answers list every offending field as a
+JSON Pointer.
 
-Binary arrays (feature vectors, distance matrices) are NumPy .npy bytes, media type
+Binary arrays out (feature vectors, distance matrices) are NumPy .npy bytes, media type
 application/x-npy, little-endian float64 in C order; ask for them with that Accept header.
+Binary arrays in (images, masks, volumes) come as multipart/form-data: a JSON `request` part
+and a `data` file part (.npy, TIFF or PNG).
 
 For research use only: results are not for diagnosis or treatment decisions.
 """
@@ -110,6 +117,30 @@ _JOB_ID = {
     "required": True,
     "schema": {"type": "string", "format": "uuid"},
 }
+_UPLOAD = {
+    "schema": {
+        "type": "object",
+        "required": ["request", "data"],
+        "properties": {
+            "request": {
+                "$ref": "#/components/schemas/JobRequest",
+                "description": "The JSON request, with an image or mask input and no values.",
+            },
+            "data": {
+                "type": "string",
+                "contentMediaType": "application/octet-stream",
+                "description": "The array as a file: .npy (NEP 1; numeric dtypes only, never "
+                "unpickled), TIFF (2D, or a multi-page stack read as 3D; 8/16/32-bit integers "
+                "or floats, one channel) or PNG (grayscale, 1/8/16-bit). The format is told "
+                "from the first bytes. Shapes over the limits are refused before the pixels "
+                "are read.",
+            },
+        },
+    },
+    "encoding": {"request": {"contentType": "application/json"}},
+}
+"""The one way binary inputs arrive: a JSON ``request`` part and a ``data`` file part."""
+
 _UNAVAILABLE = _problem("Redis cannot be reached; retry after the Retry-After header.")
 _NOT_FOUND = _problem("No such job for this owner, or it has expired.")
 
@@ -121,7 +152,10 @@ def _paths() -> dict[str, Any]:
                 "summary": "Submit a job",
                 "operationId": "submitJob",
                 "parameters": [_PREFER_WAIT],
-                "requestBody": {"required": True, "content": _json("JobRequest")},
+                "requestBody": {
+                    "required": True,
+                    "content": {**_json("JobRequest"), "multipart/form-data": _UPLOAD},
+                },
                 "responses": {
                     "200": _result("Finished within Prefer: wait."),
                     "202": {
@@ -132,9 +166,17 @@ def _paths() -> dict[str, Any]:
                         "content": _json("JobStatus"),
                     },
                     "400": _problem("The body is not JSON."),
-                    "413": _problem("The body is above the size limit."),
-                    "415": _problem("The Content-Type is not application/json."),
-                    "422": _problem("The request is invalid; `errors` points at each field."),
+                    "413": _problem(
+                        "The body is above the size limit (max_body_bytes for JSON, "
+                        "max_upload_bytes for multipart)."
+                    ),
+                    "415": _problem(
+                        "The Content-Type is neither application/json nor multipart/form-data."
+                    ),
+                    "422": _problem(
+                        "The request is invalid; `errors` points at each field (`/data` is "
+                        "the uploaded file)."
+                    ),
                     "503": _UNAVAILABLE,
                 },
             }

@@ -152,7 +152,7 @@ def register(app: Flask) -> None:
         status = error.code or 500
         detail = error.description
         if status == 413:
-            limit = app.config["MAX_CONTENT_LENGTH"]
+            limit = request.max_content_length
             detail = f"the body is larger than the limit of {limit} bytes"
         # get_headers() carries Allow for 405 (RFC 9110 15.5.6); the body type is ours.
         headers = {k: v for k, v in error.get_headers() if k.lower() != "content-type"}

@@ -4,6 +4,7 @@ import json
 import re
 from typing import Any
 
+import numpy as np
 from flask import Blueprint, Response, current_app, jsonify, request
 from werkzeug.exceptions import NotAcceptable, UnsupportedMediaType
 
@@ -13,8 +14,10 @@ from service.errors import BodyNotJson, FeatureSpecNotFound, RequestInvalid
 from service.extension import ServiceState
 from service.queue import Job
 from service.submissions import distance_submission, job_submission
-from workers.spec import DistanceRequest, DistanceTask, JobRequest, JobState
+from service.uploads import decode_array, multipart_parts
+from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
+from workers.spec.inputs import ImageInput, MaskInput
 from workers.spec.requests import length_error
 
 __all__ = ["v1", "health"]
@@ -76,13 +79,42 @@ def _result_response(result: dict[str, Any]) -> Response:
     return Response(npy_bytes(array), mimetype=NPY_MEDIA_TYPE)
 
 
+def _job_request() -> tuple[JobRequest, np.ndarray | None, bool]:
+    """The request of a job, the array of its image or mask input, and whether it came as an
+    uploaded file (multipart) rather than JSON values."""
+    state = _state()
+    if request.mimetype != "multipart/form-data":
+        job_request = state.feature_specs.resolve(JobRequest.model_validate(_json_body()))
+        pixels = job_request.pixel_array()
+        if isinstance(pixels, FieldError):
+            raise RequestInvalid([pixels])
+        return job_request, pixels, False
+    request.max_content_length = state.settings.max_upload_bytes
+    body, data = multipart_parts(request)
+    job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
+    if not isinstance(job_request.input, ImageInput | MaskInput):
+        raise RequestInvalid(
+            [
+                FieldError(
+                    pointer="/input/type",
+                    message=f'input type "{job_request.input.type}" takes no uploaded file; '
+                    'upload arrays for "image" and "mask" inputs',
+                )
+            ]
+        )
+    return job_request, decode_array(data, state.limits), True
+
+
 @v1.post("/jobs")
 def submit_job() -> tuple[Response, int, dict[str, str]]:
-    """Queue a job; with ``Prefer: wait=N`` answer its result inline if it succeeds in time."""
+    """Queue a job; with ``Prefer: wait=N`` answer its result inline if it succeeds in time.
+
+    The body is JSON, or multipart/form-data with a JSON ``request`` part and a ``data`` file
+    part (.npy, TIFF or PNG) holding the array of an image or mask input."""
     state = _state()
     wait = _requested_wait()
-    job_request = state.feature_specs.resolve(JobRequest.model_validate(_json_body()))
-    errors = job_request.field_errors(state.limits)
+    job_request, pixels, uploaded = _job_request()
+    errors = job_request.field_errors(state.limits, pixels, uploaded)
     if errors:
         raise RequestInvalid(errors)
     if wants_npy(request) and not job_request.features:  # refused before it is queued
@@ -90,7 +122,7 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
             f"a job without features has no vector to send as {NPY_MEDIA_TYPE}; add features "
             "or ask for application/json"
         )
-    job = state.queue.submit(job_submission(job_request), owner_of(request))
+    job = state.queue.submit(job_submission(job_request, pixels), owner_of(request))
     return _answer(job, wait)
 
 

@@ -33,6 +33,24 @@ class Settings(BaseSettings):
     max_distance_count: int = Field(
         2000, ge=2, description="Most diagrams or vectors in one distance matrix."
     )
+    # Upper bounds: the cubical engine indexes the array padded by one pixel on every side
+    # with 32-bit integers, and padding at most triples (2D) or multiplies by nine (3D) a size.
+    max_image_pixels: int = Field(
+        4096 * 4096, ge=2, le=2**31 // 3 - 16, description="Most pixels in one 2D image or mask."
+    )
+    max_volume_voxels: int = Field(
+        512**3,
+        ge=2,
+        le=2**31 // 9 - 16,
+        description="Most voxels in one 3D volume or mask. The engine takes about 25-50 bytes "
+        "per voxel on smooth data and up to about 120 on noise, plus 8 for the values.",
+    )
+    max_upload_bytes: int = Field(
+        512 * 1024 * 1024,
+        ge=1024,
+        description="Largest multipart request (an array uploaded as a file); JSON bodies keep "
+        "max_body_bytes.",
+    )
     inline_distance_pairs: int = Field(
         2000,
         ge=0,

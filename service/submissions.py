@@ -20,6 +20,7 @@ from workers.spec import (
 )
 from workers.spec.arrays import diagram_rows
 from workers.spec.distances import DEFAULT_DIRECTIONS, DIAGRAM_METRICS
+from workers.spec.inputs import ImageInput, MaskInput
 from workers.spec.jobs import StoredInput, StoredType
 from workers.spec.results import Diagram
 
@@ -38,12 +39,27 @@ class Submission:
     description: str
 
 
-def job_submission(request: JobRequest) -> Submission:
-    """A ``POST /v1/jobs`` request (feature references already resolved)."""
+def job_submission(request: JobRequest, pixels: np.ndarray | None = None) -> Submission:
+    """A ``POST /v1/jobs`` request (feature references already resolved); ``pixels`` is the
+    array of an image or mask input, checked, from JSON values or an upload."""
     specs = request.specs()
     described = request.model_dump(mode="json")
     described["features"] = [spec.model_dump(mode="json") for spec in specs]
     task = PersistenceTask(type="persistence", filtration=request.filtration, features=specs)
+    if isinstance(request.input, ImageInput | MaskInput):
+        if pixels is None:
+            raise ValueError("an image or mask job needs its checked array")
+        described["input"]["values"] = None  # the same hash for JSON values and uploads
+        filtration = request.filtration.type if request.filtration else "none"
+        return Submission(
+            array=pixels,
+            input_type=request.input.type,
+            units=request.input.units,
+            task=task.model_copy(update={"spacing": request.input.spacing}),
+            described=described,
+            description=f"{filtration} on {request.input.type} "
+            + " x ".join(map(str, pixels.shape)),
+        )
     if isinstance(request.input, PointsInput):
         array = np.asarray(request.input.points, dtype=np.float64)
         described["input"]["points"] = None
@@ -169,10 +185,9 @@ def _from_results(
 
 def stored_input(submission: Submission, sha256: str) -> StoredInput:
     """How the payload describes the stored array."""
-    shape = submission.array.shape
     return StoredInput(
         type=submission.input_type,
-        shape=(shape[0], shape[1]),
+        shape=list(submission.array.shape),
         sha256=sha256,
         units=submission.units,
     )

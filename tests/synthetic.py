@@ -35,3 +35,44 @@ def free_port() -> int:
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
         return int(s.getsockname()[1])
+
+
+def smooth_field(shape: tuple[int, ...], sigma: float, seed: int) -> np.ndarray:
+    """Gaussian-smoothed white noise (a stand-in for a stained tissue image), float64."""
+    from scipy.ndimage import gaussian_filter
+
+    rng = np.random.default_rng(seed)
+    field: np.ndarray = gaussian_filter(rng.standard_normal(shape), sigma)
+    return field
+
+
+def ring_mask(
+    shape: tuple[int, ...],
+    center: tuple[float, ...],
+    inner: float,
+    outer: float,
+    spacing: tuple[float, ...] | None = None,
+) -> np.ndarray:
+    """Pixels whose centre (index * spacing) lies at distance in [inner, outer] from
+    ``center``: an annulus in 2D (a vessel wall around its lumen), a hollow shell in 3D."""
+    steps = spacing or (1.0,) * len(shape)
+    grids = np.meshgrid(
+        *[np.arange(n) * s - c for n, s, c in zip(shape, steps, center, strict=True)],
+        indexing="ij",
+    )
+    radius = np.sqrt(sum(g * g for g in grids))
+    mask: np.ndarray = (radius >= inner) & (radius <= outer)
+    return mask
+
+
+def cell_blobs(shape: tuple[int, int], count: int, radius: float, seed: int) -> np.ndarray:
+    """A binary mask of ``count`` round cells of about ``radius`` pixels at random places;
+    touching cells merge, as they do in a segmented crowded field."""
+    rng = np.random.default_rng(seed)
+    rows, cols = np.indices(shape)
+    mask = np.zeros(shape, dtype=bool)
+    for _ in range(count):
+        r, c = rng.uniform(0, shape[0]), rng.uniform(0, shape[1])
+        size = radius * rng.uniform(0.6, 1.4)
+        mask |= (rows - r) ** 2 + (cols - c) ** 2 <= size * size
+    return mask

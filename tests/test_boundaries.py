@@ -20,7 +20,15 @@ def test_service_runs_without_numerical_modules() -> None:
     # With the heavy modules made unimportable the app builds and serves /healthz; if
     # service/ imported any of them, this would raise ImportError.
     run_with_blocked(
-        ["ripser", "gudhi", "matplotlib", "workers.core", "workers.jobs", "workers.compute"],
+        [
+            "ripser",
+            "gudhi",
+            "scipy",
+            "matplotlib",
+            "workers.core",
+            "workers.jobs",
+            "workers.compute",
+        ],
         "from service.app import create_app\n"
         "from service.settings import Settings\n"
         "app = create_app(Settings(redis_url='redis://127.0.0.1:1/0'))\n"

@@ -180,6 +180,7 @@ class ComputeProcess:
                 if should_stop():
                     raise JobAborted(failures.cancelled())
         except (EOFError, OSError):
+            self._process.join(timeout=1)  # the pipe closes a moment before the exit status
             code = self._process.exitcode
             self.kill()
             raise JobAborted(failures.computation_crashed(code)) from None

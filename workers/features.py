@@ -24,7 +24,7 @@ from workers.spec.features import (
 )
 from workers.spec.results import FeatureVector, LayoutEntry
 
-__all__ = ["feature_values", "feature_vectors", "layout_id_of"]
+__all__ = ["direction_feature_vectors", "feature_values", "feature_vectors", "layout_id_of"]
 
 
 def feature_values(spec: FeatureSpec, pairs: np.ndarray) -> np.ndarray:
@@ -61,9 +61,45 @@ def feature_vectors(
     specs: Sequence[FeatureSpec], diagrams: Mapping[int, np.ndarray]
 ) -> tuple[list[FeatureVector], list[LayoutEntry], str | None]:
     """Vectors of ``specs`` on ``diagrams`` (dimension -> (k, 2)), their layout and its id."""
+    vectors, layout = _vectors_of(specs, diagrams, direction=None, start=0)
+    layout_id = layout_id_of([entry.spec_id for entry in layout]) if layout else None
+    return vectors, layout, layout_id
+
+
+def direction_feature_vectors(
+    specs: Sequence[FeatureSpec],
+    diagram_sets: Sequence[tuple[list[float], Mapping[int, np.ndarray]]],
+) -> tuple[list[FeatureVector], list[LayoutEntry], str | None]:
+    """Vectors of ``specs`` on each (direction, diagrams) in turn, direction-major.
+
+    The layout id covers the unit directions too: vectors of other directions do not stack.
+    """
     vectors: list[FeatureVector] = []
     layout: list[LayoutEntry] = []
-    start = 0
+    for index, (_, diagrams) in enumerate(diagram_sets):
+        start = layout[-1].stop if layout else 0
+        more_vectors, more_layout = _vectors_of(specs, diagrams, direction=index, start=start)
+        vectors += more_vectors
+        layout += more_layout
+    if not layout:
+        return vectors, layout, None
+    layout_id = canonical_sha256(
+        {
+            "spec_ids": [spec.spec_id or spec_id_of(spec) for spec in specs],
+            "directions": [direction for direction, _ in diagram_sets],
+        }
+    )
+    return vectors, layout, layout_id
+
+
+def _vectors_of(
+    specs: Sequence[FeatureSpec],
+    diagrams: Mapping[int, np.ndarray],
+    direction: int | None,
+    start: int,
+) -> tuple[list[FeatureVector], list[LayoutEntry]]:
+    vectors: list[FeatureVector] = []
+    layout: list[LayoutEntry] = []
     for index, spec in enumerate(specs):
         spec_id = spec.spec_id or spec_id_of(spec)
         values = feature_values(spec, diagrams.get(spec.dim, np.empty((0, 2))))
@@ -73,22 +109,26 @@ def feature_vectors(
                 "exponent or order, or rescale the diagram",
                 field=f"/features/{index}",
             )
-        shape = vector_shape(spec)
         vectors.append(
             FeatureVector(
                 type=spec.type,
                 dim=spec.dim,
                 spec_id=spec_id,
-                shape=shape,
+                direction=direction,
+                shape=vector_shape(spec),
                 values=values.ravel().tolist(),
                 labels=summary_names(spec.quantiles) if isinstance(spec, SummarySpec) else None,
             )
         )
         layout.append(
             LayoutEntry(
-                type=spec.type, dim=spec.dim, spec_id=spec_id, start=start, stop=start + values.size
+                type=spec.type,
+                dim=spec.dim,
+                spec_id=spec_id,
+                direction=direction,
+                start=start,
+                stop=start + values.size,
             )
         )
         start += values.size
-    layout_id = layout_id_of([entry.spec_id for entry in layout]) if layout else None
-    return vectors, layout, layout_id
+    return vectors, layout

@@ -5,6 +5,7 @@ fetches the input from Redis and hands ``execute`` to the worker's compute proce
 worker kills when the job overruns its time limit or is cancelled.
 """
 
+import math
 import time
 from typing import Any
 
@@ -17,8 +18,9 @@ from workers.compute import ComputeProcess, JobAborted, Report, problem_for
 from workers.core.diagrams import drop_empty_bars, sort_pairs
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
-from workers.features import feature_vectors
+from workers.features import direction_feature_vectors, feature_vectors
 from workers.pairwise import distance_matrix, usable_cores
+from workers.pixel_diagrams import pixel_diagram_sets
 from workers.spec import (
     SCHEMA_VERSION,
     Diagram,
@@ -29,12 +31,13 @@ from workers.spec import (
     PersistenceTask,
     Problem,
     Provenance,
+    RipsFiltration,
     failures,
 )
 from workers.spec.arrays import array_sha256, diagrams_of_rows, from_npy_bytes
 from workers.spec.features import vector_length
 from workers.spec.jobs import cancel_key, input_key
-from workers.spec.results import package_versions
+from workers.spec.results import DirectionDiagrams, package_versions
 
 __all__ = ["execute", "execute_bytes", "run", "compute_process"]
 
@@ -66,19 +69,64 @@ def execute(
     payload: JobPayload, array: np.ndarray, *, job_id: str, report: Report = _ignore
 ) -> dict[str, Any]:
     """Compute the result of one job from its payload and its stored input array."""
+    if payload.input.type not in ("image", "mask"):  # images keep their dtype until negated
+        array = array.astype(np.float64, copy=False)
     if isinstance(payload.task, DistanceTask):
         return _distances(payload, payload.task, array, job_id, report)
     return _persistence(payload, payload.task, array, job_id)
+
+
+def _pixel_persistence(
+    payload: JobPayload, task: PersistenceTask, array: np.ndarray, job_id: str
+) -> dict[str, Any]:
+    """Diagrams of an image or mask filtration (one set per direction); then the features."""
+    started = time.perf_counter()
+    filtration = task.filtration
+    if filtration is None or isinstance(filtration, RipsFiltration):
+        raise TypeError("an image or mask job needs an array filtration")
+    sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
+    per_direction = None
+    if sets[0].direction is not None:  # several directions
+        named = [(s.direction or [], s.diagrams) for s in sets]
+        vectors, layout, layout_id = direction_feature_vectors(task.features, named)
+        per_direction = [
+            DirectionDiagrams(direction=direction, diagrams=_diagrams(diagrams))
+            for direction, diagrams in named
+        ]
+        diagrams = []
+    else:
+        vectors, layout, layout_id = feature_vectors(task.features, sets[0].diagrams)
+        diagrams = _diagrams(sets[0].diagrams)
+    result = JobResult(
+        job_id=job_id,
+        schema_version=SCHEMA_VERSION,
+        value_convention=convention,
+        units=None if convention in ("pixel_value", "negated_pixel_value") else payload.input.units,
+        diagrams=diagrams,
+        per_direction=per_direction,
+        vectors=vectors,
+        vector_length=sum(entry.stop - entry.start for entry in layout),
+        layout=layout,
+        layout_id=layout_id,
+        provenance=_provenance(payload, started),
+    )
+    return result.model_dump(mode="json")
+
+
+def _diagrams(diagrams: dict[int, np.ndarray]) -> list[Diagram]:
+    return [_diagram(dim, pairs) for dim, pairs in sorted(diagrams.items())]
 
 
 def _persistence(
     payload: JobPayload, task: PersistenceTask, array: np.ndarray, job_id: str
 ) -> dict[str, Any]:
     """Diagrams of the filtration on a point set, or the given diagrams; then the features."""
+    if payload.input.type in ("image", "mask"):
+        return _pixel_persistence(payload, task, array, job_id)
     started = time.perf_counter()
     sample = None
     filtration = task.filtration
-    if filtration is not None:  # a point set (n, d)
+    if isinstance(filtration, RipsFiltration):  # a point set (n, d)
         points = array
         if filtration.subsample is not None:
             choose = (
@@ -97,7 +145,7 @@ def _persistence(
         schema_version=SCHEMA_VERSION,
         value_convention="edge_length" if filtration is not None else None,
         units=payload.input.units,
-        diagrams=[_diagram(dim, pairs) for dim, pairs in sorted(diagrams.items())],
+        diagrams=_diagrams(diagrams),
         vectors=vectors,
         vector_length=sum(entry.stop - entry.start for entry in layout),
         layout=layout,
@@ -148,7 +196,7 @@ def _distances(
 def execute_bytes(header: dict[str, Any], input_bytes: bytes, report: Report) -> dict[str, Any]:
     """Entry used inside the compute child: JSON header and .npy bytes in, result dict out."""
     payload = JobPayload.model_validate(header["payload"])
-    array = from_npy_bytes(input_bytes).astype(np.float64, copy=False)
+    array = from_npy_bytes(input_bytes)
     return execute(payload, array, job_id=header["job_id"], report=report)
 
 
@@ -185,21 +233,31 @@ def _checked_input(data: object, payload: JobPayload) -> np.ndarray:
         array = from_npy_bytes(data)
     except ValueError:
         raise JobAborted(failures.input_corrupt()) from None
-    if tuple(array.shape) != payload.input.shape or array_sha256(array) != payload.input.sha256:
+    if list(array.shape) != payload.input.shape or array_sha256(array) != payload.input.sha256:
         raise JobAborted(failures.input_corrupt())
-    return array.astype(np.float64, copy=False)
+    return array
+
+
+INLINE_MAX_PIXELS = 4096
+"""Image and mask jobs up to this many pixels run in the worker itself (a few ms)."""
 
 
 def _runs_inline(payload: JobPayload) -> bool:
     """Is this job so small that the compute child's round trip would cost more than it?"""
     task, rows = payload.task, payload.input.shape[0]
+    if payload.input.type in ("image", "mask"):
+        return math.prod(payload.input.shape) <= INLINE_MAX_PIXELS
     if isinstance(task, DistanceTask):
         return task.count <= 8 and rows <= 2000
     if task.filtration is None:
         values = sum(vector_length(spec) for spec in task.features)
         return rows <= INLINE_MAX_PAIRS and values <= INLINE_MAX_VALUES
-    return rows <= INLINE_MAX_POINTS and task.filtration.max_dim <= 1 and (
-        task.filtration.subsample is None
+    filtration = task.filtration
+    return (
+        isinstance(filtration, RipsFiltration)
+        and rows <= INLINE_MAX_POINTS
+        and filtration.max_dim <= 1
+        and filtration.subsample is None
     )
 
 

@@ -1,6 +1,6 @@
 """``make bench``: lacuna against reference libraries, measured side by side in one run.
 
-Seven tables, all ratios (no absolute targets in tests):
+Eight tables, all ratios (no absolute targets in tests):
 
 1. Rips engine (H0+H1, full filtration) against ripser, gudhi with edge collapse and
    giotto-ph, on uniform points and noisy circles; diagrams are checked equal.
@@ -8,6 +8,8 @@ Seven tables, all ratios (no absolute targets in tests):
 3. Throughput of 200 small jobs on 2 workers against a bare in-process loop.
 4.-7. Persistence images, bottleneck and 1-Wasserstein distances of one pair, and distance
    matrices, against gudhi, hera and persim (tests/benchmarks/vectors.py).
+8. Cubical persistence of a 2048^2 image and 128^3 volumes against gudhi and cripser
+   (tests/benchmarks/cubical.py).
 
 Options: ``--quick`` skips n = 2000 (Rips) and 5000 (one pair); ``--cap S`` bounds each
 reference run (default 120 s); ``--only`` runs one group of tables.
@@ -31,6 +33,7 @@ import gudhi
 import numpy as np
 import requests
 
+from tests.benchmarks.cubical import cubical_table
 from tests.benchmarks.engines import REFERENCES, Engine, lacuna, ripser
 from tests.benchmarks.vectors import distance_tables, features_table
 from tests.synthetic import FAMILIES, free_port, noisy_circle
@@ -227,7 +230,9 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="skip n = 2000 and 5000")
     parser.add_argument("--cap", type=float, default=120.0, help="seconds per reference run")
     parser.add_argument(
-        "--only", choices=["engine", "service", "features", "distances"], default=None
+        "--only",
+        choices=["engine", "service", "features", "distances", "cubical"],
+        default=None,
     )
     args = parser.parse_args()
     if args.only in (None, "service"):
@@ -240,6 +245,8 @@ def main() -> None:
         features_table(args.cap)
     if args.only in (None, "distances"):
         distance_tables([1000] if args.quick else [1000, 5000], args.cap)
+    if args.only in (None, "cubical"):
+        cubical_table(args.cap)
 
 
 if __name__ == "__main__":

@@ -1,5 +1,7 @@
 """``lacuna serve`` and ``lacuna worker`` as real processes, talked to over HTTP."""
 
+import io
+import json
 import math
 import os
 import signal
@@ -9,13 +11,16 @@ import time
 import uuid
 from pathlib import Path
 
+import gudhi
+import numpy as np
 import pytest
 import requests
+import tifffile
 from redis import Redis
 
 from tests.conftest import E2E_DB, with_database
 from tests.processes import descendants, running
-from tests.synthetic import HEXAGON, free_port
+from tests.synthetic import HEXAGON, free_port, smooth_field
 
 pytestmark = pytest.mark.e2e
 
@@ -63,6 +68,7 @@ def test_embedded_stack_answers_and_stops_cleanly() -> None:
         assert job["status"] == "succeeded"
         spec = requests.get(base + "/v1/openapi.json").json()
         assert spec["openapi"].startswith("3.1")
+        _upload_a_stack(base)
         left = stop(process, signal.SIGINT)  # what Ctrl-C sends
         assert left == set(), f"orphaned processes: {left}"
         assert process.returncode == 0
@@ -77,6 +83,34 @@ def test_embedded_stack_answers_and_stops_cleanly() -> None:
             process.wait()
         if process.stdout is not None:
             process.stdout.close()
+
+
+def _upload_a_stack(base: str) -> None:
+    """A 3D TIFF stack through gunicorn as multipart: the diagrams equal gudhi's."""
+    volume = (smooth_field((8, 20, 22), 1.5, seed=9) * 3000 + 30000).astype(np.uint16)
+    buffer = io.BytesIO()
+    tifffile.imwrite(buffer, volume)
+    request = {"input": {"type": "image"}, "filtration": {"type": "cubical"}}
+    answer = requests.post(
+        base + "/v1/jobs",
+        files={
+            "request": (None, json.dumps(request), "application/json"),
+            "data": ("stack.tif", buffer.getvalue(), "image/tiff"),
+        },
+        headers={"Prefer": "wait=20"},
+    )
+    assert answer.status_code == 200, answer.text
+    # Reference library: gudhi's CubicalComplex with the voxels as top-dimensional cells.
+    reference = gudhi.CubicalComplex(top_dimensional_cells=volume.astype(np.float64))
+    reference.compute_persistence()
+    for diagram in answer.json()["diagrams"]:
+        pairs = np.array(
+            [[b, math.inf if d is None else d] for b, d in diagram["pairs"]], dtype=np.float64
+        ).reshape(-1, 2)
+        expected = np.asarray(reference.persistence_intervals_in_dimension(diagram["dim"]))
+        expected = expected.reshape(-1, 2)
+        expected = expected[expected[:, 1] > expected[:, 0]]
+        np.testing.assert_array_equal(pairs, expected[np.lexsort((expected[:, 1], expected[:, 0]))])
 
 
 def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:

@@ -162,7 +162,10 @@ def _with(body: dict[str, Any], section: str, **changes: Any) -> dict[str, Any]:
 
 INVALID = [
     pytest.param(
-        _with(job_body(), "input", type="image"), ["/input/type"], "points", id="unknown-input-type"
+        _with(job_body(), "input", type="surface"),
+        ["/input/type"],
+        "points",
+        id="unknown-input-type",
     ),
     pytest.param(
         _with(job_body(), "filtration", type="cech"),

@@ -10,14 +10,14 @@ import pytest
 from tests.processes import running
 from workers.compute import ComputeProcess, JobAborted, Report
 from workers.jobs import execute_bytes
-from workers.spec import JobPayload
+from workers.spec import SCHEMA_VERSION, JobPayload
 from workers.spec.arrays import array_sha256, to_npy_bytes
 
 
 def payload(points: np.ndarray, max_dim: int) -> JobPayload:
     return JobPayload.model_validate(
         {
-            "schema_version": "2",
+            "schema_version": SCHEMA_VERSION,
             "input": {
                 "type": "points",
                 "shape": list(points.shape),

@@ -11,7 +11,7 @@ from workers.compute import ComputeProcess, JobAborted
 from workers.core.diagram_distances import DiagramMetric, diagram_distance
 from workers.jobs import execute_bytes
 from workers.pairwise import distance_matrix
-from workers.spec import JobPayload
+from workers.spec import SCHEMA_VERSION, JobPayload
 from workers.spec.arrays import array_sha256, diagram_rows, to_npy_bytes
 from workers.spec.jobs import DistanceTask
 
@@ -80,7 +80,7 @@ def test_error_in_a_forked_process_is_raised_in_the_parent() -> None:
 def _payload(items: list[np.ndarray], rows: np.ndarray) -> JobPayload:
     return JobPayload.model_validate(
         {
-            "schema_version": "2",
+            "schema_version": SCHEMA_VERSION,
             "input": {
                 "type": "diagram_set",
                 "shape": list(rows.shape),

@@ -33,11 +33,18 @@ def from_npy_bytes(data: bytes) -> np.ndarray:
     return array
 
 
+HASH_CHUNK = 1 << 20
+"""Values converted to float64 at a time while hashing, so a large uint8 volume is never
+copied whole as float64."""
+
+
 def array_sha256(array: np.ndarray) -> str:
-    """SHA-256 of the ASCII shape ('n,d;') then the values as little-endian float64, C order."""
-    values = np.ascontiguousarray(array, dtype="<f8")
-    digest = hashlib.sha256(",".join(str(s) for s in values.shape).encode("ascii") + b";")
-    digest.update(values.tobytes())
+    """SHA-256 of the ASCII shape (sizes joined by ',', then ';') then the values as
+    little-endian float64 in C order, whatever dtype the array holds."""
+    flat = np.ascontiguousarray(array).reshape(-1)
+    digest = hashlib.sha256(",".join(str(s) for s in array.shape).encode("ascii") + b";")
+    for start in range(0, flat.size, HASH_CHUNK):
+        digest.update(flat[start : start + HASH_CHUNK].astype("<f8").tobytes())
     return digest.hexdigest()
 
 

@@ -14,6 +14,9 @@ class Limits(BaseModel):
     max_features: int = Field(description="Most feature specs in one job.")
     max_vector_length: int = Field(description="Most values in one job's concatenated vector.")
     max_distance_count: int = Field(description="Most diagrams or vectors in one distance matrix.")
+    max_image_pixels: int = Field(description="Most pixels in one 2D image or mask.")
+    max_volume_voxels: int = Field(description="Most voxels in one 3D volume or mask.")
+    max_upload_bytes: int = Field(description="Largest multipart request (array upload).")
     job_time_limit_s: float
     result_ttl_s: int
     max_wait_s: int = Field(description="Cap on the Prefer: wait=N request header.")
@@ -30,5 +33,8 @@ class Capabilities(BaseModel):
     metrics: list[str]
     value_convention: str
     binary_media_type: str = Field(description="Media type of binary arrays (NumPy .npy).")
+    upload_formats: list[str] = Field(
+        description="File formats accepted as the `data` part of a multipart job request."
+    )
     limits: Limits
     versions: dict[str, str]

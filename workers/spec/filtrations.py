@@ -1,10 +1,11 @@
 """How a job builds its filtration."""
 
+import math
 from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
-from workers.spec.numbers import FiniteFloat
+from workers.spec.numbers import Coordinate, FiniteFloat
 
 
 class Subsample(BaseModel):
@@ -37,5 +38,95 @@ class RipsFiltration(BaseModel):
     subsample: Subsample | None = None
 
 
-Filtration = Annotated[RipsFiltration, Field(discriminator="type")]
+ArrayMaxDim = Annotated[
+    int | None,
+    Field(
+        strict=True,
+        ge=0,
+        le=2,
+        description="Highest homology dimension, at most d - 1 for a d-dimensional array. "
+        "Default: d - 1 (H0 and H1 in 2D; H0, H1 and H2 in 3D).",
+    ),
+]
+
+Vector = Annotated[
+    list[Coordinate],
+    Field(min_length=2, max_length=3, description="One number per array axis, in array-axis "
+          "order (the order of `spacing`)."),
+]
+
+
+class CubicalFiltration(BaseModel):
+    """Sublevel or superlevel sets of an image's values on its cubical complex.
+
+    Pixels (voxels) are the top-dimensional cells; an edge, vertex or face enters with the
+    first pixel that contains it. ``superlevel`` is the sublevel filtration of the negated
+    values, and diagrams are reported on that negated axis, so births stay below deaths.
+    """
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["cubical"]
+    direction: Literal["sublevel", "superlevel"] = "sublevel"
+    max_dim: ArrayMaxDim = None
+
+
+class DistanceFiltration(BaseModel):
+    """A mask grown outward: the signed Euclidean distance of each pixel centre to the other
+    side of the mask boundary, negative inside and positive outside, in units of spacing.
+
+    The complex at value 0 is the mask itself; below 0 it is the mask eroded, above 0 the mask
+    dilated (flooding outward until the holes fill)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["distance"]
+    max_dim: ArrayMaxDim = None
+
+
+class HeightFiltration(BaseModel):
+    """A mask swept by a line (2D) or plane (3D): foreground pixels enter at the projection of
+    their centre on a unit direction. Give one ``direction``, or several ``directions`` for one
+    diagram set per direction (in request order). Vectors need not be unit: they are scaled to
+    length 1, and results echo the unit vectors used."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["height"]
+    direction: Vector | None = None
+    directions: Annotated[list[Vector] | None, Field(min_length=1, max_length=256)] = None
+    max_dim: ArrayMaxDim = None
+
+    def unit_directions(self) -> list[list[float]]:
+        """The direction vectors scaled to length 1, in request order."""
+        vectors = [self.direction] if self.direction is not None else self.directions or []
+        units = []
+        for vector in vectors:
+            norm = math.hypot(*vector)  # scaled: no overflow or underflow of the squares
+            units.append([v / norm for v in vector])
+        return units
+
+
+class RadialFiltration(BaseModel):
+    """Shells around a centre: foreground pixels enter at the Euclidean distance of their
+    centre from ``center`` (physical coordinates in array-axis order; pixel (0, 0) is at the
+    origin). The centre may lie outside the array."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["radial"]
+    center: Vector
+    max_dim: ArrayMaxDim = None
+
+
+ArrayFiltration = CubicalFiltration | DistanceFiltration | HeightFiltration | RadialFiltration
+"""Filtrations built on a pixel or voxel array."""
+
+MASK_FILTRATIONS = ("distance", "height", "radial")
+"""Filtrations whose values come from a mask's geometry."""
+
+Filtration = Annotated[
+    RipsFiltration | CubicalFiltration | DistanceFiltration | HeightFiltration | RadialFiltration,
+    Field(discriminator="type"),
+]
 """Every filtration type, told apart by ``type``."""

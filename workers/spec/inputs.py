@@ -1,10 +1,10 @@
 """What a job computes on."""
 
-from typing import Annotated, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
 
-from workers.spec.numbers import Coordinate
+from workers.spec.numbers import Coordinate, FiniteFloat
 from workers.spec.results import Diagram
 
 MAX_COORDINATES = 16
@@ -44,5 +44,81 @@ class DiagramsInput(BaseModel):
     units: Units = None
 
 
-Input = Annotated[PointsInput | DiagramsInput, Field(discriminator="type")]
+Pixel = Annotated[FiniteFloat, Field(ge=-1e300, le=1e300)]
+"""One pixel or voxel value: finite, and small enough that its negative and differences stay
+finite."""
+
+
+def _nesting(values: Any) -> str:
+    """Tag of a nested list by its depth: rows of numbers (2D) or planes of rows (3D)."""
+    if isinstance(values, list) and values and isinstance(values[0], list):
+        first = values[0]
+        if first and isinstance(first[0], list):
+            return "planes"
+    return "rows"
+
+
+PixelValues = Annotated[
+    Annotated[
+        list[Annotated[list[Pixel], Field(min_length=1)]], Field(min_length=1), Tag("rows")
+    ]
+    | Annotated[
+        list[Annotated[list[Annotated[list[Pixel], Field(min_length=1)]], Field(min_length=1)]],
+        Field(min_length=1),
+        Tag("planes"),
+    ],
+    Discriminator(_nesting),
+    Field(
+        description="The array as nested lists in array-axis order: rows of pixels (2D) or "
+        "planes of rows (3D); every row the same length. Leave out when the array is "
+        "uploaded as the `data` part of a multipart request."
+    ),
+]
+
+Spacing = Annotated[
+    list[Annotated[FiniteFloat, Field(gt=0, le=1e100)]] | None,
+    Field(
+        min_length=2,
+        max_length=3,
+        description="Physical size of a pixel or voxel along each array axis, in array-axis "
+        "order (e.g. [2.0, 0.5, 0.5] for z, y, x). Default: 1 per axis (values in pixels).",
+    ),
+]
+
+ArrayUnits = Annotated[
+    str | None,
+    Field(max_length=32, description='Unit of `spacing` (e.g. "um"), echoed in results whose '
+          "values are lengths."),
+]
+
+
+class ImageInput(BaseModel):
+    """A 2D image or 3D volume of scalar values (intensities, probabilities, heights)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["image"]
+    values: PixelValues | None = None
+    spacing: Spacing = None
+    units: ArrayUnits = None
+
+
+class MaskInput(BaseModel):
+    """A 2D or 3D segmentation: 0 is background, any positive integer is foreground (binary
+    masks as 0/1 or 0/255, and label images, whose labels together are the foreground)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["mask"]
+    values: PixelValues | None = None
+    spacing: Spacing = None
+    units: ArrayUnits = None
+
+
+ArrayInput = ImageInput | MaskInput
+"""Inputs that are arrays of pixels or voxels."""
+
+Input = Annotated[
+    PointsInput | DiagramsInput | ImageInput | MaskInput, Field(discriminator="type")
+]
 """Every input type, told apart by ``type``."""

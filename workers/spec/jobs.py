@@ -79,20 +79,21 @@ class JobStatus(BaseModel):
     links: dict[str, str]
 
 
-StoredType = Literal["points", "diagrams", "diagram_set", "vectors"]
+StoredType = Literal["points", "diagrams", "diagram_set", "vectors", "image", "mask"]
 
 
 class StoredInput(BaseModel):
     """Description of an input array kept in Redis next to the job (not on the queue).
 
     Arrays by type: ``points`` (n, d) coordinates; ``diagrams`` and ``diagram_set`` (k, 3)
-    rows of (dimension or diagram index, birth, death with inf for never); ``vectors`` (N, L).
+    rows of (dimension or diagram index, birth, death with inf for never); ``vectors`` (N, L);
+    ``image`` and ``mask`` 2D or 3D arrays in the dtype they arrived in.
     """
 
     model_config = ConfigDict(extra="forbid")
 
     type: StoredType
-    shape: tuple[int, int]
+    shape: Annotated[list[int], Field(min_length=2, max_length=3)]
     sha256: str
     units: str | None = None
 
@@ -112,6 +113,9 @@ class PersistenceTask(BaseModel):
     features: Annotated[
         list[FeatureSpec], Field(description="Resolved specs, each with its spec_id set.")
     ] = []
+    spacing: Annotated[
+        list[float] | None, Field(description="Pixel size per axis (image and mask inputs).")
+    ] = None
 
 
 class DistanceTask(BaseModel):

@@ -2,6 +2,7 @@
 
 from typing import Annotated
 
+import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
 from workers.spec.capabilities import Limits
@@ -16,8 +17,9 @@ from workers.spec.features import (
     spec_id_of,
     vector_length,
 )
-from workers.spec.filtrations import Filtration
-from workers.spec.inputs import DiagramsInput, Input, PointsInput
+from workers.spec.filtrations import Filtration, HeightFiltration, RipsFiltration
+from workers.spec.inputs import ArrayInput, DiagramsInput, ImageInput, Input, MaskInput, PointsInput
+from workers.spec.pixels import UPLOAD_POINTER, array_of_values, max_dim_of, pixel_errors
 from workers.spec.problems import FieldError
 
 __all__ = ["JobRequest", "MAX_FEATURES", "length_error", "pair_errors"]
@@ -58,21 +60,71 @@ class JobRequest(BaseModel):
             if isinstance(item, SpecReference)
         ]
 
-    def field_errors(self, limits: Limits) -> list[FieldError]:
+    def field_errors(
+        self, limits: Limits, pixels: np.ndarray | None = None, uploaded: bool = False
+    ) -> list[FieldError]:
         """Checks that span several fields or depend on configured limits.
 
         Pydantic validates each field on its own; what only makes sense together (all rows of
         one length, a subsample no larger than the set, features of computed dimensions, the
         configured limits) is checked here. Features given by reference must have been
-        resolved (``with_features``) before.
+        resolved (``with_features``) before. ``pixels`` is the array of an image or mask input
+        (from ``pixel_array`` or an upload; ``uploaded`` says which).
         """
+        computed: set[int] = set()
         if isinstance(self.input, PointsInput):
+            if self.filtration is not None and not isinstance(self.filtration, RipsFiltration):
+                return [
+                    FieldError(
+                        pointer="/filtration/type",
+                        message=f'a point set takes the "rips" filtration, not '
+                        f'"{self.filtration.type}"',
+                    )
+                ]
             errors = self._points_errors(self.input, limits)
             computed = set(range(self.filtration.max_dim + 1)) if self.filtration else set()
-        else:
+        elif isinstance(self.input, DiagramsInput):
             errors = self._diagrams_errors(self.input, limits)
             computed = {diagram.dim for diagram in self.input.diagrams}
-        return errors + self._feature_errors(computed, limits)
+        else:
+            errors = self._array_errors(self.input, pixels, uploaded, limits)
+            if errors:
+                return errors
+            assert pixels is not None and self.filtration is not None  # else errors said so
+            computed = set(range(max_dim_of(self.filtration, pixels.ndim) + 1))
+        copies = 1
+        if isinstance(self.filtration, HeightFiltration) and self.filtration.directions:
+            copies = len(self.filtration.directions)  # the features repeat per direction
+        return errors + self._feature_errors(computed, limits, copies)
+
+    def pixel_array(self) -> np.ndarray | FieldError | None:
+        """The array of an image or mask given as JSON values (None for other inputs and for
+        arrays to be uploaded), or a FieldError at the first ragged row."""
+        if isinstance(self.input, ImageInput | MaskInput) and self.input.values is not None:
+            return array_of_values(self.input.values)
+        return None
+
+    def _array_errors(
+        self, array_input: ArrayInput, pixels: np.ndarray | None, uploaded: bool, limits: Limits
+    ) -> list[FieldError]:
+        if uploaded and array_input.values is not None:
+            return [
+                FieldError(
+                    pointer="/input/values",
+                    message="the array is both in values and uploaded as the data part; send "
+                    "it one way",
+                )
+            ]
+        if pixels is None:
+            return [
+                FieldError(
+                    pointer="/input/values",
+                    message="give the array as values (nested lists), or upload it as the "
+                    "data part of a multipart/form-data request",
+                )
+            ]
+        where = UPLOAD_POINTER if uploaded else "/input/values"
+        return pixel_errors(pixels, array_input, self.filtration, limits, where)
 
     def specs(self) -> list[FeatureSpec]:
         """The feature specs, each with its spec_id set (references must be resolved)."""
@@ -107,6 +159,7 @@ class JobRequest(BaseModel):
                     message='a point set needs a filtration, e.g. {"type": "rips", "max_dim": 1}',
                 )
             ]
+        assert isinstance(self.filtration, RipsFiltration)  # field_errors checked
         errors: list[FieldError] = []
         n = len(points)
         subsample = self.filtration.subsample
@@ -186,7 +239,9 @@ class JobRequest(BaseModel):
             )
         return errors
 
-    def _feature_errors(self, computed: set[int], limits: Limits) -> list[FieldError]:
+    def _feature_errors(
+        self, computed: set[int], limits: Limits, copies: int
+    ) -> list[FieldError]:
         errors: list[FieldError] = []
         total = 0
         for index, item in enumerate(self.features):
@@ -205,7 +260,7 @@ class JobRequest(BaseModel):
             mismatch = spec_id_mismatch(item, f"{where}/spec_id")
             if mismatch is not None:
                 errors.append(mismatch)
-            total += vector_length(item)
+            total += vector_length(item) * copies
             too_long = length_error(item, where, limits)
             if too_long is not None:
                 errors.append(too_long)
@@ -213,8 +268,9 @@ class JobRequest(BaseModel):
             errors.append(
                 FieldError(
                     pointer="/features",
-                    message=f"the features have {total} values together, above the vector "
-                    f"length limit of {limits.max_vector_length}",
+                    message=f"the features have {total} values together"
+                    + (f" ({copies} directions)" if copies > 1 else "")
+                    + f", above the vector length limit of {limits.max_vector_length}",
                 )
             )
         return errors

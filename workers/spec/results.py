@@ -54,12 +54,20 @@ class Diagram(BaseModel):
     ]
 
 
+DirectionIndex = Annotated[
+    int | None,
+    Field(description="Position of the direction in the request's `directions` (null "
+          "without directions)."),
+]
+
+
 class FeatureVector(BaseModel):
     """The values of one feature spec on one diagram."""
 
     type: str
     dim: int
     spec_id: str
+    direction: DirectionIndex = None
     shape: list[int]
     values: Annotated[list[float], Field(description="Flattened row-major (C order).")]
     labels: Annotated[
@@ -73,6 +81,7 @@ class LayoutEntry(BaseModel):
     type: str
     dim: int
     spec_id: str
+    direction: DirectionIndex = None
     start: int
     stop: int
 
@@ -106,23 +115,58 @@ class Provenance(BaseModel):
     ] = None
 
 
+ValueConvention = Literal[
+    "edge_length",
+    "pixel_value",
+    "negated_pixel_value",
+    "signed_distance",
+    "height",
+    "radial_distance",
+]
+"""What the numbers of a diagram are."""
+
+
+class DirectionDiagrams(BaseModel):
+    """The diagrams of one direction of a height filtration with several directions."""
+
+    direction: Annotated[list[float], Field(description="The unit vector used.")]
+    diagrams: list[Diagram]
+
+
 class JobResult(BaseModel):
     """Result of a job: its diagrams, and the feature vectors it asked for."""
 
     job_id: str
     schema_version: str
     value_convention: Annotated[
-        Literal["edge_length"] | None,
+        ValueConvention | None,
         Field(
-            description="Rips values are edge lengths (diameters), twice the ball radius; "
-            "null for diagrams given as input, whose convention is the client's."
+            description="What the values are. edge_length: Rips edge lengths (diameters), twice "
+            "the ball radius. pixel_value: image values (cubical sublevel). "
+            "negated_pixel_value: image values negated (cubical superlevel; a class of bright "
+            "pixels born at 200 and dying at 50 is [-200, -50]). signed_distance: distance "
+            "to the mask boundary, negative inside (units of spacing). height: projection on "
+            "the direction (units of spacing). radial_distance: distance from the center "
+            "(units of spacing). Null for diagrams given as input, whose convention is the "
+            "client's."
         ),
     ]
-    units: str | None = None
+    units: Annotated[
+        str | None,
+        Field(description="Unit of the values, when they are lengths or coordinates."),
+    ] = None
     diagrams: Annotated[
         list[Diagram],
-        Field(description="One per dimension 0..max_dim, or the given diagrams normalised."),
+        Field(
+            description="One per dimension 0..max_dim, or the given diagrams normalised; "
+            "empty when the filtration has several directions (see per_direction)."
+        ),
     ]
+    per_direction: Annotated[
+        list[DirectionDiagrams] | None,
+        Field(description="One diagram set per direction, in request order (filtrations "
+              "with `directions`)."),
+    ] = None
     vectors: Annotated[
         list[FeatureVector], Field(description="One per requested feature, in request order.")
     ] = []

@@ -1,0 +1,271 @@
+"""Image and mask arrays: built from nested lists, and checked against the request and limits.
+
+The same checks run whether the array came as JSON ``values`` or as an uploaded file, so a
+client gets the same answer for the same pixels either way; only the pointer differs
+(``/input/values/...`` for JSON, ``/data`` for the uploaded part).
+"""
+
+import math
+from typing import Any
+
+import numpy as np
+
+from workers.spec.capabilities import Limits
+from workers.spec.filtrations import (
+    MASK_FILTRATIONS,
+    CubicalFiltration,
+    Filtration,
+    HeightFiltration,
+    RadialFiltration,
+)
+from workers.spec.inputs import ArrayInput, MaskInput
+from workers.spec.problems import FieldError
+
+__all__ = ["UPLOAD_POINTER", "MAX_PIXEL_MAGNITUDE", "array_of_values", "pixel_errors", "max_dim_of"]
+
+UPLOAD_POINTER = "/data"
+"""Pointer naming the uploaded file part of a multipart request."""
+
+MAX_PIXEL_MAGNITUDE = 1e300
+"""Largest absolute pixel value: negations and differences of values stay finite."""
+
+
+def array_of_values(values: list[Any]) -> np.ndarray | FieldError:
+    """The nested lists of ``values`` as a float64 array, or a FieldError at the first row whose
+    length differs from the first row's (pydantic has checked depth and numbers)."""
+    if isinstance(values[0][0], list):  # planes of rows
+        rows = len(values[0])
+        width = len(values[0][0])
+        for plane, plane_rows in enumerate(values):
+            if len(plane_rows) != rows:
+                return FieldError(
+                    pointer=f"/input/values/{plane}",
+                    message=f"plane {plane} has {len(plane_rows)} rows, plane 0 has {rows}; "
+                    "every plane needs the same number",
+                )
+            for row, pixels in enumerate(plane_rows):
+                if len(pixels) != width:
+                    return _ragged(f"/input/values/{plane}/{row}", len(pixels), width)
+    else:
+        width = len(values[0])
+        for row, pixels in enumerate(values):
+            if len(pixels) != width:
+                return _ragged(f"/input/values/{row}", len(pixels), width)
+    return np.asarray(values, dtype=np.float64)
+
+
+def _ragged(pointer: str, length: int, width: int) -> FieldError:
+    return FieldError(
+        pointer=pointer,
+        message=f"this row has {length} pixels, the first row has {width}; every row needs "
+        "the same number",
+    )
+
+
+def max_dim_of(filtration: Filtration, ndim: int) -> int:
+    """The highest homology dimension a filtration on a ``ndim``-dimensional array computes."""
+    max_dim = filtration.max_dim
+    return ndim - 1 if max_dim is None else max_dim
+
+
+def pixel_errors(
+    array: np.ndarray,
+    array_input: ArrayInput,
+    filtration: Filtration | None,
+    limits: Limits,
+    where: str,
+) -> list[FieldError]:
+    """What is wrong with an image or mask array and the filtration asked of it.
+
+    ``where`` points at the array: ``/input/values`` or ``/data``.
+    """
+    errors = _shape_errors(array, limits, where)
+    if errors:
+        return errors
+    errors = _value_errors(array, array_input, where)
+    ndim = array.ndim
+    if array_input.spacing is not None and len(array_input.spacing) != ndim:
+        errors.append(
+            FieldError(
+                pointer="/input/spacing",
+                message=f"spacing has {len(array_input.spacing)} numbers for a {ndim}D array; "
+                f"give one per axis ({ndim})",
+            )
+        )
+    return errors + _filtration_errors(array, array_input, filtration)
+
+
+def _shape_errors(array: np.ndarray, limits: Limits, where: str) -> list[FieldError]:
+    if array.ndim not in (2, 3):
+        return [
+            FieldError(
+                pointer=where,
+                message=f"the array has {array.ndim} dimensions (shape {list(array.shape)}); "
+                "images are 2D (rows, columns) and volumes 3D (planes, rows, columns)",
+            )
+        ]
+    if array.size < 2:
+        return [
+            FieldError(
+                pointer=where,
+                message=f"the array has {array.size} pixels (shape {list(array.shape)}); at "
+                "least 2 are needed for any topology",
+            )
+        ]
+    limit = limits.max_image_pixels if array.ndim == 2 else limits.max_volume_voxels
+    if array.size > limit:
+        kind = "pixels in a 2D image" if array.ndim == 2 else "voxels in a 3D volume"
+        return [
+            FieldError(
+                pointer=where,
+                message=f"shape {list(array.shape)} has {array.size} values, above the limit "
+                f"of {limit} {kind}",
+            )
+        ]
+    if array.dtype.kind not in "biuf":
+        return [
+            FieldError(
+                pointer=where,
+                message=f"the array holds {array.dtype} values; send numbers (bool, integer "
+                "or floating point)",
+            )
+        ]
+    return []
+
+
+def _first_index(bad: np.ndarray) -> list[int]:
+    return [int(i) for i in np.unravel_index(int(np.argmax(bad)), bad.shape)]
+
+
+def _at(where: str, index: list[int]) -> str:
+    """Pointer to one pixel: a path into JSON values, or the uploaded part itself."""
+    if where.startswith("/input/values"):
+        return where + "".join(f"/{i}" for i in index)
+    return where
+
+
+def _value_errors(array: np.ndarray, array_input: ArrayInput, where: str) -> list[FieldError]:
+    if array.dtype.kind == "f":
+        bad = ~np.isfinite(array)
+        if array.dtype.itemsize >= 8:  # narrower floats cannot reach the bound (nor hold it)
+            bad |= np.abs(array) > MAX_PIXEL_MAGNITUDE
+        if bad.any():
+            index = _first_index(bad)
+            return [
+                FieldError(
+                    pointer=_at(where, index),
+                    message=f"pixel {index} is {array[tuple(index)]!r}; values must be finite "
+                    f"numbers of magnitude at most {MAX_PIXEL_MAGNITUDE:g}",
+                )
+            ]
+    if isinstance(array_input, MaskInput) and array.dtype.kind != "b":
+        bad = array < 0
+        if array.dtype.kind == "f":
+            bad |= array != np.floor(array)
+        if bad.any():
+            index = _first_index(bad)
+            return [
+                FieldError(
+                    pointer=_at(where, index),
+                    message=f"pixel {index} is {array[tuple(index)]!r}; a mask holds 0 for "
+                    "background and positive integers for foreground (0/1, 0/255 or labels)",
+                )
+            ]
+    return []
+
+
+def _filtration_errors(
+    array: np.ndarray, array_input: ArrayInput, filtration: Filtration | None
+) -> list[FieldError]:
+    kind = array_input.type
+    if filtration is None:
+        hint = (
+            '{"type": "cubical", "direction": "sublevel"}'
+            if kind == "image"
+            else '{"type": "distance"}'
+        )
+        return [
+            FieldError(pointer="/filtration", message=f"an {kind} needs a filtration, e.g. {hint}")
+        ]
+    if kind == "image" and not isinstance(filtration, CubicalFiltration):
+        return [
+            FieldError(
+                pointer="/filtration/type",
+                message=f'an image takes the "cubical" filtration, not "{filtration.type}" '
+                '(distance, height and radial are for "mask" inputs)',
+            )
+        ]
+    if kind == "mask" and filtration.type not in MASK_FILTRATIONS:
+        return [
+            FieldError(
+                pointer="/filtration/type",
+                message=f'a mask takes a "distance", "height" or "radial" filtration, not '
+                f'"{filtration.type}" (send the array as an "image" for "cubical")',
+            )
+        ]
+    ndim = array.ndim
+    errors: list[FieldError] = []
+    if filtration.max_dim is not None and filtration.max_dim > ndim - 1:
+        errors.append(
+            FieldError(
+                pointer="/filtration/max_dim",
+                message=f"max_dim {filtration.max_dim} is above {ndim - 1}, the highest "
+                f"dimension a {ndim}D array has",
+            )
+        )
+    if isinstance(filtration, HeightFiltration):
+        errors.extend(_direction_errors(filtration, ndim))
+    if isinstance(filtration, RadialFiltration) and len(filtration.center) != ndim:
+        errors.append(
+            FieldError(
+                pointer="/filtration/center",
+                message=f"center has {len(filtration.center)} coordinates for a {ndim}D array",
+            )
+        )
+    if filtration.type == "distance":
+        foreground = int(np.count_nonzero(array))
+        if foreground in (0, array.size):
+            side = "no foreground" if foreground == 0 else "no background"
+            errors.append(
+                FieldError(
+                    pointer="/filtration/type",
+                    message=f"the mask has {side} pixels, so the distance to its boundary is "
+                    "undefined; use height or radial, or send a mask with both",
+                )
+            )
+    return errors
+
+
+def _direction_errors(filtration: HeightFiltration, ndim: int) -> list[FieldError]:
+    if (filtration.direction is None) == (filtration.directions is None):
+        return [
+            FieldError(
+                pointer="/filtration/direction",
+                message='give either "direction" (one vector) or "directions" (a list), '
+                "exactly one of them",
+            )
+        ]
+    if filtration.direction is not None:
+        named = [("/filtration/direction", filtration.direction)]
+    else:
+        named = [
+            (f"/filtration/directions/{i}", vector)
+            for i, vector in enumerate(filtration.directions or [])
+        ]
+    errors = []
+    for pointer, vector in named:
+        if len(vector) != ndim:
+            errors.append(
+                FieldError(
+                    pointer=pointer,
+                    message=f"the direction has {len(vector)} numbers for a {ndim}D array",
+                )
+            )
+        elif math.hypot(*vector) == 0:
+            errors.append(
+                FieldError(
+                    pointer=pointer,
+                    message="the direction has length 0; give a non-zero vector",
+                )
+            )
+    return errors
