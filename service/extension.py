@@ -40,6 +40,7 @@ def limits_of(settings: Settings) -> Limits:
         max_image_pixels=settings.max_image_pixels,
         max_volume_voxels=settings.max_volume_voxels,
         max_upload_bytes=settings.max_upload_bytes,
+        max_result_pairs=settings.max_result_pairs,
         job_time_limit_s=settings.job_time_limit_s,
         result_ttl_s=settings.result_ttl_s,
         max_wait_s=settings.max_wait_s,

@@ -154,6 +154,12 @@ def register(app: Flask) -> None:
         if status == 413:
             limit = request.max_content_length
             detail = f"the body is larger than the limit of {limit} bytes"
+            if limit is not None and (request.content_length or 0) <= limit:  # a form limit
+                detail = (
+                    f"a multipart text part is larger than {request.max_form_memory_size} bytes, "
+                    f"or there are more than {request.max_form_parts} parts; send the request "
+                    "part as a file part, and only the request and data parts"
+                )
         # get_headers() carries Allow for 405 (RFC 9110 15.5.6); the body type is ours.
         headers = {k: v for k, v in error.get_headers() if k.lower() != "content-type"}
         if status >= 500:

@@ -81,6 +81,7 @@ class JobQueue:
                 {"request": submission.described, "input_sha256": input_sha}
             ),
             time_limit_s=self.settings.job_time_limit_s,
+            max_result_pairs=self.settings.max_result_pairs,
         )
         job_id = str(uuid.uuid4())
         keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)

@@ -36,11 +36,11 @@ def _state() -> ServiceState:
     return state
 
 
-def _json_body() -> Any:
+def _json_body(also: str = "") -> Any:
     mimetype = request.mimetype
     if mimetype != "application/json" and not mimetype.endswith("+json"):
         raise UnsupportedMediaType(
-            f"send the body as application/json (got {mimetype or 'no Content-Type'})"
+            f"send the body as application/json{also} (got {mimetype or 'no Content-Type'})"
         )
     raw = request.get_data(cache=False)
     try:
@@ -84,7 +84,8 @@ def _job_request() -> tuple[JobRequest, np.ndarray | None, bool]:
     uploaded file (multipart) rather than JSON values."""
     state = _state()
     if request.mimetype != "multipart/form-data":
-        job_request = state.feature_specs.resolve(JobRequest.model_validate(_json_body()))
+        body = _json_body(", or as multipart/form-data with request and data parts")
+        job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
         pixels = job_request.pixel_array()
         if isinstance(pixels, FieldError):
             raise RequestInvalid([pixels])

@@ -3,7 +3,7 @@
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
-from workers.spec.jobs import DEFAULT_QUEUE
+from workers.spec.jobs import DEFAULT_MAX_RESULT_PAIRS, DEFAULT_QUEUE
 
 __all__ = ["Settings"]
 
@@ -43,13 +43,21 @@ class Settings(BaseSettings):
         ge=2,
         le=2**31 // 9 - 16,
         description="Most voxels in one 3D volume or mask. The engine takes about 25-50 bytes "
-        "per voxel on smooth data and up to about 120 on noise, plus 8 for the values.",
+        "per voxel on smooth data, about 120 on noise and several hundred on data with many "
+        "ties (binary noise), plus 8 for the values; the job time limit bounds the rest.",
     )
     max_upload_bytes: int = Field(
         512 * 1024 * 1024,
         ge=1024,
         description="Largest multipart request (an array uploaded as a file); JSON bodies keep "
         "max_body_bytes.",
+    )
+    max_result_pairs: int = Field(
+        DEFAULT_MAX_RESULT_PAIRS,
+        ge=1,
+        le=DEFAULT_MAX_RESULT_PAIRS,
+        description="Most diagram pairs in one result (all dimensions and directions); a job "
+        "above it fails with a problem. The cap keeps a result under Redis's 512 MB value limit.",
     )
     inline_distance_pairs: int = Field(
         2000,

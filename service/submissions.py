@@ -139,6 +139,15 @@ def _from_results(
         chosen: list[tuple[int, list[Any]]] = []
         for index, result in enumerate(results):
             found = [d for d in result.get("diagrams", []) if d["dim"] == request.dim]
+            if not found and result.get("per_direction"):
+                errors.append(
+                    FieldError(
+                        pointer=f"/job_ids/{index}",
+                        message=f"job {result['job_id']} has one diagram set per direction; "
+                        "compare its feature vectors, or send the diagrams of one direction",
+                    )
+                )
+                continue
             if not found:
                 dims = [d["dim"] for d in result.get("diagrams", [])]
                 errors.append(

@@ -12,6 +12,7 @@ costs nothing. Nothing is ever unpickled.
 import io
 import json
 import math
+import re
 import struct
 import warnings
 from typing import Any
@@ -32,7 +33,8 @@ DATA_PART = "data"
 
 UPLOAD_FORMATS = ("npy", "tiff", "png")
 """Formats accepted as the data part: NumPy .npy (NEP 1, never pickled), TIFF (2D, or a
-multi-page stack as 3D; 8/16/32-bit integers and floats) and PNG (grayscale 1/8/16-bit)."""
+multi-page stack as 3D; one min-is-black channel of 8/16/32-bit integers or floats; any
+compression imagecodecs decodes, LZW and deflate included) and PNG (grayscale 1 to 16-bit)."""
 
 _NPY_MAGIC = b"\x93NUMPY"
 _PNG_MAGIC = b"\x89PNG\r\n\x1a\n"
@@ -46,8 +48,13 @@ def _refused(message: str) -> RequestInvalid:
     return RequestInvalid([FieldError(pointer=UPLOAD_POINTER, message=message)])
 
 
+MAX_REQUEST_PART_BYTES = 1024 * 1024
+"""Largest ``request`` part sent as a text field (a request without its array is small)."""
+
+
 def multipart_parts(request: Request) -> tuple[Any, bytes]:
     """The parsed ``request`` part and the raw bytes of the ``data`` part."""
+    request.max_form_memory_size = MAX_REQUEST_PART_BYTES
     text: str | None = request.form.get(REQUEST_PART)
     if text is None and REQUEST_PART in request.files:
         text = request.files[REQUEST_PART].read().decode("utf-8", errors="replace")
@@ -114,8 +121,10 @@ def _npy(data: bytes, limits: Limits) -> np.ndarray:
             shape, _, dtype = np.lib.format.read_array_header_2_0(stream, max_header_size=10_000)
         else:  # 3.0 only adds UTF-8 field names, i.e. structured arrays, refused anyway
             raise ValueError(f"format version {version[0]}.{version[1]} is not accepted")
-    except (ValueError, SyntaxError, struct.error) as error:
-        raise _refused(f"the .npy header cannot be read: {error}") from None
+    except Exception as error:  # numpy's header parser raises many types on crafted headers
+        raise _refused(f"the .npy header cannot be read: {_said(error)}") from None
+    if not all(type(size) is int and size >= 0 for size in shape):
+        raise _refused(f"the .npy header declares shape {shape!r}; sizes must be integers")
     if dtype.hasobject or dtype.fields is not None or dtype.kind not in "biuf":
         raise _refused(
             f"the .npy file holds {dtype} values; send numbers (bool, integer or floating "
@@ -129,41 +138,53 @@ def _npy(data: bytes, limits: Limits) -> np.ndarray:
         )
     try:
         array: np.ndarray = np.load(io.BytesIO(data), allow_pickle=False)
-    except ValueError as error:
-        raise _refused(f"the .npy file cannot be read: {error}") from None
+    except Exception as error:  # a header numpy accepted above but cannot load
+        raise _refused(f"the .npy file cannot be read: {_said(error)}") from None
     return array
 
 
 def _tiff(data: bytes, limits: Limits) -> np.ndarray:
     try:
         with tifffile.TiffFile(io.BytesIO(data)) as tiff:
-            if not tiff.series:
-                raise _refused("the TIFF file holds no image")
+            if len(tiff.series) != 1:
+                raise _refused(
+                    f"the TIFF file holds {len(tiff.series)} images (series); send one image "
+                    "or one stack per file"
+                )
             series = tiff.series[0]
             shape = tuple(int(s) for s in series.shape)
             if series.dtype is None or series.dtype.kind not in "biuf":
                 raise _refused(f"the TIFF file holds {series.dtype} values; send grayscale")
-            # Colour samples (a last axis of 3 or 4 marked as samples) are not one value each.
-            if series.axes and series.axes[-1] == "S":
+            page = series.keyframe
+            if "S" in series.axes or page.photometric != tifffile.PHOTOMETRIC.MINISBLACK:
+                kind = getattr(page.photometric, "name", page.photometric)
                 raise _refused(
-                    f"the TIFF file holds colour (shape {list(shape)}, axes {series.axes}); send "
-                    "one channel per file"
+                    f"the TIFF file is {kind} with axes {series.axes} (shape {list(shape)}); "
+                    "send one grayscale channel stored min-is-black"
                 )
             squeezed = tuple(s for s in shape if s != 1) if len(shape) > 3 else shape
             _check_declared(squeezed, limits, "TIFF file")
+            # Each strip or tile is decoded whole before it is placed: a tiny image may
+            # declare huge tiles (a decompression bomb), so they count against the limit too.
+            chunk = math.prod(int(n) for n in page.chunks)
+            if chunk > limits.max_image_pixels:
+                raise _refused(
+                    f"the TIFF file declares strips or tiles of {list(page.chunks)}, {chunk} "
+                    f"values each, above the limit of {limits.max_image_pixels}"
+                )
             array = series.asarray()
     except RequestInvalid:
         raise
-    except Exception as error:  # tifffile raises many types on corrupt files
-        raise _refused(f"the TIFF file cannot be read: {type(error).__name__}: {error}") from None
+    except Exception as error:  # tifffile and its codecs raise many types on corrupt files
+        raise _refused(f"the TIFF file cannot be read: {_said(error)}") from None
     return np.asarray(array).reshape(squeezed)
 
 
 def _png(data: bytes, limits: Limits) -> np.ndarray:
-    # IHDR is the first chunk: width and height are the 4-byte integers at offsets 16 and 20.
+    # IHDR is the first chunk: width, height (4 bytes each), bit depth, colour type.
     if len(data) < 33 or data[12:16] != b"IHDR":
         raise _refused("the PNG file is corrupt: no IHDR chunk")
-    width, height = struct.unpack(">II", data[16:24])
+    width, height, bit_depth = struct.unpack(">IIB", data[16:25])
     _check_declared((height, width), limits, "PNG file")
     try:
         with warnings.catch_warnings():
@@ -174,10 +195,20 @@ def _png(data: bytes, limits: Limits) -> np.ndarray:
                         f"the PNG file is {image.mode} (colour or palette); send one grayscale "
                         "channel (8 or 16-bit)"
                     )
+                if getattr(image, "n_frames", 1) > 1:
+                    raise _refused("the PNG file is animated; send one frame per file")
                 image.load()
                 array = np.asarray(image)
     except RequestInvalid:
         raise
     except Exception as error:  # Pillow raises many types on corrupt files
-        raise _refused(f"the PNG file cannot be read: {type(error).__name__}: {error}") from None
+        raise _refused(f"the PNG file cannot be read: {_said(error)}") from None
+    if image.mode == "L" and bit_depth in (2, 4):
+        # Pillow widens 2 and 4-bit gray to 8 bits (x 85, x 17); give back the stored values.
+        array = array // (255 // (2**bit_depth - 1))
     return array
+
+
+def _said(error: Exception) -> str:
+    """An exception as words for the client, without object reprs (addresses mean nothing)."""
+    return f"{type(error).__name__}: " + re.sub(r"<[^<>]*>", "...", str(error))

@@ -16,6 +16,7 @@ from rq.job import Job
 
 from workers.compute import ComputeProcess, JobAborted, Report, problem_for
 from workers.core.diagrams import drop_empty_bars, sort_pairs
+from workers.core.errors import ParameterError
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.features import direction_feature_vectors, feature_vectors
@@ -85,6 +86,17 @@ def _pixel_persistence(
     if filtration is None or isinstance(filtration, RipsFiltration):
         raise TypeError("an image or mask job needs an array filtration")
     sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
+    pairs = sum(len(pairs) for s in sets for pairs in s.diagrams.values())
+    if pairs > payload.max_result_pairs:
+        several = len(sets) > 1
+        raise ParameterError(
+            f"the diagrams have {pairs} pairs"
+            + (f" over {len(sets)} directions" if several else "")
+            + f", above the limit of {payload.max_result_pairs} per result; "
+            + ("ask for fewer directions, " if several else "")
+            + "lower max_dim, smooth the image or send a smaller region",
+            field="/filtration/directions" if several else "/filtration",
+        )
     per_direction = None
     if sets[0].direction is not None:  # several directions
         named = [(s.direction or [], s.diagrams) for s in sets]
@@ -101,7 +113,7 @@ def _pixel_persistence(
         job_id=job_id,
         schema_version=SCHEMA_VERSION,
         value_convention=convention,
-        units=None if convention in ("pixel_value", "negated_pixel_value") else payload.input.units,
+        units=_units_of(convention, task, payload.input.units),
         diagrams=diagrams,
         per_direction=per_direction,
         vectors=vectors,
@@ -111,6 +123,13 @@ def _pixel_persistence(
         provenance=_provenance(payload, started),
     )
     return result.model_dump(mode="json")
+
+
+def _units_of(convention: str, task: PersistenceTask, units: str | None) -> str | None:
+    """Pixel values have no unit; lengths have the unit of spacing, or are in pixels."""
+    if convention in ("pixel_value", "negated_pixel_value"):
+        return None
+    return units if task.spacing is not None else "pixel"
 
 
 def _diagrams(diagrams: dict[int, np.ndarray]) -> list[Diagram]:

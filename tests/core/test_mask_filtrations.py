@@ -180,6 +180,8 @@ def test_superlevel_of_16_bit_data_negates_without_wrapping_around() -> None:
 
 
 def test_several_directions_give_one_diagram_set_each_in_order() -> None:
+    # Definition (directional transform, common practice): the diagrams for a list of
+    # directions are the diagrams of each direction's own height filtration, in that order.
     mask = ring_mask((30, 30), (14.5, 14.5), 6.0, 11.0)
     directions = [[1.0, 0.0], [0.0, -3.0], [1.0, 1.0]]
     sets, _ = pixel_diagram_sets(mask, HeightFiltration(type="height", directions=directions), None)

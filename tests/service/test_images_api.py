@@ -396,6 +396,30 @@ def test_upload_over_the_upload_size_limit_is_413(redis_url: str) -> None:
 
 BAD_JSON: list[tuple[dict[str, Any], list[str], str]] = [
     (
+        {
+            "input": {"type": "mask", "values": [[0, 1], [1, 1]], "spacing": [1e-31, 1]},
+            "filtration": {"type": "distance"},
+        },
+        ["/input/spacing/0"],
+        "greater than or equal to 1e-30",
+    ),
+    (
+        {
+            "input": {"type": "mask", "values": [[0, 1], [1, 1]]},
+            "filtration": {"type": "radial", "center": [1e91, 0]},
+        },
+        ["/filtration/center/0"],
+        "less than or equal to 1e+90",
+    ),
+    (
+        {
+            "input": {"type": "mask", "values": [[0, 1], [1, 1]], "units": "um"},
+            "filtration": {"type": "distance"},
+        },
+        ["/input/units"],
+        "give spacing too",
+    ),
+    (
         {"input": {"type": "image", "values": [[[[0, 1]]]]}, "filtration": {"type": "cubical"}},
         ["/input/values/0/0/0"],
         "valid number",  # a fourth level of nesting where a voxel value belongs
@@ -500,7 +524,7 @@ BAD_JSON: list[tuple[dict[str, Any], list[str], str]] = [
             "filtration": {"type": "cubical"},
         },
         ["/input/spacing/1"],
-        "greater than 0",
+        "greater than or equal to 1e-30",
     ),
     (
         {
@@ -666,3 +690,207 @@ def test_request_part_that_is_not_json_is_400(client: FlaskClient) -> None:
     form = {"request": "{nope", "data": (io.BytesIO(npy(np.zeros((2, 2)))), "a.npy")}
     response = call(client, "POST", JOBS, data=form, content_type="multipart/form-data")
     assert "request" in problem_of(response, 400)["detail"]
+
+
+# --- found in review: bounds, crafted files, result size ---------------------------------------
+
+
+def test_values_at_the_bound_compute_and_above_it_are_refused(served_client: FlaskClient) -> None:
+    body = with_values(
+        image_body(type="cubical", direction="superlevel"),
+        np.array([[0.0, 1e100], [-1e100, 3.0]]),
+    )
+    found = diagrams_of(result_of(post(served_client, JOBS, body, headers=WAIT)))
+    assert found[0][0, 0] == -1e100  # the brightest pixel is born first, on the negated axis
+    refused(
+        upload(served_client, image_body(), npy(np.array([[0.0, 1e150], [1.0, 2.0]]))),
+        ["/data"],
+        "magnitude at most 1e+100",
+    )
+
+
+def tiff_with_tiles(tile: int) -> bytes:
+    """A 16 x 16 tiled TIFF whose TileWidth and TileLength tags (322, 323) are rewritten: each
+    tile would be decoded whole at the declared size (TIFF 6.0, section 15)."""
+    buffer = io.BytesIO()
+    tifffile.imwrite(buffer, np.zeros((16, 16), np.uint8), tile=(16, 16), compression="zlib")
+    data = bytearray(buffer.getvalue())
+    (offset,) = struct.unpack("<I", data[4:8])
+    (count,) = struct.unpack("<H", data[offset : offset + 2])
+    for entry in range(count):
+        at = offset + 2 + 12 * entry
+        tag, kind = struct.unpack("<HH", data[at : at + 4])
+        if tag in (322, 323):
+            data[at + 8 : at + 12] = (
+                struct.pack("<HH", tile, 0) if kind == 3 else struct.pack("<I", tile)
+            )
+    return bytes(data)
+
+
+def test_tiff_declaring_huge_tiles_is_refused_before_decoding(client: FlaskClient) -> None:
+    tracemalloc.start()
+    try:
+        response = upload(client, image_body(), tiff_with_tiles(32768))
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    refused(response, ["/data"], "strips or tiles of [32768, 32768]")
+    assert peak < 50_000_000
+
+
+CRAFTED_NPY = [
+    b"\x93NUMPY\x01\x00" + (16).to_bytes(2, "little") + b"{'descr': '<f8'\n",
+    b"\x93NUMPY\x01\x00"
+    + (70).to_bytes(2, "little")
+    + b"{'descr': ('<f8',), 'fortran_order': False, 'shape': (2, 2), }".ljust(69)
+    + b"\n"
+    + b"\x00" * 32,
+    b"\x93NUMPY\x01\x00"
+    + (70).to_bytes(2, "little")
+    + b"{'descr': '<f8', 'fortran_order': False, 'shape': (True, 2), }".ljust(69)
+    + b"\n"
+    + b"\x00" * 16,
+]
+
+
+@pytest.mark.parametrize("data", CRAFTED_NPY, ids=["cut header", "tuple descr", "bool shape"])
+def test_crafted_npy_headers_are_422(client: FlaskClient, data: bytes) -> None:
+    refused(upload(client, image_body(), data), ["/data"], ".npy")
+
+
+def _tiff_bytes(array: np.ndarray, **options: Any) -> bytes:
+    buffer = io.BytesIO()
+    tifffile.imwrite(buffer, array, **options)
+    return buffer.getvalue()
+
+
+def _two_series() -> bytes:
+    buffer = io.BytesIO()
+    with tifffile.TiffWriter(buffer) as writer:
+        writer.write(np.zeros((4, 4), np.uint8))
+        writer.write(np.ones((5, 5), np.uint8))
+    return buffer.getvalue()
+
+
+TIFF_REFUSED = [
+    (
+        "planar rgb",
+        lambda: _tiff_bytes(
+            np.zeros((3, 8, 8), np.uint8), photometric="rgb", planarconfig="separate"
+        ),
+        "grayscale",
+    ),
+    (
+        "palette",
+        lambda: _tiff_bytes(
+            np.zeros((8, 8), np.uint8),
+            photometric="palette",
+            colormap=np.zeros((3, 256), np.uint16),
+        ),
+        "grayscale",
+    ),
+    (
+        "min-is-white",
+        lambda: _tiff_bytes(np.zeros((8, 8), np.uint8), photometric="miniswhite"),
+        "min-is-black",
+    ),
+    ("two series", _two_series, "2 images"),
+]
+
+
+@pytest.mark.parametrize(("name", "make", "hint"), TIFF_REFUSED, ids=[t[0] for t in TIFF_REFUSED])
+def test_tiffs_whose_pixels_are_not_one_grayscale_image_are_refused(
+    client: FlaskClient, name: str, make: Any, hint: str
+) -> None:
+    refused(upload(client, image_body(), make()), ["/data"], hint)
+
+
+def test_lzw_tiff_and_4_bit_png_keep_their_values(served_client: FlaskClient) -> None:
+    image = (smooth_field((16, 18), 1.5, seed=7) * 40 + 8).clip(0, 15).astype(np.uint8)
+    lzw = _tiff_bytes(image, compression="lzw")
+    buffer = io.BytesIO()
+    Image.fromarray(image).save(buffer, format="PNG", bits=4)  # 4-bit gray (Pillow's option)
+    assert buffer.getvalue()[24] == 4  # IHDR bit depth
+    expected = gudhi_diagrams(image.astype(np.float64))
+    for data in (lzw, buffer.getvalue()):
+        found = diagrams_of(result_of(upload(served_client, image_body(), data, headers=WAIT)))
+        for dim in (0, 1):
+            np.testing.assert_array_equal(found[dim], expected[dim])
+
+
+def test_animated_png_is_refused(client: FlaskClient) -> None:
+    frames = [Image.fromarray(np.full((8, 8), v, np.uint8)) for v in (0, 9)]
+    buffer = io.BytesIO()
+    frames[0].save(buffer, format="PNG", save_all=True, append_images=frames[1:])
+    refused(upload(client, image_body(), buffer.getvalue()), ["/data"], "animated")
+
+
+def test_server_max_dim_limit_holds_for_images(redis_url: str) -> None:
+    small = app_with(redis_url=redis_url, queue=fresh_queue(), max_dim=1).test_client()
+    volume = np.zeros((2, 2, 2))
+    refused(
+        post(small, JOBS, with_values(image_body(), volume)),
+        ["/filtration/max_dim"],
+        "default max_dim of a 3d array, 2, is above this server's limit of 1",
+    )
+    body = with_values(image_body(type="cubical", max_dim=1), volume)
+    assert post(small, JOBS, body).status_code == 202
+
+
+def test_lengths_without_spacing_are_in_pixels(served_client: FlaskClient) -> None:
+    mask = ring_mask((20, 20), (9.5, 9.5), 4.0, 8.0).astype(np.uint8)
+    body = with_values({"input": {"type": "mask"}, "filtration": {"type": "distance"}}, mask)
+    assert result_of(post(served_client, JOBS, body, headers=WAIT))["units"] == "pixel"
+
+
+def test_subnormal_direction_is_scaled_to_a_unit_vector(served_client: FlaskClient) -> None:
+    mask = ring_mask((12, 12), (5.5, 5.5), 2.0, 5.0).astype(np.uint8)
+    body = with_values(
+        {
+            "input": {"type": "mask"},
+            "filtration": {"type": "height", "directions": [[5e-324, 5e-324]]},
+        },
+        mask,
+    )
+    unit = result_of(post(served_client, JOBS, body, headers=WAIT))["per_direction"][0]["direction"]
+    assert unit == [1 / math.sqrt(2), 1 / math.sqrt(2)]
+
+
+def test_result_over_the_pair_limit_fails_with_a_problem(
+    served: tuple[FlaskClient, Settings],
+) -> None:
+    # The same queue and worker as the module, through an API that allows 50 pairs per result.
+    _, settings = served
+    strict = app_with(redis_url=settings.redis_url, queue=settings.queue, max_result_pairs=50)
+    client = strict.test_client()
+    noise = np.random.default_rng(8).random((30, 30))
+    response = post(client, JOBS, with_values(image_body(), noise), headers=WAIT)
+    assert response.status_code == 202  # not succeeded: failed with its problem
+    status = response.get_json()
+    assert status["status"] == "failed"
+    problem = status["problem"]
+    assert problem["status"] == 422
+    assert "above the limit of 50 per result" in problem["detail"]
+    assert [e["pointer"] for e in problem["errors"]] == ["/filtration"]
+
+
+def test_media_type_answer_names_both_ways_in(client: FlaskClient) -> None:
+    response = call(client, "POST", JOBS, data=b"x", content_type="text/plain")
+    assert "multipart/form-data" in problem_of(response, 415)["detail"]
+
+
+def test_oversized_request_text_part_is_413_saying_so(client: FlaskClient) -> None:
+    # The multipart body is written out here (RFC 7578): werkzeug's test client would spool a
+    # large form to a temporary file of its own.
+    text = json.dumps(image_body()) + " " * 1_100_000
+    body = (
+        b'--XyZ\r\nContent-Disposition: form-data; name="request"\r\n\r\n'
+        + text.encode()
+        + b'\r\n--XyZ\r\nContent-Disposition: form-data; name="data"; filename="a.npy"\r\n\r\n'
+        + npy(np.zeros((2, 2)))
+        + b"\r\n--XyZ--\r\n"
+    )
+    response = call(
+        client, "POST", JOBS, data=body, content_type="multipart/form-data; boundary=XyZ"
+    )
+    assert "text part is larger than 1048576 bytes" in problem_of(response, 413)["detail"]

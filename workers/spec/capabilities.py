@@ -17,6 +17,7 @@ class Limits(BaseModel):
     max_image_pixels: int = Field(description="Most pixels in one 2D image or mask.")
     max_volume_voxels: int = Field(description="Most voxels in one 3D volume or mask.")
     max_upload_bytes: int = Field(description="Largest multipart request (array upload).")
+    max_result_pairs: int = Field(description="Most diagram pairs in one result.")
     job_time_limit_s: float
     result_ttl_s: int
     max_wait_s: int = Field(description="Cap on the Prefer: wait=N request header.")

@@ -102,9 +102,21 @@ class HeightFiltration(BaseModel):
         vectors = [self.direction] if self.direction is not None else self.directions or []
         units = []
         for vector in vectors:
-            norm = math.hypot(*vector)  # scaled: no overflow or underflow of the squares
-            units.append([v / norm for v in vector])
+            largest = max(abs(v) for v in vector)  # first to about 1: subnormals scale exactly
+            scaled = [v / largest for v in vector]
+            norm = math.hypot(*scaled)
+            units.append([v / norm for v in scaled])
         return units
+
+
+MAX_CENTER = 1e90
+"""Largest absolute centre coordinate: distances from it stay within the bound of diagram
+values."""
+
+Center = Annotated[
+    list[Annotated[FiniteFloat, Field(ge=-MAX_CENTER, le=MAX_CENTER)]],
+    Field(min_length=2, max_length=3, description="Physical coordinates in array-axis order."),
+]
 
 
 class RadialFiltration(BaseModel):
@@ -115,7 +127,7 @@ class RadialFiltration(BaseModel):
     model_config = ConfigDict(extra="forbid")
 
     type: Literal["radial"]
-    center: Vector
+    center: Center
     max_dim: ArrayMaxDim = None
 
 

@@ -44,9 +44,11 @@ class DiagramsInput(BaseModel):
     units: Units = None
 
 
-Pixel = Annotated[FiniteFloat, Field(ge=-1e300, le=1e300)]
-"""One pixel or voxel value: finite, and small enough that its negative and differences stay
-finite."""
+MAX_PIXEL_MAGNITUDE = 1e100
+"""Largest absolute pixel value: the bound of every number in a diagram."""
+
+Pixel = Annotated[FiniteFloat, Field(ge=-MAX_PIXEL_MAGNITUDE, le=MAX_PIXEL_MAGNITUDE)]
+"""One pixel or voxel value: finite, and within the bound of diagram values."""
 
 
 def _nesting(values: Any) -> str:
@@ -75,8 +77,12 @@ PixelValues = Annotated[
     ),
 ]
 
+MIN_SPACING, MAX_SPACING = 1e-30, 1e30
+"""Bounds of a pixel size: squared distances neither underflow nor overflow, and lengths across
+the largest array stay far inside the bound of diagram values."""
+
 Spacing = Annotated[
-    list[Annotated[FiniteFloat, Field(gt=0, le=1e100)]] | None,
+    list[Annotated[FiniteFloat, Field(ge=MIN_SPACING, le=MAX_SPACING)]] | None,
     Field(
         min_length=2,
         max_length=3,
@@ -87,8 +93,11 @@ Spacing = Annotated[
 
 ArrayUnits = Annotated[
     str | None,
-    Field(max_length=32, description='Unit of `spacing` (e.g. "um"), echoed in results whose '
-          "values are lengths."),
+    Field(
+        max_length=32,
+        description='Unit of `spacing` (e.g. "um"), echoed in results whose values are '
+        'lengths; only with spacing (without it, lengths are in pixels and results say "pixel").',
+    ),
 ]
 
 

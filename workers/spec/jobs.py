@@ -134,6 +134,11 @@ class DistanceTask(BaseModel):
 Task = Annotated[PersistenceTask | DistanceTask, Field(discriminator="type")]
 
 
+DEFAULT_MAX_RESULT_PAIRS = 6_000_000
+"""Most (birth, death) pairs one result may hold: about 250 MB of JSON, which RQ stores
+base64-encoded, well under Redis's 512 MB limit on one value."""
+
+
 class JobPayload(BaseModel):
     """The single JSON argument of ``workers.jobs.run``."""
 
@@ -144,3 +149,4 @@ class JobPayload(BaseModel):
     task: Task
     request_sha256: str
     time_limit_s: Annotated[float, Field(gt=0)]
+    max_result_pairs: Annotated[int, Field(ge=1)] = DEFAULT_MAX_RESULT_PAIRS

@@ -18,17 +18,13 @@ from workers.spec.filtrations import (
     HeightFiltration,
     RadialFiltration,
 )
-from workers.spec.inputs import ArrayInput, MaskInput
+from workers.spec.inputs import MAX_PIXEL_MAGNITUDE, ArrayInput, MaskInput
 from workers.spec.problems import FieldError
 
-__all__ = ["UPLOAD_POINTER", "MAX_PIXEL_MAGNITUDE", "array_of_values", "pixel_errors", "max_dim_of"]
+__all__ = ["UPLOAD_POINTER", "array_of_values", "pixel_errors", "max_dim_of"]
 
 UPLOAD_POINTER = "/data"
 """Pointer naming the uploaded file part of a multipart request."""
-
-MAX_PIXEL_MAGNITUDE = 1e300
-"""Largest absolute pixel value: negations and differences of values stay finite."""
-
 
 def array_of_values(values: list[Any]) -> np.ndarray | FieldError:
     """The nested lists of ``values`` as a float64 array, or a FieldError at the first row whose
@@ -84,6 +80,14 @@ def pixel_errors(
         return errors
     errors = _value_errors(array, array_input, where)
     ndim = array.ndim
+    if array_input.units is not None and array_input.spacing is None:
+        errors.append(
+            FieldError(
+                pointer="/input/units",
+                message="units name the unit of spacing; give spacing too (without it, lengths "
+                'are in pixels and results say "pixel")',
+            )
+        )
     if array_input.spacing is not None and len(array_input.spacing) != ndim:
         errors.append(
             FieldError(
@@ -92,7 +96,7 @@ def pixel_errors(
                 f"give one per axis ({ndim})",
             )
         )
-    return errors + _filtration_errors(array, array_input, filtration)
+    return errors + _filtration_errors(array, array_input, filtration, limits)
 
 
 def _shape_errors(array: np.ndarray, limits: Limits, where: str) -> list[FieldError]:
@@ -151,11 +155,12 @@ def _value_errors(array: np.ndarray, array_input: ArrayInput, where: str) -> lis
             bad |= np.abs(array) > MAX_PIXEL_MAGNITUDE
         if bad.any():
             index = _first_index(bad)
+            value = array[tuple(index)].item()
             return [
                 FieldError(
                     pointer=_at(where, index),
-                    message=f"pixel {index} is {array[tuple(index)]!r}; values must be finite "
-                    f"numbers of magnitude at most {MAX_PIXEL_MAGNITUDE:g}",
+                    message=f"pixel {index} is {value!r}; values must be finite numbers of "
+                    f"magnitude at most {MAX_PIXEL_MAGNITUDE:g}",
                 )
             ]
     if isinstance(array_input, MaskInput) and array.dtype.kind != "b":
@@ -167,7 +172,7 @@ def _value_errors(array: np.ndarray, array_input: ArrayInput, where: str) -> lis
             return [
                 FieldError(
                     pointer=_at(where, index),
-                    message=f"pixel {index} is {array[tuple(index)]!r}; a mask holds 0 for "
+                    message=f"pixel {index} is {array[tuple(index)].item()!r}; a mask holds 0 for "
                     "background and positive integers for foreground (0/1, 0/255 or labels)",
                 )
             ]
@@ -175,7 +180,7 @@ def _value_errors(array: np.ndarray, array_input: ArrayInput, where: str) -> lis
 
 
 def _filtration_errors(
-    array: np.ndarray, array_input: ArrayInput, filtration: Filtration | None
+    array: np.ndarray, array_input: ArrayInput, filtration: Filtration | None, limits: Limits
 ) -> list[FieldError]:
     kind = array_input.type
     if filtration is None:
@@ -205,6 +210,22 @@ def _filtration_errors(
         ]
     ndim = array.ndim
     errors: list[FieldError] = []
+    if filtration.max_dim is not None and filtration.max_dim > limits.max_dim:
+        errors.append(
+            FieldError(
+                pointer="/filtration/max_dim",
+                message=f"max_dim {filtration.max_dim} is above this server's limit of "
+                f"{limits.max_dim}",
+            )
+        )
+    elif max_dim_of(filtration, ndim) > limits.max_dim:
+        errors.append(
+            FieldError(
+                pointer="/filtration/max_dim",
+                message=f"the default max_dim of a {ndim}D array, {ndim - 1}, is above this "
+                f"server's limit of {limits.max_dim}; ask for max_dim {limits.max_dim} or less",
+            )
+        )
     if filtration.max_dim is not None and filtration.max_dim > ndim - 1:
         errors.append(
             FieldError(
