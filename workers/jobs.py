@@ -86,9 +86,9 @@ def _pixel_persistence(
     if filtration is None or isinstance(filtration, RipsFiltration):
         raise TypeError("an image or mask job needs an array filtration")
     sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
+    several = sets[0].direction is not None  # a height filtration with "directions"
     pairs = sum(len(pairs) for s in sets for pairs in s.diagrams.values())
     if pairs > payload.max_result_pairs:
-        several = len(sets) > 1
         raise ParameterError(
             f"the diagrams have {pairs} pairs"
             + (f" over {len(sets)} directions" if several else "")
@@ -98,7 +98,7 @@ def _pixel_persistence(
             field="/filtration/directions" if several else "/filtration",
         )
     per_direction = None
-    if sets[0].direction is not None:  # several directions
+    if several:
         named = [(s.direction or [], s.diagrams) for s in sets]
         vectors, layout, layout_id = direction_feature_vectors(task.features, named)
         per_direction = [

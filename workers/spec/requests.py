@@ -71,7 +71,7 @@ class JobRequest(BaseModel):
         resolved (``with_features``) before. ``pixels`` is the array of an image or mask input
         (from ``pixel_array`` or an upload; ``uploaded`` says which).
         """
-        computed: set[int] = set()
+        computed: set[int]
         if isinstance(self.input, PointsInput):
             if self.filtration is not None and not isinstance(self.filtration, RipsFiltration):
                 return [
