@@ -42,15 +42,22 @@ typedef struct {
     size_t cap;
 } Pairs;
 
+/* Make room for `need` elements of `size` bytes in a growing buffer (doubling from `first`). */
+static int reserve(void **data, size_t *cap, size_t need, size_t size, size_t first)
+{
+    if (need <= *cap) return 0;
+    size_t grown = *cap ? *cap : first;
+    while (grown < need) grown *= 2;
+    void *moved = realloc(*data, grown * size);
+    if (!moved) return -1;
+    *data = moved;
+    *cap = grown;
+    return 0;
+}
+
 static int pairs_push(Pairs *p, double birth, double death)
 {
-    if (p->len + 2 > p->cap) {
-        size_t cap = p->cap ? 2 * p->cap : 1024;
-        double *data = realloc(p->data, cap * sizeof(double));
-        if (!data) return -1;
-        p->data = data;
-        p->cap = cap;
-    }
+    if (reserve((void **)&p->data, &p->cap, p->len + 2, sizeof(double), 1024)) return -1;
     p->data[p->len++] = birth;
     p->data[p->len++] = death;
     return 0;
@@ -64,13 +71,7 @@ typedef struct {
 
 static int vec_push(Vec *v, int64_t x)
 {
-    if (v->len == v->cap) {
-        size_t cap = v->cap ? 2 * v->cap : 256;
-        int64_t *data = realloc(v->data, cap * sizeof(int64_t));
-        if (!data) return -1;
-        v->data = data;
-        v->cap = cap;
-    }
+    if (reserve((void **)&v->data, &v->cap, v->len + 1, sizeof(int64_t), 256)) return -1;
     v->data[v->len++] = x;
     return 0;
 }
