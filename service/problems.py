@@ -154,7 +154,8 @@ def register(app: Flask) -> None:
         if status == 413:
             limit = request.max_content_length
             detail = f"the body is larger than the limit of {limit} bytes"
-            if limit is not None and (request.content_length or 0) <= limit:  # a form limit
+            length = request.content_length  # None when chunked: then the body limit it is
+            if limit is not None and length is not None and length <= limit:  # a form limit
                 detail = (
                     f"a multipart text part is larger than {request.max_form_memory_size} bytes, "
                     f"or there are more than {request.max_form_parts} parts; send the request "

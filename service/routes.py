@@ -6,7 +6,7 @@ from typing import Any
 
 import numpy as np
 from flask import Blueprint, Response, current_app, jsonify, request
-from werkzeug.exceptions import NotAcceptable, UnsupportedMediaType
+from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, UnsupportedMediaType
 
 from service.auth import owner_of
 from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
@@ -43,6 +43,10 @@ def _json_body(also: str = "") -> Any:
             f"send the body as application/json{also} (got {mimetype or 'no Content-Type'})"
         )
     raw = request.get_data(cache=False)
+    limit = request.max_content_length
+    if request.content_length is None and limit is not None and len(raw) >= limit:
+        # A chunked body is read only up to the limit: reaching it means it was cut short.
+        raise RequestEntityTooLarge()
     try:
         return json.loads(raw)
     except (ValueError, RecursionError) as error:  # RecursionError: absurdly deep nesting

@@ -124,7 +124,9 @@ def _npy(data: bytes, limits: Limits) -> np.ndarray:
     except Exception as error:  # numpy's header parser raises many types on crafted headers
         raise _refused(f"the .npy header cannot be read: {_said(error)}") from None
     if not all(type(size) is int and size >= 0 for size in shape):
-        raise _refused(f"the .npy header declares shape {shape!r}; sizes must be integers")
+        raise _refused(
+            f"the .npy header declares shape {shape!r}; sizes must be non-negative integers"
+        )
     if dtype.hasobject or dtype.fields is not None or dtype.kind not in "biuf":
         raise _refused(
             f"the .npy file holds {dtype} values; send numbers (bool, integer or floating "
@@ -157,7 +159,10 @@ def _tiff(data: bytes, limits: Limits) -> np.ndarray:
                 raise _refused(f"the TIFF file holds {series.dtype} values; send grayscale")
             page = series.keyframe
             if "S" in series.axes or page.photometric != tifffile.PHOTOMETRIC.MINISBLACK:
-                kind = getattr(page.photometric, "name", page.photometric)
+                try:
+                    kind = tifffile.PHOTOMETRIC(page.photometric).name
+                except ValueError:
+                    kind = f"photometric {page.photometric}"
                 raise _refused(
                     f"the TIFF file is {kind} with axes {series.axes} (shape {list(shape)}); "
                     "send one grayscale channel stored min-is-black"
@@ -193,7 +198,7 @@ def _png(data: bytes, limits: Limits) -> np.ndarray:
                 if image.mode not in _PNG_MODES:
                     raise _refused(
                         f"the PNG file is {image.mode} (colour or palette); send one grayscale "
-                        "channel (8 or 16-bit)"
+                        "channel (1 to 16-bit)"
                     )
                 if getattr(image, "n_frames", 1) > 1:
                     raise _refused("the PNG file is animated; send one frame per file")

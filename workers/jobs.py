@@ -87,16 +87,13 @@ def _pixel_persistence(
         raise TypeError("an image or mask job needs an array filtration")
     sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
     several = sets[0].direction is not None  # a height filtration with "directions"
-    pairs = sum(len(pairs) for s in sets for pairs in s.diagrams.values())
-    if pairs > payload.max_result_pairs:
-        raise ParameterError(
-            f"the diagrams have {pairs} pairs"
-            + (f" over {len(sets)} directions" if several else "")
-            + f", above the limit of {payload.max_result_pairs} per result; "
-            + ("ask for fewer directions, " if several else "")
-            + "lower max_dim, smooth the image or send a smaller region",
-            field="/filtration/directions" if several else "/filtration",
-        )
+    _check_pair_count(
+        [s.diagrams for s in sets],
+        payload.max_result_pairs,
+        field="/filtration/directions" if several else "/filtration",
+        advice=("ask for fewer directions, " if several else "")
+        + "lower max_dim, smooth the image or send a smaller region",
+    )
     per_direction = None
     if several:
         named = [(s.direction or [], s.diagrams) for s in sets]
@@ -123,6 +120,21 @@ def _pixel_persistence(
         provenance=_provenance(payload, started),
     )
     return result.model_dump(mode="json")
+
+
+def _check_pair_count(
+    diagram_sets: list[dict[int, np.ndarray]], limit: int, *, field: str, advice: str
+) -> None:
+    """ParameterError when the diagrams hold more pairs than one result may (the cap keeps a
+    result under Redis's limit on one value)."""
+    pairs = sum(len(pairs) for diagrams in diagram_sets for pairs in diagrams.values())
+    if pairs > limit:
+        where = f" over {len(diagram_sets)} directions" if len(diagram_sets) > 1 else ""
+        raise ParameterError(
+            f"the diagrams have {pairs} pairs{where}, above the limit of {limit} per result; "
+            + advice,
+            field=field,
+        )
 
 
 def _units_of(convention: str, task: PersistenceTask, units: str | None) -> str | None:
@@ -158,6 +170,14 @@ def _persistence(
     else:  # given diagrams, rows of (dim, birth, death)
         given = diagrams_of_rows(array, sorted(task.given_dims))
         diagrams = {dim: sort_pairs(drop_empty_bars(pairs)) for dim, pairs in given.items()}
+    _check_pair_count(
+        [diagrams],
+        payload.max_result_pairs,
+        field="/filtration" if filtration is not None else "/input/diagrams",
+        advice="lower max_dim or max_edge, or subsample"
+        if filtration is not None
+        else "send fewer pairs",
+    )
     vectors, layout, layout_id = feature_vectors(task.features, diagrams)
     result = JobResult(
         job_id=job_id,

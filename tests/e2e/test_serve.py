@@ -117,7 +117,9 @@ def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:
     url = with_database(redis_server, E2E_DB)
     Redis.from_url(url).flushdb()
     port = free_port()
-    env = dict(os.environ, LACUNA_QUEUE=f"e2e-{uuid.uuid4().hex[:12]}")
+    env = dict(
+        os.environ, LACUNA_QUEUE=f"e2e-{uuid.uuid4().hex[:12]}", LACUNA_MAX_BODY_BYTES="4096"
+    )
     api = subprocess.Popen(
         [
             LACUNA,
@@ -147,6 +149,16 @@ def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:
                 assert time.monotonic() < deadline
                 time.sleep(0.1)
         assert requests.get(base + "/readyz").status_code == 503
+        # A chunked body (no Content-Length) above the limit is refused, not cut at the limit
+        # and parsed from its first bytes (gunicorn hands it over read up to the limit).
+        big = json.dumps({**JOB, "padding": "x" * 6000}).encode()
+        chunked = requests.post(
+            base + "/v1/jobs",
+            data=(big[i : i + 1000] for i in range(0, len(big), 1000)),
+            headers={"Content-Type": "application/json"},
+        )
+        assert chunked.status_code == 413, chunked.text
+        assert "4096 bytes" in chunked.json()["detail"]
         submitted = requests.post(base + "/v1/jobs", json=JOB)
         assert submitted.status_code == 202
         worker = subprocess.Popen([LACUNA, "worker", "--redis", url], env=env)

@@ -612,6 +612,11 @@ BAD_UPLOADS: list[tuple[str, Any, str]] = [
     ("4d", lambda: npy(np.zeros((2, 2, 2, 2))), "4-dimensional"),
     ("1d", lambda: npy(np.zeros(5)), "1-dimensional"),
     ("complex", lambda: npy(np.zeros((3, 3), dtype=np.complex128)), "numbers"),
+    (
+        "longdouble overflow",
+        lambda: npy(np.array([[0, np.longdouble("1e4000")], [1, 2]], dtype=np.longdouble)),
+        "pixel [0, 1] is inf;",
+    ),
     ("text", lambda: npy(np.array([["a", "b"], ["c", "d"]])), "numbers"),
     ("corrupt tiff", lambda: tiff(np.zeros((8, 8), np.uint8))[:40], "tiff file cannot be read"),
     ("corrupt png", lambda: png(np.zeros((8, 8), np.uint8))[:45], "png file cannot be read"),
@@ -872,6 +877,14 @@ def test_result_over_the_pair_limit_fails_with_a_problem(
     assert problem["status"] == 422
     assert "above the limit of 50 per result" in problem["detail"]
     assert [e["pointer"] for e in problem["errors"]] == ["/filtration"]
+    # The cap holds for every job: 100 random points have more than 50 pairs in H0 and H1.
+    points = {
+        "input": {"type": "points", "points": np.random.default_rng(9).random((100, 2)).tolist()},
+        "filtration": {"type": "rips", "max_dim": 1},
+    }
+    failed = post(client, JOBS, points, headers=WAIT).get_json()
+    assert failed["status"] == "failed"
+    assert "above the limit of 50 per result" in failed["problem"]["detail"]
 
 
 def test_media_type_answer_names_both_ways_in(client: FlaskClient) -> None:

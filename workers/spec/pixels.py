@@ -155,7 +155,7 @@ def _value_errors(array: np.ndarray, array_input: ArrayInput, where: str) -> lis
             bad |= np.abs(array) > MAX_PIXEL_MAGNITUDE
         if bad.any():
             index = _first_index(bad)
-            value = array[tuple(index)].item()
+            value = float(array[tuple(index)])  # a Python float: no numpy repr in the message
             return [
                 FieldError(
                     pointer=_at(where, index),
@@ -172,7 +172,7 @@ def _value_errors(array: np.ndarray, array_input: ArrayInput, where: str) -> lis
             return [
                 FieldError(
                     pointer=_at(where, index),
-                    message=f"pixel {index} is {array[tuple(index)].item()!r}; a mask holds 0 for "
+                    message=f"pixel {index} is {float(array[tuple(index)])!r}; a mask holds 0 for "
                     "background and positive integers for foreground (0/1, 0/255 or labels)",
                 )
             ]
