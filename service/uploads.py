@@ -24,7 +24,7 @@ from PIL import Image
 
 from service.errors import BodyNotJson, RequestInvalid
 from workers.spec import FieldError, Limits
-from workers.spec.pixels import UPLOAD_POINTER
+from workers.spec.pixels import UPLOAD_POINTER, shape_error
 
 __all__ = ["UPLOAD_FORMATS", "REQUEST_PART", "DATA_PART", "decode_array", "multipart_parts"]
 
@@ -96,19 +96,9 @@ def decode_array(data: bytes, limits: Limits) -> np.ndarray:
 
 def _check_declared(shape: tuple[int, ...], limits: Limits, what: str) -> None:
     """Refuse a declared shape over the limits before anything is allocated."""
-    if len(shape) not in (2, 3):
-        raise _refused(
-            f"the {what} holds a {len(shape)}-dimensional array (shape {list(shape)}); images are "
-            "2D (rows, columns) and volumes 3D (planes, rows, columns)"
-        )
-    size = math.prod(shape)
-    limit = limits.max_image_pixels if len(shape) == 2 else limits.max_volume_voxels
-    if size > limit:
-        kind = "pixels in a 2D image" if len(shape) == 2 else "voxels in a 3D volume"
-        raise _refused(
-            f"the {what} declares shape {list(shape)}, {size} values, above the limit of "
-            f"{limit} {kind}"
-        )
+    error = shape_error(shape, limits, UPLOAD_POINTER, what)
+    if error is not None:
+        raise RequestInvalid([error])
 
 
 def _npy(data: bytes, limits: Limits) -> np.ndarray:
@@ -132,7 +122,7 @@ def _npy(data: bytes, limits: Limits) -> np.ndarray:
             f"the .npy file holds {dtype} values; send numbers (bool, integer or floating "
             "point). Object arrays are refused: lacuna never unpickles"
         )
-    _check_declared(tuple(shape), limits, ".npy file")
+    _check_declared(tuple(shape), limits, "the .npy file")
     expected = math.prod(shape) * dtype.itemsize
     if len(data) - stream.tell() != expected:
         raise _refused(
@@ -168,7 +158,7 @@ def _tiff(data: bytes, limits: Limits) -> np.ndarray:
                     "send one grayscale channel stored min-is-black"
                 )
             squeezed = tuple(s for s in shape if s != 1) if len(shape) > 3 else shape
-            _check_declared(squeezed, limits, "TIFF file")
+            _check_declared(squeezed, limits, "the TIFF file")
             # Each strip or tile is decoded whole before it is placed: a tiny image may
             # declare huge tiles (a decompression bomb), so they count against the limit too.
             chunk = math.prod(int(n) for n in page.chunks)
@@ -190,7 +180,7 @@ def _png(data: bytes, limits: Limits) -> np.ndarray:
     if len(data) < 33 or data[12:16] != b"IHDR":
         raise _refused("the PNG file is corrupt: no IHDR chunk")
     width, height, bit_depth = struct.unpack(">IIB", data[16:25])
-    _check_declared((height, width), limits, "PNG file")
+    _check_declared((height, width), limits, "the PNG file")
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("error", Image.DecompressionBombWarning)

@@ -21,7 +21,7 @@ from workers.spec.filtrations import (
 from workers.spec.inputs import MAX_PIXEL_MAGNITUDE, ArrayInput, MaskInput
 from workers.spec.problems import FieldError
 
-__all__ = ["UPLOAD_POINTER", "array_of_values", "pixel_errors", "max_dim_of"]
+__all__ = ["UPLOAD_POINTER", "array_of_values", "max_dim_of", "pixel_errors", "shape_error"]
 
 UPLOAD_POINTER = "/data"
 """Pointer naming the uploaded file part of a multipart request."""
@@ -99,33 +99,39 @@ def pixel_errors(
     return errors + _filtration_errors(array, array_input, filtration, limits)
 
 
+def shape_error(
+    shape: tuple[int, ...], limits: Limits, where: str, what: str = "the array"
+) -> FieldError | None:
+    """What is wrong with an array's shape (its dimensions, size and the size limits), if
+    anything. Uploads call it on the shape a file declares, before reading any pixel."""
+    if len(shape) not in (2, 3):
+        return FieldError(
+            pointer=where,
+            message=f"{what} is {len(shape)}-dimensional (shape {list(shape)}); images are 2D "
+            "(rows, columns) and volumes 3D (planes, rows, columns)",
+        )
+    size = math.prod(shape)
+    if size < 2:
+        return FieldError(
+            pointer=where,
+            message=f"{what} has {size} pixels (shape {list(shape)}); at least 2 are needed "
+            "for any topology",
+        )
+    limit = limits.max_image_pixels if len(shape) == 2 else limits.max_volume_voxels
+    if size > limit:
+        kind = "pixels in a 2D image" if len(shape) == 2 else "voxels in a 3D volume"
+        return FieldError(
+            pointer=where,
+            message=f"{what} has shape {list(shape)}, {size} values, above the limit of "
+            f"{limit} {kind}",
+        )
+    return None
+
+
 def _shape_errors(array: np.ndarray, limits: Limits, where: str) -> list[FieldError]:
-    if array.ndim not in (2, 3):
-        return [
-            FieldError(
-                pointer=where,
-                message=f"the array has {array.ndim} dimensions (shape {list(array.shape)}); "
-                "images are 2D (rows, columns) and volumes 3D (planes, rows, columns)",
-            )
-        ]
-    if array.size < 2:
-        return [
-            FieldError(
-                pointer=where,
-                message=f"the array has {array.size} pixels (shape {list(array.shape)}); at "
-                "least 2 are needed for any topology",
-            )
-        ]
-    limit = limits.max_image_pixels if array.ndim == 2 else limits.max_volume_voxels
-    if array.size > limit:
-        kind = "pixels in a 2D image" if array.ndim == 2 else "voxels in a 3D volume"
-        return [
-            FieldError(
-                pointer=where,
-                message=f"shape {list(array.shape)} has {array.size} values, above the limit "
-                f"of {limit} {kind}",
-            )
-        ]
+    error = shape_error(tuple(array.shape), limits, where)
+    if error is not None:
+        return [error]
     if array.dtype.kind not in "biuf":
         return [
             FieldError(
