@@ -11,7 +11,6 @@ import time
 import uuid
 from pathlib import Path
 
-import gudhi
 import numpy as np
 import pytest
 import requests
@@ -19,7 +18,9 @@ import tifffile
 from redis import Redis
 
 from tests.conftest import E2E_DB, with_database
+from tests.core.test_cubical import gudhi_diagrams
 from tests.processes import descendants, running
+from tests.service.test_errors import pairs_array
 from tests.synthetic import HEXAGON, free_port, smooth_field
 
 pytestmark = pytest.mark.e2e
@@ -101,16 +102,9 @@ def _upload_a_stack(base: str) -> None:
     )
     assert answer.status_code == 200, answer.text
     # Reference library: gudhi's CubicalComplex with the voxels as top-dimensional cells.
-    reference = gudhi.CubicalComplex(top_dimensional_cells=volume.astype(np.float64))
-    reference.compute_persistence()
+    expected = gudhi_diagrams(volume.astype(np.float64))
     for diagram in answer.json()["diagrams"]:
-        pairs = np.array(
-            [[b, math.inf if d is None else d] for b, d in diagram["pairs"]], dtype=np.float64
-        ).reshape(-1, 2)
-        expected = np.asarray(reference.persistence_intervals_in_dimension(diagram["dim"]))
-        expected = expected.reshape(-1, 2)
-        expected = expected[expected[:, 1] > expected[:, 0]]
-        np.testing.assert_array_equal(pairs, expected[np.lexsort((expected[:, 1], expected[:, 0]))])
+        np.testing.assert_array_equal(pairs_array(diagram["pairs"]), expected[diagram["dim"]])
 
 
 def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:

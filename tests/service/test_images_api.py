@@ -15,7 +15,6 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
-import gudhi
 import numpy as np
 import pytest
 import tifffile
@@ -27,6 +26,7 @@ from werkzeug.test import TestResponse
 
 from service.settings import Settings
 from tests.conftest import with_database
+from tests.core.test_cubical import gudhi_diagrams
 from tests.service.conftest import start_worker, stop_worker
 from tests.service.test_errors import (
     app_with,
@@ -40,6 +40,7 @@ from tests.service.test_errors import (
     stored_jobs,
 )
 from tests.synthetic import ring_mask, smooth_field
+from workers.spec.arrays import to_npy_bytes as npy
 
 JOBS = "/v1/jobs"
 WAIT = {"Prefer": "wait=30"}
@@ -77,15 +78,9 @@ def upload(
     )
 
 
-def npy(array: np.ndarray) -> bytes:
+def tiff(array: np.ndarray, **options: Any) -> bytes:
     buffer = io.BytesIO()
-    np.save(buffer, array, allow_pickle=False)
-    return buffer.getvalue()
-
-
-def tiff(array: np.ndarray) -> bytes:
-    buffer = io.BytesIO()
-    tifffile.imwrite(buffer, array)
+    tifffile.imwrite(buffer, array, **options)
     return buffer.getvalue()
 
 
@@ -114,18 +109,6 @@ def result_of(response: TestResponse) -> dict[str, Any]:
 
 def diagrams_of(result: dict[str, Any]) -> dict[int, np.ndarray]:
     return {d["dim"]: pairs_array(d["pairs"]) for d in result["diagrams"]}
-
-
-def gudhi_diagrams(values: np.ndarray) -> dict[int, np.ndarray]:
-    """Reference: gudhi's CubicalComplex with the pixels as top-dimensional cells."""
-    complex_ = gudhi.CubicalComplex(top_dimensional_cells=values)
-    complex_.compute_persistence()
-    found = {}
-    for dim in range(values.ndim):
-        pairs = np.asarray(complex_.persistence_intervals_in_dimension(dim)).reshape(-1, 2)
-        pairs = pairs[pairs[:, 1] > pairs[:, 0]]
-        found[dim] = pairs[np.lexsort((pairs[:, 1], pairs[:, 0]))]
-    return found
 
 
 # --- the same pixels by every way in ---------------------------------------------------------
@@ -319,21 +302,26 @@ def png_bomb(width: int, height: int) -> bytes:
     )
 
 
-def tiff_claiming(width: int, height: int) -> bytes:
-    """A small TIFF whose ImageWidth and ImageLength tags are rewritten to a huge size (TIFF 6.0:
-    IFD entries are tag, type, count, value; little-endian 'II')."""
-    data = bytearray(tiff(np.zeros((8, 8), dtype=np.uint8)))
-    (offset,) = struct.unpack("<I", data[4:8])
-    (count,) = struct.unpack("<H", data[offset : offset + 2])
+def tiff_with_tags(data: bytes, values: dict[int, int]) -> bytes:
+    """A little-endian TIFF with the values of some tags of its first IFD rewritten (TIFF 6.0:
+    IFD entries are tag, type, count, value; SHORT values fill the first 2 bytes)."""
+    patched = bytearray(data)
+    (offset,) = struct.unpack("<I", patched[4:8])
+    (count,) = struct.unpack("<H", patched[offset : offset + 2])
     for entry in range(count):
         at = offset + 2 + 12 * entry
-        tag, kind = struct.unpack("<HH", data[at : at + 4])
-        if tag in (256, 257):
-            value = width if tag == 256 else height
-            data[at + 8 : at + 12] = (
+        tag, kind = struct.unpack("<HH", patched[at : at + 4])
+        if tag in values:
+            value = values[tag]
+            patched[at + 8 : at + 12] = (
                 struct.pack("<HH", value, 0) if kind == 3 else struct.pack("<I", value)
             )
-    return bytes(data)
+    return bytes(patched)
+
+
+def tiff_claiming(width: int, height: int) -> bytes:
+    """A small TIFF whose ImageWidth (256) and ImageLength (257) claim a huge size."""
+    return tiff_with_tags(tiff(np.zeros((8, 8), dtype=np.uint8)), {256: width, 257: height})
 
 
 def npy_claiming(shape: tuple[int, ...]) -> bytes:
@@ -715,21 +703,10 @@ def test_values_at_the_bound_compute_and_above_it_are_refused(served_client: Fla
 
 
 def tiff_with_tiles(tile: int) -> bytes:
-    """A 16 x 16 tiled TIFF whose TileWidth and TileLength tags (322, 323) are rewritten: each
-    tile would be decoded whole at the declared size (TIFF 6.0, section 15)."""
-    buffer = io.BytesIO()
-    tifffile.imwrite(buffer, np.zeros((16, 16), np.uint8), tile=(16, 16), compression="zlib")
-    data = bytearray(buffer.getvalue())
-    (offset,) = struct.unpack("<I", data[4:8])
-    (count,) = struct.unpack("<H", data[offset : offset + 2])
-    for entry in range(count):
-        at = offset + 2 + 12 * entry
-        tag, kind = struct.unpack("<HH", data[at : at + 4])
-        if tag in (322, 323):
-            data[at + 8 : at + 12] = (
-                struct.pack("<HH", tile, 0) if kind == 3 else struct.pack("<I", tile)
-            )
-    return bytes(data)
+    """A 16 x 16 tiled TIFF whose TileWidth and TileLength (322, 323) claim ``tile``: each tile
+    would be decoded whole at the declared size (TIFF 6.0, section 15)."""
+    small = tiff(np.zeros((16, 16), np.uint8), tile=(16, 16), compression="zlib")
+    return tiff_with_tags(small, {322: tile, 323: tile})
 
 
 def test_tiff_declaring_huge_tiles_is_refused_before_decoding(client: FlaskClient) -> None:
@@ -763,12 +740,6 @@ def test_crafted_npy_headers_are_422(client: FlaskClient, data: bytes) -> None:
     refused(upload(client, image_body(), data), ["/data"], ".npy")
 
 
-def _tiff_bytes(array: np.ndarray, **options: Any) -> bytes:
-    buffer = io.BytesIO()
-    tifffile.imwrite(buffer, array, **options)
-    return buffer.getvalue()
-
-
 def _two_series() -> bytes:
     buffer = io.BytesIO()
     with tifffile.TiffWriter(buffer) as writer:
@@ -780,14 +751,12 @@ def _two_series() -> bytes:
 TIFF_REFUSED = [
     (
         "planar rgb",
-        lambda: _tiff_bytes(
-            np.zeros((3, 8, 8), np.uint8), photometric="rgb", planarconfig="separate"
-        ),
+        lambda: tiff(np.zeros((3, 8, 8), np.uint8), photometric="rgb", planarconfig="separate"),
         "grayscale",
     ),
     (
         "palette",
-        lambda: _tiff_bytes(
+        lambda: tiff(
             np.zeros((8, 8), np.uint8),
             photometric="palette",
             colormap=np.zeros((3, 256), np.uint16),
@@ -796,7 +765,7 @@ TIFF_REFUSED = [
     ),
     (
         "min-is-white",
-        lambda: _tiff_bytes(np.zeros((8, 8), np.uint8), photometric="miniswhite"),
+        lambda: tiff(np.zeros((8, 8), np.uint8), photometric="miniswhite"),
         "min-is-black",
     ),
     ("two series", _two_series, "2 images"),
@@ -812,7 +781,7 @@ def test_tiffs_whose_pixels_are_not_one_grayscale_image_are_refused(
 
 def test_lzw_tiff_and_4_bit_png_keep_their_values(served_client: FlaskClient) -> None:
     image = (smooth_field((16, 18), 1.5, seed=7) * 40 + 8).clip(0, 15).astype(np.uint8)
-    lzw = _tiff_bytes(image, compression="lzw")
+    lzw = tiff(image, compression="lzw")
     buffer = io.BytesIO()
     Image.fromarray(image).save(buffer, format="PNG", bits=4)  # 4-bit gray (Pillow's option)
     assert buffer.getvalue()[24] == 4  # IHDR bit depth
