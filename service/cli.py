@@ -1,4 +1,4 @@
-"""The ``lacuna`` command: ``serve``, ``worker`` and ``openapi``."""
+"""The ``lacuna`` command: ``serve``, ``worker``, ``demo`` and ``openapi``."""
 
 import argparse
 import os
@@ -28,10 +28,10 @@ def _serve(args: argparse.Namespace, settings: Settings) -> int:
     )
 
 
-def _worker(rest: list[str]) -> int:
-    # The worker is its own program (python -m workers), so the HTTP layer never imports the
-    # numerical code; exec keeps one process that receives signals directly.
-    os.execv(sys.executable, [sys.executable, "-m", "workers", *rest])
+def _program(module: str, rest: list[str]) -> int:
+    # Workers and the demo generators are programs of their own (python -m ...), so the HTTP
+    # layer never imports the numerical code; exec keeps one process that receives signals.
+    os.execv(sys.executable, [sys.executable, "-m", module, *rest])
 
 
 def _openapi(args: argparse.Namespace) -> int:
@@ -80,13 +80,19 @@ def main(argv: list[str] | None = None) -> int:
     commands.add_parser(
         "worker", help="run a job worker (see lacuna worker --help)", add_help=False
     )
+    commands.add_parser(
+        "demo",
+        help="write the synthetic demo data sets (see lacuna demo --help)",
+        add_help=False,
+    )
 
     openapi = commands.add_parser("openapi", help="print or write the OpenAPI document")
     openapi.add_argument("--out", default=None, help="file to write (default: stdout)")
 
     argv = sys.argv[1:] if argv is None else argv
-    if argv[:1] == ["worker"]:
-        return _worker(argv[1:])
+    programs = {"worker": "workers", "demo": "workers.scenario"}
+    if argv[:1] and argv[0] in programs:
+        return _program(programs[argv[0]], argv[1:])
     args = parser.parse_args(argv)
     if args.command == "serve":
         return _serve(args, settings)

@@ -4,7 +4,6 @@ import json
 import re
 from typing import Any
 
-import numpy as np
 from flask import Blueprint, Response, current_app, jsonify, request
 from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, UnsupportedMediaType
 
@@ -12,13 +11,14 @@ from service.auth import owner_of
 from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
 from service.errors import BodyNotJson, FeatureSpecNotFound, RequestInvalid
 from service.extension import ServiceState
+from service.graphml import decode_graph
 from service.queue import Job
 from service.submissions import distance_submission, job_submission
 from service.uploads import decode_array, multipart_parts
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
-from workers.spec.inputs import ImageInput, MaskInput
-from workers.spec.requests import length_error
+from workers.spec.inputs import GraphInput, ImageInput, MaskInput
+from workers.spec.requests import InputData, length_error
 
 __all__ = ["v1", "health"]
 
@@ -83,31 +83,33 @@ def _result_response(result: dict[str, Any]) -> Response:
     return Response(npy_bytes(array), mimetype=NPY_MEDIA_TYPE)
 
 
-def _job_request() -> tuple[JobRequest, np.ndarray | None, bool]:
-    """The request of a job, the array of its image or mask input, and whether it came as an
-    uploaded file (multipart) rather than JSON values."""
+def _job_request() -> tuple[JobRequest, InputData | None, bool]:
+    """The request of a job, the arrays of its image, mask or graph input, and whether they
+    came as an uploaded file (multipart) rather than JSON."""
     state = _state()
     if request.mimetype != "multipart/form-data":
         body = _json_body(", or as multipart/form-data with request and data parts")
         job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
-        pixels = job_request.pixel_array()
-        if isinstance(pixels, FieldError):
-            raise RequestInvalid([pixels])
-        return job_request, pixels, False
+        data = job_request.input_data()
+        if isinstance(data, FieldError):
+            raise RequestInvalid([data])
+        return job_request, data, False
     request.max_content_length = state.settings.max_upload_bytes
-    body, data = multipart_parts(request)
+    body, raw = multipart_parts(request)
     job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
+    if isinstance(job_request.input, GraphInput):
+        return job_request, decode_graph(raw, state.limits), True
     if not isinstance(job_request.input, ImageInput | MaskInput):
         raise RequestInvalid(
             [
                 FieldError(
                     pointer="/input/type",
                     message=f'input type "{job_request.input.type}" takes no uploaded file; '
-                    'upload arrays for "image" and "mask" inputs',
+                    'upload arrays for "image" and "mask" inputs, GraphML for "graph"',
                 )
             ]
         )
-    return job_request, decode_array(data, state.limits), True
+    return job_request, decode_array(raw, state.limits), True
 
 
 @v1.post("/jobs")
@@ -115,11 +117,12 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
     """Queue a job; with ``Prefer: wait=N`` answer its result inline if it succeeds in time.
 
     The body is JSON, or multipart/form-data with a JSON ``request`` part and a ``data`` file
-    part (.npy, TIFF or PNG) holding the array of an image or mask input."""
+    part: .npy, TIFF or PNG holding the array of an image or mask input, or GraphML holding a
+    graph."""
     state = _state()
     wait = _requested_wait()
-    job_request, pixels, uploaded = _job_request()
-    errors = job_request.field_errors(state.limits, pixels, uploaded)
+    job_request, data, uploaded = _job_request()
+    errors = job_request.field_errors(state.limits, data, uploaded)
     if errors:
         raise RequestInvalid(errors)
     if wants_npy(request) and not job_request.features:  # refused before it is queued
@@ -127,7 +130,7 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
             f"a job without features has no vector to send as {NPY_MEDIA_TYPE}; add features "
             "or ask for application/json"
         )
-    job = state.queue.submit(job_submission(job_request, pixels), owner_of(request))
+    job = state.queue.submit(job_submission(job_request, data, uploaded), owner_of(request))
     return _answer(job, wait)
 
 

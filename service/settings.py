@@ -46,6 +46,12 @@ class Settings(BaseSettings):
         "per voxel on smooth data, about 120 on noise and several hundred on data with many "
         "ties (binary noise), plus 8 for the values; the job time limit bounds the rest.",
     )
+    max_graph_nodes: int = Field(
+        2_000_000, ge=1, le=2**31 - 1, description="Most nodes in one graph (JSON or GraphML)."
+    )
+    max_graph_edges: int = Field(
+        2_000_000, ge=0, le=2**31 - 1, description="Most edges in one graph (JSON or GraphML)."
+    )
     max_upload_bytes: int = Field(
         512 * 1024 * 1024,
         ge=1024,

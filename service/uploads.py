@@ -31,10 +31,11 @@ __all__ = ["UPLOAD_FORMATS", "REQUEST_PART", "DATA_PART", "decode_array", "multi
 REQUEST_PART = "request"
 DATA_PART = "data"
 
-UPLOAD_FORMATS = ("npy", "tiff", "png")
+UPLOAD_FORMATS = ("npy", "tiff", "png", "graphml")
 """Formats accepted as the data part: NumPy .npy (NEP 1, never pickled), TIFF (2D, or a
 multi-page stack as 3D; one min-is-black channel of 8/16/32-bit integers or floats; any
-compression imagecodecs decodes, LZW and deflate included) and PNG (grayscale 1 to 16-bit)."""
+compression imagecodecs decodes, LZW and deflate included) and PNG (grayscale 1 to 16-bit)
+for image and mask inputs; GraphML for graph inputs (``service.graphml``)."""
 
 _NPY_MAGIC = b"\x93NUMPY"
 _PNG_MAGIC = b"\x89PNG\r\n\x1a\n"

@@ -20,6 +20,7 @@ from workers.core.errors import ParameterError
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.features import direction_feature_vectors, feature_vectors
+from workers.graphs import descriptors_of, graph_diagram_sets, graph_output, network_of
 from workers.pairwise import distance_matrix, usable_cores
 from workers.pixel_diagrams import pixel_diagram_sets
 from workers.spec import (
@@ -37,8 +38,9 @@ from workers.spec import (
 )
 from workers.spec.arrays import array_sha256, diagrams_of_rows, from_npy_bytes
 from workers.spec.features import vector_length
+from workers.spec.filtrations import ArrayFiltration
 from workers.spec.jobs import cancel_key, input_key
-from workers.spec.results import DirectionDiagrams, package_versions
+from workers.spec.results import DirectionDiagrams, ValueConvention, package_versions
 
 __all__ = ["execute", "execute_bytes", "run", "compute_process"]
 
@@ -83,7 +85,7 @@ def _pixel_persistence(
     """Diagrams of an image or mask filtration (one set per direction); then the features."""
     started = time.perf_counter()
     filtration = task.filtration
-    if filtration is None or isinstance(filtration, RipsFiltration):
+    if not isinstance(filtration, ArrayFiltration):
         raise TypeError("an image or mask job needs an array filtration")
     sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
     several = sets[0].direction is not None  # a height filtration with "directions"
@@ -148,10 +150,74 @@ def _diagrams(diagrams: dict[int, np.ndarray]) -> list[Diagram]:
     return [_diagram(dim, pairs) for dim, pairs in sorted(diagrams.items())]
 
 
+def _graph_persistence(
+    payload: JobPayload, task: PersistenceTask, array: np.ndarray, job_id: str
+) -> dict[str, Any]:
+    """Diagrams of a graph filtration (one set per direction), the features, and the network
+    descriptors and graph when the output asks for them."""
+    started = time.perf_counter()
+    network = network_of(
+        array, layout=task.graph, skeletonize=task.skeletonize, spacing=task.spacing
+    )
+    diagrams: list[Diagram] = []
+    per_direction = None
+    vectors, layout, layout_id = feature_vectors([], {})
+    convention: ValueConvention | None = None
+    unreached = None
+    if task.filtration is not None:
+        sets, convention, unreached = graph_diagram_sets(network, task.filtration)
+        several = sets[0].direction is not None
+        _check_pair_count(
+            [s.diagrams for s in sets],
+            payload.max_result_pairs,
+            field="/filtration/directions" if several else "/filtration",
+            advice="ask for fewer directions or lower max_dim",
+        )
+        if several:
+            named = [(s.direction or [], s.diagrams) for s in sets]
+            vectors, layout, layout_id = direction_feature_vectors(task.features, named)
+            if "diagrams" in task.output:
+                per_direction = [
+                    DirectionDiagrams(direction=direction, diagrams=_diagrams(found))
+                    for direction, found in named
+                ]
+        else:
+            vectors, layout, layout_id = feature_vectors(task.features, sets[0].diagrams)
+            if "diagrams" in task.output:
+                diagrams = _diagrams(sets[0].diagrams)
+    descriptors, shells = (
+        descriptors_of(network, task.descriptors) if "descriptors" in task.output else (None, None)
+    )
+    lengths_unit = payload.input.units
+    if task.skeletonize and task.spacing is None:
+        lengths_unit = "pixel"
+    result = JobResult(
+        job_id=job_id,
+        schema_version=SCHEMA_VERSION,
+        value_convention=convention,
+        units=None if convention == "node_value" else lengths_unit,
+        diagrams=diagrams,
+        per_direction=per_direction,
+        vectors=vectors,
+        vector_length=sum(entry.stop - entry.start for entry in layout),
+        layout=layout,
+        layout_id=layout_id,
+        descriptors=descriptors,
+        shells=shells,
+        graph=graph_output(network) if "graph" in task.output else None,
+        unreached_nodes=unreached,
+        warnings=network.warnings,
+        provenance=_provenance(payload, started),
+    )
+    return result.model_dump(mode="json")
+
+
 def _persistence(
     payload: JobPayload, task: PersistenceTask, array: np.ndarray, job_id: str
 ) -> dict[str, Any]:
     """Diagrams of the filtration on a point set, or the given diagrams; then the features."""
+    if payload.input.type == "graph" or task.skeletonize:
+        return _graph_persistence(payload, task, array, job_id)
     if payload.input.type in ("image", "mask"):
         return _pixel_persistence(payload, task, array, job_id)
     started = time.perf_counter()
@@ -280,10 +346,16 @@ def _checked_input(data: object, payload: JobPayload) -> np.ndarray:
 INLINE_MAX_PIXELS = 4096
 """Image and mask jobs up to this many pixels run in the worker itself (a few ms)."""
 
+INLINE_MAX_GRAPH_ROWS = 20_000
+"""Graph jobs up to this many nodes and edges together run in the worker itself (a few ms;
+a height filtration with many directions multiplies that, still far below any limit)."""
+
 
 def _runs_inline(payload: JobPayload) -> bool:
     """Is this job so small that the compute child's round trip would cost more than it?"""
     task, rows = payload.task, payload.input.shape[0]
+    if payload.input.type == "graph":
+        return rows <= INLINE_MAX_GRAPH_ROWS
     if payload.input.type in ("image", "mask"):
         return math.prod(payload.input.shape) <= INLINE_MAX_PIXELS
     if isinstance(task, DistanceTask):

@@ -1,6 +1,6 @@
 """``make bench``: lacuna against reference libraries, measured side by side in one run.
 
-Eight tables, all ratios (no absolute targets in tests):
+Nine tables, all ratios (no absolute targets in tests):
 
 1. Rips engine (H0+H1, full filtration) against ripser, gudhi with edge collapse and
    giotto-ph, on uniform points and noisy circles; diagrams are checked equal.
@@ -10,6 +10,8 @@ Eight tables, all ratios (no absolute targets in tests):
    matrices, against gudhi, hera and persim (tests/benchmarks/vectors.py).
 8. Cubical persistence of a 2048^2 image and 128^3 volumes against gudhi and cripser
    (tests/benchmarks/cubical.py).
+9. Graph persistence (H0+H1) of a random geometric graph with 10^6 edges against gudhi's
+   SimplexTree (tests/benchmarks/graphs.py).
 
 Options: ``--quick`` skips n = 2000 (Rips) and 5000 (one pair); ``--cap S`` bounds each
 reference run (default 120 s); ``--only`` runs one group of tables.
@@ -35,6 +37,7 @@ import requests
 
 from tests.benchmarks.cubical import cubical_table
 from tests.benchmarks.engines import REFERENCES, Engine, lacuna, ripser
+from tests.benchmarks.graphs import graph_table
 from tests.benchmarks.vectors import distance_tables, features_table
 from tests.synthetic import FAMILIES, free_port, noisy_circle
 
@@ -231,7 +234,7 @@ def main() -> None:
     parser.add_argument("--cap", type=float, default=120.0, help="seconds per reference run")
     parser.add_argument(
         "--only",
-        choices=["engine", "service", "features", "distances", "cubical"],
+        choices=["engine", "service", "features", "distances", "cubical", "graphs"],
         default=None,
     )
     args = parser.parse_args()
@@ -247,6 +250,8 @@ def main() -> None:
         distance_tables([1000] if args.quick else [1000, 5000], args.cap)
     if args.only in (None, "cubical"):
         cubical_table(args.cap)
+    if args.only in (None, "graphs"):
+        graph_table(args.cap)
 
 
 if __name__ == "__main__":

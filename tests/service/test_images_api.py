@@ -269,7 +269,7 @@ def test_capabilities_show_the_image_limits_and_formats(served_client: FlaskClie
     capabilities = call(served_client, "GET", "/v1/capabilities").get_json()
     assert {"image", "mask"} <= set(capabilities["input_types"])
     assert {"cubical", "distance", "height", "radial"} <= set(capabilities["filtrations"])
-    assert capabilities["upload_formats"] == ["npy", "tiff", "png"]
+    assert capabilities["upload_formats"] == ["npy", "tiff", "png", "graphml"]
     limits = capabilities["limits"]
     assert limits["max_image_pixels"] == 4096 * 4096
     assert limits["max_volume_voxels"] == 512**3

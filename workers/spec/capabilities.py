@@ -16,6 +16,8 @@ class Limits(BaseModel):
     max_distance_count: int = Field(description="Most diagrams or vectors in one distance matrix.")
     max_image_pixels: int = Field(description="Most pixels in one 2D image or mask.")
     max_volume_voxels: int = Field(description="Most voxels in one 3D volume or mask.")
+    max_graph_nodes: int = Field(description="Most nodes in one graph.")
+    max_graph_edges: int = Field(description="Most edges in one graph.")
     max_upload_bytes: int = Field(description="Largest multipart request (array upload).")
     max_result_pairs: int = Field(description="Most diagram pairs in one result.")
     job_time_limit_s: float

@@ -7,6 +7,11 @@ from pydantic import BaseModel, ConfigDict, Field
 
 from workers.spec.numbers import Coordinate, FiniteFloat
 
+MAX_NODE_VALUE = 1e100
+"""Largest absolute value of an attribute filtration: the bound of diagram values."""
+
+NodeIndex = Annotated[int, Field(strict=True, ge=0, description="Position of a node.")]
+
 
 class Subsample(BaseModel):
     """Reduce the point set before building the filtration.
@@ -84,29 +89,48 @@ class DistanceFiltration(BaseModel):
     max_dim: ArrayMaxDim = None
 
 
+def unit_vector(vector: list[float]) -> list[float]:
+    """``vector`` (non-zero) scaled to length 1."""
+    largest = max(abs(v) for v in vector)  # first to about 1: subnormals scale exactly
+    scaled = [v / largest for v in vector]
+    norm = math.hypot(*scaled)
+    return [v / norm for v in scaled]
+
+
+MAX_DIRECTIONS = 256
+"""Most directions one height filtration sweeps."""
+
+
 class HeightFiltration(BaseModel):
-    """A mask swept by a line (2D) or plane (3D): foreground pixels enter at the projection of
-    their centre on a unit direction. Give one ``direction``, or several ``directions`` for one
-    diagram set per direction (in request order). Vectors need not be unit: they are scaled to
-    length 1, and results echo the unit vectors used."""
+    """A sweep by a line (2D) or plane (3D): foreground pixels, or graph nodes, enter at the
+    projection of their centre on a unit direction (a graph edge with its later end). Give one
+    ``direction``, or several ``directions`` for one diagram set per direction (in request
+    order): a list of vectors, or in 2D a count K for K evenly spaced directions at angles
+    2 pi k / K, k = 0..K-1, from the first axis toward the second. Vectors need not be unit:
+    they are scaled to length 1, and results echo the unit vectors used."""
 
     model_config = ConfigDict(extra="forbid")
 
     type: Literal["height"]
     direction: Vector | None = None
-    directions: Annotated[list[Vector] | None, Field(min_length=1, max_length=256)] = None
+    directions: (
+        Annotated[list[Vector], Field(min_length=1, max_length=MAX_DIRECTIONS)]
+        | Annotated[int, Field(strict=True, ge=1, le=MAX_DIRECTIONS)]
+        | None
+    ) = None
     max_dim: ArrayMaxDim = None
 
     def unit_directions(self) -> list[list[float]]:
         """The direction vectors scaled to length 1, in request order."""
+        if isinstance(self.directions, int):
+            angles = [2 * math.pi * k / self.directions for k in range(self.directions)]
+            return [[math.cos(angle), math.sin(angle)] for angle in angles]
         vectors = [self.direction] if self.direction is not None else self.directions or []
-        units = []
-        for vector in vectors:
-            largest = max(abs(v) for v in vector)  # first to about 1: subnormals scale exactly
-            scaled = [v / largest for v in vector]
-            norm = math.hypot(*scaled)
-            units.append([v / norm for v in scaled])
-        return units
+        return [unit_vector(vector) for vector in vectors]
+
+    def direction_count(self) -> int:
+        """How many diagram sets the sweep makes."""
+        return len(self.unit_directions()) if self.directions is not None else 1
 
 
 MAX_CENTER = 1e90
@@ -131,6 +155,43 @@ class RadialFiltration(BaseModel):
     max_dim: ArrayMaxDim = None
 
 
+GraphMaxDim = Annotated[
+    int | None,
+    Field(strict=True, ge=0, le=1, description="Highest homology dimension, 0 or 1 (a graph "
+          "has no higher classes). Default: 1."),
+]
+
+
+class GeodesicFiltration(BaseModel):
+    """Growth along the network: nodes enter at their shortest-path distance from the nearest
+    of the ``seeds`` (node positions), summing edge lengths, so the network fills outward along
+    its vessels. Nodes no path reaches never enter: they and their edges are in no diagram, and
+    the result counts them in ``unreached_nodes``."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["geodesic"]
+    seeds: Annotated[list[NodeIndex], Field(min_length=1, max_length=100_000)]
+    max_dim: GraphMaxDim = None
+
+
+class AttributeFiltration(BaseModel):
+    """Sublevel sets of a value given per node (a measured intensity, a radius, a flow): node
+    i enters at ``values[i]``, an edge with its later end."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["attribute"]
+    values: Annotated[
+        list[Annotated[FiniteFloat, Field(ge=-MAX_NODE_VALUE, le=MAX_NODE_VALUE)]],
+        Field(min_length=1, description="One value per node, in node order."),
+    ]
+    max_dim: GraphMaxDim = None
+
+
+GRAPH_FILTRATIONS = ("height", "radial", "geodesic", "attribute")
+"""Filtrations of a graph (and of a mask's skeleton graph)."""
+
 ArrayFiltration = CubicalFiltration | DistanceFiltration | HeightFiltration | RadialFiltration
 """Filtrations built on a pixel or voxel array."""
 
@@ -138,7 +199,13 @@ MASK_FILTRATIONS = ("distance", "height", "radial")
 """Filtrations whose values come from a mask's geometry."""
 
 Filtration = Annotated[
-    RipsFiltration | CubicalFiltration | DistanceFiltration | HeightFiltration | RadialFiltration,
+    RipsFiltration
+    | CubicalFiltration
+    | DistanceFiltration
+    | HeightFiltration
+    | RadialFiltration
+    | GeodesicFiltration
+    | AttributeFiltration,
     Field(discriminator="type"),
 ]
 """Every filtration type, told apart by ``type``."""

@@ -4,6 +4,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
 
+from workers.spec.filtrations import NodeIndex
 from workers.spec.numbers import Coordinate, FiniteFloat
 from workers.spec.results import Diagram
 
@@ -122,12 +123,77 @@ class MaskInput(BaseModel):
     values: PixelValues | None = None
     spacing: Spacing = None
     units: ArrayUnits = None
+    skeletonize: Annotated[
+        bool,
+        Field(
+            description="Work on the mask's skeleton graph instead of its pixels: the mask is "
+            "thinned to one-pixel-wide centre lines (scikit-image skeletonize), skeleton "
+            "pixels become nodes at their physical centres, touching pixels are joined by "
+            "edges, adjacent junction pixels merge into one branch point, and each node's "
+            "radius is the distance to the background. The job then takes graph filtrations "
+            'and outputs, like a "graph" input.'
+        ),
+    ] = False
+
+
+MAX_GRAPH_MAGNITUDE = 1e90
+"""Largest absolute node coordinate (after spacing) and edge length: sums of lengths along a
+million edges stay within the bound of diagram values."""
+
+GraphLength = Annotated[FiniteFloat, Field(ge=0, le=MAX_GRAPH_MAGNITUDE)]
+
+
+class GraphInput(BaseModel):
+    """A vessel or fibre network: nodes at physical coordinates and edges along the vessels.
+
+    Give ``nodes`` and ``edges`` as JSON, or upload a GraphML file as the ``data`` part of a
+    multipart request (node attributes ``x``, ``y`` and, in 3D, ``z``; optional node attribute
+    ``radius`` and edge attribute ``length``). Edges are undirected; self-loops and repeated
+    edges are dropped, and the result's ``warnings`` say which.
+    """
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["graph"]
+    nodes: Annotated[
+        list[Annotated[list[Coordinate], Field(min_length=2, max_length=3)]] | None,
+        Field(
+            description="N rows of 2 or 3 coordinates (x, y[, z]), every row the same length. "
+            "Leave out when the graph is uploaded as GraphML."
+        ),
+    ] = None
+    edges: Annotated[
+        list[tuple[NodeIndex, NodeIndex]] | None,
+        Field(description="Pairs of node positions (0-based). Default: no edges."),
+    ] = None
+    radius: Annotated[
+        list[GraphLength] | None,
+        Field(description="Vessel radius at each node (one per node), in units."),
+    ] = None
+    length: Annotated[
+        list[GraphLength] | None,
+        Field(
+            description="Length of each edge along the vessel (one per edge), in units. "
+            "Default: the Euclidean distance of its end nodes."
+        ),
+    ] = None
+    spacing: Annotated[
+        list[Annotated[FiniteFloat, Field(ge=MIN_SPACING, le=MAX_SPACING)]] | None,
+        Field(
+            min_length=2,
+            max_length=3,
+            description="Scale of each coordinate axis, for nodes given in pixel or voxel "
+            "indices (e.g. [0.5, 0.5, 2.0]); coordinates are multiplied by it. Given "
+            "`length` and `radius` values are taken as they are.",
+        ),
+    ] = None
+    units: Units = None
 
 
 ArrayInput = ImageInput | MaskInput
 """Inputs that are arrays of pixels or voxels."""
 
 Input = Annotated[
-    PointsInput | DiagramsInput | ImageInput | MaskInput, Field(discriminator="type")
+    PointsInput | DiagramsInput | ImageInput | MaskInput | GraphInput, Field(discriminator="type")
 ]
 """Every input type, told apart by ``type``."""

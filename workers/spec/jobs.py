@@ -9,6 +9,8 @@ from pydantic import BaseModel, ConfigDict, Field
 from workers.spec.distances import Metric
 from workers.spec.features import FeatureSpec
 from workers.spec.filtrations import Filtration
+from workers.spec.graphs import GraphLayout
+from workers.spec.networks import DescriptorOptions, OutputKind
 from workers.spec.problems import Problem
 
 __all__ = [
@@ -79,7 +81,7 @@ class JobStatus(BaseModel):
     links: dict[str, str]
 
 
-StoredType = Literal["points", "diagrams", "diagram_set", "vectors", "image", "mask"]
+StoredType = Literal["points", "diagrams", "diagram_set", "vectors", "image", "mask", "graph"]
 
 
 class StoredInput(BaseModel):
@@ -87,7 +89,8 @@ class StoredInput(BaseModel):
 
     Arrays by type: ``points`` (n, d) coordinates; ``diagrams`` and ``diagram_set`` (k, 3)
     rows of (dimension or diagram index, birth, death with inf for never); ``vectors`` (N, L);
-    ``image`` and ``mask`` 2D or 3D arrays in the dtype they arrived in.
+    ``image`` and ``mask`` 2D or 3D arrays in the dtype they arrived in; ``graph`` (n + m,
+    d + 1) rows of nodes, then edges (``workers.spec.graphs.graph_rows``).
     """
 
     model_config = ConfigDict(extra="forbid")
@@ -114,7 +117,15 @@ class PersistenceTask(BaseModel):
         list[FeatureSpec], Field(description="Resolved specs, each with its spec_id set.")
     ] = []
     spacing: Annotated[
-        list[float] | None, Field(description="Pixel size per axis (image and mask inputs).")
+        list[float] | None,
+        Field(description="Pixel size per axis (image and mask inputs), or the scale of each "
+              "coordinate axis (graph inputs)."),
+    ] = None
+    output: list[OutputKind] = ["diagrams"]
+    descriptors: DescriptorOptions | None = None
+    skeletonize: Annotated[bool, Field(description="Work on a mask's skeleton graph.")] = False
+    graph: Annotated[
+        GraphLayout | None, Field(description="How the stored graph rows split (graph inputs).")
     ] = None
 
 

@@ -21,7 +21,14 @@ from workers.spec.filtrations import (
 from workers.spec.inputs import MAX_PIXEL_MAGNITUDE, ArrayInput, MaskInput
 from workers.spec.problems import FieldError
 
-__all__ = ["UPLOAD_POINTER", "array_of_values", "max_dim_of", "pixel_errors", "shape_error"]
+__all__ = [
+    "UPLOAD_POINTER",
+    "array_of_values",
+    "direction_errors",
+    "max_dim_of",
+    "pixel_errors",
+    "shape_error",
+]
 
 UPLOAD_POINTER = "/data"
 """Pointer naming the uploaded file part of a multipart request."""
@@ -189,6 +196,8 @@ def _filtration_errors(
     array: np.ndarray, array_input: ArrayInput, filtration: Filtration | None, limits: Limits
 ) -> list[FieldError]:
     kind = array_input.type
+    if isinstance(array_input, MaskInput) and array_input.skeletonize:
+        return []  # a skeleton graph's filtration is checked as a graph's
     if filtration is None:
         hint = (
             '{"type": "cubical", "direction": "sublevel"}'
@@ -241,7 +250,7 @@ def _filtration_errors(
             )
         )
     if isinstance(filtration, HeightFiltration):
-        errors.extend(_direction_errors(filtration, ndim))
+        errors.extend(direction_errors(filtration, ndim, f"a {ndim}D array"))
     if isinstance(filtration, RadialFiltration) and len(filtration.center) != ndim:
         errors.append(
             FieldError(
@@ -263,7 +272,8 @@ def _filtration_errors(
     return errors
 
 
-def _direction_errors(filtration: HeightFiltration, ndim: int) -> list[FieldError]:
+def direction_errors(filtration: HeightFiltration, ndim: int, what: str) -> list[FieldError]:
+    """What is wrong with the direction(s) of a height filtration on ``what`` (``ndim``-D)."""
     if (filtration.direction is None) == (filtration.directions is None):
         return [
             FieldError(
@@ -272,6 +282,16 @@ def _direction_errors(filtration: HeightFiltration, ndim: int) -> list[FieldErro
                 "exactly one of them",
             )
         ]
+    if isinstance(filtration.directions, int):
+        if ndim != 2:
+            return [
+                FieldError(
+                    pointer="/filtration/directions",
+                    message=f"a count of evenly spaced directions needs 2D data; for {what} "
+                    "give the direction vectors",
+                )
+            ]
+        return []
     if filtration.direction is not None:
         named = [("/filtration/direction", filtration.direction)]
     else:
@@ -285,7 +305,7 @@ def _direction_errors(filtration: HeightFiltration, ndim: int) -> list[FieldErro
             errors.append(
                 FieldError(
                     pointer=pointer,
-                    message=f"the direction has {len(vector)} numbers for a {ndim}D array",
+                    message=f"the direction has {len(vector)} numbers for {what}",
                 )
             )
         elif math.hypot(*vector) == 0:

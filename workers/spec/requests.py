@@ -18,11 +18,30 @@ from workers.spec.features import (
     vector_length,
 )
 from workers.spec.filtrations import Filtration, HeightFiltration, RipsFiltration
-from workers.spec.inputs import ArrayInput, DiagramsInput, ImageInput, Input, MaskInput, PointsInput
+from workers.spec.graphs import (
+    GraphArrays,
+    graph_arrays,
+    graph_errors,
+    graph_filtration_errors,
+    graph_max_dim,
+)
+from workers.spec.inputs import (
+    ArrayInput,
+    DiagramsInput,
+    GraphInput,
+    ImageInput,
+    Input,
+    MaskInput,
+    PointsInput,
+)
+from workers.spec.networks import DescriptorOptions, OutputKind
 from workers.spec.pixels import UPLOAD_POINTER, array_of_values, max_dim_of, pixel_errors
 from workers.spec.problems import FieldError
 
-__all__ = ["JobRequest", "MAX_FEATURES", "length_error", "pair_errors"]
+__all__ = ["InputData", "JobRequest", "MAX_FEATURES", "length_error", "pair_errors"]
+
+InputData = np.ndarray | GraphArrays
+"""The data of an input that comes as arrays: pixels, or a graph."""
 
 MAX_FEATURES = 64
 """Most feature specs one job may ask for."""
@@ -51,6 +70,22 @@ class JobRequest(BaseModel):
             "their vectors in this order.",
         ),
     ] = []
+    output: Annotated[
+        list[OutputKind],
+        Field(
+            min_length=1,
+            max_length=3,
+            description='What the result holds: "diagrams" (the persistence diagrams and '
+            'feature vectors), "descriptors" (network descriptors) and "graph" (the nodes '
+            'and edges the job worked on); the last two for graph inputs and skeletonized '
+            "masks. A graph job that asks only for descriptors or the graph needs no "
+            "filtration.",
+        ),
+    ] = ["diagrams"]
+    descriptors: Annotated[
+        DescriptorOptions | None,
+        Field(description='How to measure the network descriptors (with output "descriptors").'),
+    ] = None
 
     def references(self) -> list[tuple[int, str]]:
         """(position, spec_id) of every feature given only by the id of a registered spec."""
@@ -61,17 +96,20 @@ class JobRequest(BaseModel):
         ]
 
     def field_errors(
-        self, limits: Limits, pixels: np.ndarray | None = None, uploaded: bool = False
+        self, limits: Limits, data: InputData | None = None, uploaded: bool = False
     ) -> list[FieldError]:
         """Checks that span several fields or depend on configured limits.
 
         Pydantic validates each field on its own; what only makes sense together (all rows of
         one length, a subsample no larger than the set, features of computed dimensions, the
         configured limits) is checked here. Features given by reference must have been
-        resolved (``with_features``) before. ``pixels`` is the array of an image or mask input
-        (from ``pixel_array`` or an upload; ``uploaded`` says which).
+        resolved (``with_features``) before. ``data`` is the array of an image or mask input,
+        or the arrays of a graph (from ``input_data`` or an upload; ``uploaded`` says which).
         """
         computed: set[int]
+        errors = self._output_errors()
+        if errors:
+            return errors
         if isinstance(self.input, PointsInput):
             if self.filtration is not None and not isinstance(self.filtration, RipsFiltration):
                 return [
@@ -86,23 +124,110 @@ class JobRequest(BaseModel):
         elif isinstance(self.input, DiagramsInput):
             errors = self._diagrams_errors(self.input, limits)
             computed = {diagram.dim for diagram in self.input.diagrams}
+        elif isinstance(self.input, GraphInput):
+            errors = self._graph_errors(self.input, data, uploaded, limits)
+            if errors:
+                return errors
+            computed = set(range(graph_max_dim(self.filtration) + 1)) if self.filtration else set()
         else:
+            pixels = data if isinstance(data, np.ndarray) else None
             errors = self._array_errors(self.input, pixels, uploaded, limits)
             if errors:
                 return errors
-            assert pixels is not None and self.filtration is not None  # else errors said so
-            computed = set(range(max_dim_of(self.filtration, pixels.ndim) + 1))
+            assert pixels is not None  # else errors said so
+            if self._on_graph():
+                errors = graph_filtration_errors(
+                    self.filtration, pixels.ndim, None, self.descriptors, limits
+                )
+                if errors:
+                    return errors
+                computed = (
+                    set(range(graph_max_dim(self.filtration) + 1)) if self.filtration else set()
+                )
+            else:
+                assert self.filtration is not None  # else errors said so
+                computed = set(range(max_dim_of(self.filtration, pixels.ndim) + 1))
         copies = 1
-        if isinstance(self.filtration, HeightFiltration) and self.filtration.directions:
-            copies = len(self.filtration.directions)  # the features repeat per direction
+        if isinstance(self.filtration, HeightFiltration):
+            copies = self.filtration.direction_count()  # the features repeat per direction
         return errors + self._feature_errors(computed, limits, copies)
 
-    def pixel_array(self) -> np.ndarray | FieldError | None:
-        """The array of an image or mask given as JSON values (None for other inputs and for
-        arrays to be uploaded), or a FieldError at the first ragged row."""
+    def input_data(self) -> InputData | FieldError | None:
+        """The array of an image or mask given as JSON values, or the arrays of a graph given
+        as JSON (None for other inputs and for data to be uploaded), or a FieldError at the
+        first ragged row."""
         if isinstance(self.input, ImageInput | MaskInput) and self.input.values is not None:
             return array_of_values(self.input.values)
+        if isinstance(self.input, GraphInput) and self.input.nodes is not None:
+            return graph_arrays(self.input)
         return None
+
+    def _on_graph(self) -> bool:
+        """Does the job work on a graph (a graph input or a skeletonized mask)?"""
+        return isinstance(self.input, GraphInput) or (
+            isinstance(self.input, MaskInput) and self.input.skeletonize
+        )
+
+    def _output_errors(self) -> list[FieldError]:
+        errors = []
+        if len(set(self.output)) != len(self.output):
+            errors.append(FieldError(pointer="/output", message="each output is named once"))
+        graph_only = [kind for kind in self.output if kind != "diagrams"]
+        if graph_only and not self._on_graph():
+            errors.append(
+                FieldError(
+                    pointer="/output",
+                    message=f'output "{graph_only[0]}" is for graphs: send a "graph" input, or '
+                    'a "mask" with "skeletonize": true',
+                )
+            )
+        if self.descriptors is not None and "descriptors" not in self.output:
+            errors.append(
+                FieldError(
+                    pointer="/descriptors",
+                    message='descriptor options need "descriptors" in output',
+                )
+            )
+        if self._on_graph() and self.filtration is None and "diagrams" in self.output:
+            errors.append(
+                FieldError(
+                    pointer="/filtration",
+                    message='diagrams need a filtration, e.g. {"type": "height", "direction": '
+                    '[0, 1]}; for descriptors alone send "output": ["descriptors"]',
+                )
+            )
+        return errors
+
+    def _graph_errors(
+        self, graph_input: GraphInput, data: InputData | None, uploaded: bool, limits: Limits
+    ) -> list[FieldError]:
+        if uploaded and graph_input.nodes is not None:
+            return [
+                FieldError(
+                    pointer="/input/nodes",
+                    message="the graph is both in nodes and uploaded as the data part; send it "
+                    "one way",
+                )
+            ]
+        if not isinstance(data, GraphArrays):
+            return [
+                FieldError(
+                    pointer="/input/nodes",
+                    message="give the graph as nodes and edges, or upload GraphML as the data "
+                    "part of a multipart/form-data request",
+                )
+            ]
+        if uploaded:
+            for name in ("edges", "radius", "length"):
+                if getattr(graph_input, name) is not None:
+                    return [
+                        FieldError(
+                            pointer=f"/input/{name}",
+                            message=f"an uploaded graph carries its own {name}; leave it out "
+                            "of the request part",
+                        )
+                    ]
+        return graph_errors(data, graph_input, self.filtration, self.descriptors, limits, uploaded)
 
     def _array_errors(
         self, array_input: ArrayInput, pixels: np.ndarray | None, uploaded: bool, limits: Limits

@@ -6,7 +6,9 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
+from workers.spec.networks import GraphOutput, NetworkDescriptors, ShellDescriptors
 from workers.spec.numbers import Coordinate
+from workers.spec.problems import FieldError
 
 PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "gudhi")
 """Packages whose versions shape a result; every provenance records them."""
@@ -122,6 +124,8 @@ ValueConvention = Literal[
     "signed_distance",
     "height",
     "radial_distance",
+    "geodesic_distance",
+    "node_value",
 ]
 """What the numbers of a diagram are."""
 
@@ -147,8 +151,10 @@ class JobResult(BaseModel):
             "pixels born at 200 and dying at 50 is [-200, -50]). signed_distance: distance "
             "to the mask boundary, negative inside (units of spacing). height: projection on "
             "the direction (units of spacing). radial_distance: distance from the center "
-            "(units of spacing). Null for diagrams given as input, whose convention is the "
-            "client's."
+            "(units of spacing). geodesic_distance: distance along a graph from the nearest "
+            "seed node. node_value: the values given per graph node. Null for diagrams given "
+            "as input, whose convention is the client's, and for graph jobs without a "
+            "filtration."
         ),
     ]
     units: Annotated[
@@ -181,4 +187,26 @@ class JobResult(BaseModel):
             "concatenated vectors that can be stacked."
         ),
     ] = None
+    descriptors: Annotated[
+        NetworkDescriptors | None,
+        Field(description='Network descriptors of a graph (output "descriptors").'),
+    ] = None
+    shells: Annotated[
+        list[ShellDescriptors] | None,
+        Field(description="Descriptors per concentric shell, from the innermost out."),
+    ] = None
+    graph: Annotated[
+        GraphOutput | None,
+        Field(description='The graph the job worked on (output "graph").'),
+    ] = None
+    unreached_nodes: Annotated[
+        int | None,
+        Field(description="Nodes a geodesic filtration never reaches (no path from a seed): "
+              "they and their edges are in no diagram."),
+    ] = None
+    warnings: Annotated[
+        list[FieldError],
+        Field(description="What the job changed in its input, e.g. self-loops or repeated "
+              "edges it dropped, each at the field it concerns."),
+    ] = []
     provenance: Provenance

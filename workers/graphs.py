@@ -1,0 +1,203 @@
+"""Graph jobs: the network a job works on, its filtration values and its descriptors.
+
+The glue between ``workers.spec`` and ``workers.core`` for graphs: a graph input (stored as
+rows, ``workers.spec.graphs.graph_rows``) or a mask's skeleton graph becomes one ``Network``
+with clean edges and physical lengths; every filtration ends as one value per node and goes
+through the same engine, ``workers.core.graph_persistence.graph_diagrams``.
+"""
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import numpy as np
+
+from workers.core.errors import ParameterError
+from workers.core.graph_filtrations import (
+    geodesic_distances,
+    node_heights,
+    node_radial_distances,
+)
+from workers.core.graph_persistence import graph_diagrams
+from workers.core.network import (
+    NetworkDescriptors as CoreDescriptors,
+)
+from workers.core.network import (
+    clean_edges,
+    edge_lengths,
+    equal_shells,
+    network_descriptors,
+    shell_descriptors,
+)
+from workers.core.skeleton_graph import skeleton_graph
+from workers.pixel_diagrams import DiagramSet
+from workers.spec.filtrations import (
+    AttributeFiltration,
+    Filtration,
+    GeodesicFiltration,
+    HeightFiltration,
+    RadialFiltration,
+    unit_vector,
+)
+from workers.spec.graphs import GraphLayout, graph_max_dim, graph_of_rows
+from workers.spec.networks import (
+    DescriptorOptions,
+    GraphOutput,
+    NetworkDescriptors,
+    ShellDescriptors,
+)
+from workers.spec.problems import FieldError
+from workers.spec.results import ValueConvention
+
+__all__ = ["Network", "descriptors_of", "graph_diagram_sets", "graph_output", "network_of"]
+
+
+@dataclass(frozen=True)
+class Network:
+    """A graph ready to compute on: ``coordinates`` (n, d) physical, ``edges`` (m, 2) int64
+    without self-loops or repeated pairs, ``lengths`` (m,), ``radius`` (n,) or None, and what
+    was dropped from the input to get there."""
+
+    coordinates: np.ndarray
+    edges: np.ndarray
+    lengths: np.ndarray
+    radius: np.ndarray | None
+    warnings: list[FieldError]
+
+
+def _dropped(positions: np.ndarray, what: str, pointer: str | None) -> FieldError:
+    shown = ", ".join(str(int(p)) for p in positions[:5]) + (", ..." if len(positions) > 5 else "")
+    return FieldError(
+        pointer=pointer or f"/input/edges/{int(positions[0])}",
+        message=f"{len(positions)} {what} dropped (edge positions {shown})",
+    )
+
+
+def network_of(
+    array: np.ndarray,
+    *,
+    layout: GraphLayout | None,
+    skeletonize: bool,
+    spacing: Sequence[float] | None,
+) -> Network:
+    """The network of a stored graph (``layout`` given) or of a mask to skeletonize."""
+    if skeletonize:
+        steps = list(spacing) if spacing is not None else [1.0] * array.ndim
+        skeleton = skeleton_graph(array, steps)
+        return Network(skeleton.coordinates, skeleton.edges, skeleton.lengths, skeleton.radius, [])
+    if layout is None:
+        raise TypeError("a graph job needs the layout of its stored rows")
+    graph = graph_of_rows(array, layout)
+    coordinates = graph.coordinates
+    if spacing is not None:
+        coordinates = coordinates * np.asarray(spacing, dtype=np.float64)
+    cleanup = clean_edges(graph.edges)
+    pointer = "/data" if layout.uploaded else None
+    warnings = []
+    if len(cleanup.self_loops):
+        warnings.append(_dropped(cleanup.self_loops, "self-loops", pointer))
+    if len(cleanup.duplicates):
+        warnings.append(_dropped(cleanup.duplicates, "repeated edges", pointer))
+    lengths = (
+        graph.length[cleanup.kept]
+        if graph.length is not None
+        else edge_lengths(coordinates, cleanup.edges)
+    )
+    return Network(coordinates, cleanup.edges, lengths, graph.radius, warnings)
+
+
+def graph_diagram_sets(
+    network: Network, filtration: Filtration
+) -> tuple[list[DiagramSet], ValueConvention, int | None]:
+    """The diagram sets of a graph filtration (one set, or one per direction of a height
+    filtration with ``directions``), what their values are, and how many nodes a geodesic
+    filtration never reaches (None for other filtrations)."""
+    max_dim = graph_max_dim(filtration)
+
+    def diagrams_of(values: np.ndarray) -> dict[int, np.ndarray]:
+        return dict(enumerate(graph_diagrams(values, network.edges, max_dim=max_dim)))
+
+    if isinstance(filtration, HeightFiltration):
+        several = filtration.directions is not None
+        sets = [
+            DiagramSet(
+                diagrams_of(node_heights(network.coordinates, np.asarray(unit))),
+                unit if several else None,
+            )
+            for unit in filtration.unit_directions()
+        ]
+        return sets, "height", None
+    if isinstance(filtration, RadialFiltration):
+        values = node_radial_distances(network.coordinates, np.asarray(filtration.center))
+        return [DiagramSet(diagrams_of(values))], "radial_distance", None
+    if isinstance(filtration, GeodesicFiltration):
+        node_count = len(network.coordinates)
+        for index, seed in enumerate(filtration.seeds):
+            if seed >= node_count:  # a skeleton graph's nodes are known only now
+                raise ParameterError(
+                    f"seed {seed} is not a node; the graph has nodes 0 to {node_count - 1}",
+                    field=f"/filtration/seeds/{index}",
+                )
+        values = geodesic_distances(
+            node_count, network.edges, network.lengths, np.asarray(filtration.seeds)
+        )
+        unreached = int(np.isinf(values).sum())
+        return [DiagramSet(diagrams_of(values))], "geodesic_distance", unreached
+    if isinstance(filtration, AttributeFiltration):
+        values = np.asarray(filtration.values, dtype=np.float64)
+        return [DiagramSet(diagrams_of(values))], "node_value", None
+    raise TypeError(f"not a graph filtration: {type(filtration).__name__}")
+
+
+def _model(descriptors: CoreDescriptors) -> NetworkDescriptors:
+    return NetworkDescriptors.model_validate(descriptors.as_dict())
+
+
+def descriptors_of(
+    network: Network, options: DescriptorOptions | None
+) -> tuple[NetworkDescriptors, list[ShellDescriptors] | None]:
+    """The network descriptors of the whole graph, and per shell when the options ask."""
+    direction = None
+    if options is not None and options.direction is not None:
+        direction = np.asarray(unit_vector(options.direction))
+    whole = network_descriptors(
+        network.coordinates,
+        network.edges,
+        network.lengths,
+        direction=direction,
+        radius=network.radius,
+    )
+    if options is None or options.shells is None:
+        return _model(whole), None
+    shells = options.shells
+    center = np.asarray(shells.center, dtype=np.float64)
+    if shells.radii is not None:
+        boundaries = np.asarray(shells.radii, dtype=np.float64)
+    else:
+        boundaries = equal_shells(network.coordinates, center, shells.count or 1, shells.max_radius)
+    per_shell = shell_descriptors(
+        network.coordinates,
+        network.edges,
+        network.lengths,
+        center=center,
+        boundaries=boundaries,
+        direction=direction,
+        radius=network.radius,
+    )
+    return _model(whole), [
+        ShellDescriptors(
+            inner_radius=float(boundaries[index]),
+            outer_radius=float(boundaries[index + 1]),
+            descriptors=_model(descriptors),
+        )
+        for index, descriptors in enumerate(per_shell)
+    ]
+
+
+def graph_output(network: Network) -> GraphOutput:
+    """The network as a result shows it (the form of a graph input)."""
+    return GraphOutput(
+        nodes=network.coordinates.tolist(),
+        edges=[(int(u), int(v)) for u, v in network.edges.tolist()],
+        radius=None if network.radius is None else network.radius.tolist(),
+        length=network.lengths.tolist(),
+    )
