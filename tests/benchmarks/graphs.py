@@ -10,6 +10,9 @@ SimplexTree (``insert_batch`` of the nodes, then of the edges at the larger valu
 ends) and ``persistence(persistence_dim_max=True)``, its intervals read out. The diagrams
 are checked equal, dimension by dimension.
 
+Second table: skeleton graphs (``workers.core.skeleton_graph``) of a 512^2 capillary mask and
+a 128^3 volume of tubes, against scikit-image's ``skeletonize`` alone.
+
 Run: ``.venv/bin/python -m tests.benchmarks.graphs [--cap SECONDS]``.
 """
 
@@ -20,11 +23,16 @@ from functools import partial
 
 import gudhi
 import numpy as np
+from scipy.ndimage import distance_transform_edt
 from scipy.spatial import cKDTree
+from skimage import draw
+from skimage.morphology import skeletonize
 
 from tests.benchmarks.cubical import _agreement, _cell, _megabytes, _memory_ratio, _stacked
 from tests.benchmarks.vectors import Timed, _other_load, _ratio, _rss_rise, _timed_in_child
 from workers.core.graph_persistence import graph_diagrams
+from workers.core.skeleton_graph import skeleton_graph
+from workers.scenario import capillary_network
 
 Engine = Callable[[np.ndarray, np.ndarray], np.ndarray]
 """(values, edges) -> (k, 3) array of (dimension, birth, death), unsorted."""
@@ -119,10 +127,72 @@ def graph_table(cap: float) -> None:
         )
 
 
+def capillary_mask(size: int, seed: int) -> np.ndarray:
+    """A 2D vessel mask: a synthetic capillary network (workers.scenario) drawn into a
+    ``size`` x ``size`` grid with its vessel radii."""
+    network = capillary_network(branch_probability=0.05, fusion_probability=0.3, seed=seed)
+    scale = size / 1000.0
+    centre = np.zeros((size, size), dtype=bool)
+    for u, v in network.edges:
+        (r0, c0), (r1, c1) = (np.clip(network.coordinates[i] * scale, 0, size - 1) for i in (u, v))
+        rows, cols = draw.line(int(r0), int(c0), int(r1), int(c1))
+        centre[rows, cols] = True
+    mask: np.ndarray = distance_transform_edt(~centre) <= 2.0
+    return mask
+
+
+def tube_volume(size: int, tubes: int, seed: int) -> np.ndarray:
+    """A 3D mask of ``tubes`` straight tubes of radius 3 between random points."""
+    rng = np.random.default_rng(seed)
+    grid = np.stack(np.meshgrid(*[np.arange(size)] * 3, indexing="ij"), axis=-1).reshape(-1, 3)
+    inside = np.zeros(len(grid), dtype=bool)
+    for _ in range(tubes):
+        start, end = rng.uniform(0, size - 1, (2, 3))
+        along = end - start
+        t = np.clip((grid - start) @ along / (along @ along), 0, 1)
+        inside |= np.linalg.norm(grid - (start + t[:, None] * along), axis=1) <= 3.0
+    return inside.reshape(size, size, size)
+
+
+@_other_load()
+def skeleton_table(cap: float) -> None:
+    """Skeleton graphs of a 512^2 and a 128^3 vessel mask against skeletonize alone."""
+    print(
+        "\n## Skeleton graphs of masks: median seconds of 3 runs (1 core)\n\n"
+        "lacuna: `skeleton_graph` (scikit-image skeletonize, then the graph: shortcuts left "
+        "out, junctions merged, radii from the distance transform). Reference: scikit-image "
+        "`skeletonize` alone, so the ratio is what building the graph adds.\n"
+    )
+    print("| mask | pixels | lacuna s | skeletonize s | lacuna / skeletonize | nodes | edges |")
+    print("|---|" + "---|" * 6)
+    masks = {
+        "capillaries 512^2": capillary_mask(512, SEED),
+        "tubes 128^3": tube_volume(128, 12, SEED),
+    }
+    for label, mask in masks.items():
+        ours = _timed_in_child(partial(_graph_counts, mask), 3, cap)
+        theirs = _timed_in_child(partial(skeletonize, mask), 3, cap)
+        seconds = [None if t is None else t.seconds for t in (ours, theirs)]
+        counts = [str(int(c)) for c in ours.value] if ours is not None else ["?", "?"]
+        print(
+            f"| {label} | {mask.size} "
+            + "".join(f"| {_cell(t, f'> {cap:.0f}', '.3f')} " for t in seconds)
+            + f"| {_ratio(seconds[0], seconds[1], cap)} | {counts[0]} | {counts[1]} |",
+            flush=True,
+        )
+
+
+def _graph_counts(mask: np.ndarray) -> tuple[int, int]:
+    graph = skeleton_graph(mask, [1.0] * mask.ndim)
+    return len(graph.coordinates), len(graph.edges)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--cap", type=float, default=120.0, help="seconds allowed to one run")
-    graph_table(parser.parse_args().cap)
+    cap = parser.parse_args().cap
+    graph_table(cap)
+    skeleton_table(cap)
 
 
 if __name__ == "__main__":

@@ -11,7 +11,8 @@ Nine tables, all ratios (no absolute targets in tests):
 8. Cubical persistence of a 2048^2 image and 128^3 volumes against gudhi and cripser
    (tests/benchmarks/cubical.py).
 9. Graph persistence (H0+H1) of a random geometric graph with 10^6 edges against gudhi's
-   SimplexTree (tests/benchmarks/graphs.py).
+   SimplexTree, and skeleton graphs of a 512^2 and a 128^3 mask against scikit-image's
+   skeletonize alone (tests/benchmarks/graphs.py).
 
 Options: ``--quick`` skips n = 2000 (Rips) and 5000 (one pair); ``--cap S`` bounds each
 reference run (default 120 s); ``--only`` runs one group of tables.
@@ -37,7 +38,7 @@ import requests
 
 from tests.benchmarks.cubical import cubical_table
 from tests.benchmarks.engines import REFERENCES, Engine, lacuna, ripser
-from tests.benchmarks.graphs import graph_table
+from tests.benchmarks.graphs import graph_table, skeleton_table
 from tests.benchmarks.vectors import distance_tables, features_table
 from tests.synthetic import FAMILIES, free_port, noisy_circle
 
@@ -252,6 +253,7 @@ def main() -> None:
         cubical_table(args.cap)
     if args.only in (None, "graphs"):
         graph_table(args.cap)
+        skeleton_table(args.cap)
 
 
 if __name__ == "__main__":
