@@ -57,7 +57,10 @@ JSON Pointer.
 Binary arrays out (feature vectors, distance matrices) are NumPy .npy bytes, media type
 application/x-npy, little-endian float64 in C order; ask for them with that Accept header.
 Binary arrays in (images, masks, volumes) come as multipart/form-data: a JSON `request` part
-and a `data` file part (.npy, TIFF or PNG).
+and a `data` file part (.npy, TIFF or PNG); graphs the same way, the data part a GraphML file.
+
+Graphs: an edge enters with its later end; self-loops and repeated edges are dropped and named
+in the result's warnings; `output` asks for diagrams, network descriptors and the graph.
 
 For research use only: results are not for diagnosis or treatment decisions.
 """
@@ -124,7 +127,8 @@ _UPLOAD = {
         "properties": {
             "request": {
                 "$ref": "#/components/schemas/JobRequest",
-                "description": "The JSON request, with an image or mask input and no values.",
+                "description": "The JSON request: an image or mask input without values, or a "
+                "graph input without nodes and edges.",
             },
             "data": {
                 "type": "string",
@@ -133,7 +137,9 @@ _UPLOAD = {
                 "unpickled), TIFF (2D, or a multi-page stack read as 3D; 8/16/32-bit integers "
                 "or floats, one channel) or PNG (grayscale, 1/8/16-bit). The format is told "
                 "from the first bytes. Shapes over the limits are refused before the pixels "
-                "are read.",
+                "are read. For a graph input: GraphML (node attributes x, y and, in 3D, z; "
+                "optional node attribute radius and edge attribute length; at most "
+                "max_body_bytes; files with DOCTYPE or ENTITY declarations are refused).",
             },
         },
     },
