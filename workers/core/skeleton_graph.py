@@ -23,13 +23,18 @@ Method:
    branch-point node (connected components over the junction-junction edges, with
    scipy.sparse.csgraph), placed at the mean of their coordinates; edges inside a cluster
    disappear, edges leaving it attach to the merged node, duplicates are removed. Lengths are
-   the Euclidean distances between the final node coordinates.
+   the Euclidean distances between the final node coordinates. Merging also absorbs the
+   lattice loops step 3 cannot see, such as three voxels pairwise a face diagonal apart
+   (no voxel is closer to both ends of any side), when they sit at a junction; the price is
+   that a loop made only of touching junction pixels (a tunnel of a voxel or two where tubes
+   cross) collapses into its branch point.
 5. A blob that thins to one pixel stays as a node without edges.
 
 The radius at a node is the exact Euclidean distance transform of the mask
 (scipy.ndimage.distance_transform_edt, Maurer et al. 2003, with ``sampling=spacing``) at its
-pixel: the distance from the pixel centre to the nearest background pixel centre of the
-array; for a merged branch point, the maximum over its pixels.
+pixel: the distance from the pixel centre to the nearest background pixel centre *of the
+array* (scipy's convention: outside the array is not background, so a vessel cut by the
+border keeps its radius there); for a merged branch point, the maximum over its pixels.
 
 Pixel ``(i, j[, k])`` has its centre at ``(i * spacing[0], j * spacing[1][, k * spacing[2]])``,
 the convention of ``workers.core.mask_filtrations``.
