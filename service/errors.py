@@ -9,6 +9,8 @@ Tree::
     ├── JobHasNoResult       the job exists but has not succeeded
     ├── JobAlreadyEnded      cancelling a job that has ended
     ├── FeatureSpecNotFound  no feature spec registered under that id
+    ├── IdempotencyKeyInvalid  the Idempotency-Key header is not a usable key
+    ├── IdempotencyKeyReused   the key was used with another request body
     └── NotReady             no Redis or no worker
 """
 
@@ -17,6 +19,8 @@ from workers.spec import FieldError
 __all__ = [
     "BodyNotJson",
     "FeatureSpecNotFound",
+    "IdempotencyKeyInvalid",
+    "IdempotencyKeyReused",
     "JobAlreadyEnded",
     "JobHasNoResult",
     "JobNotFound",
@@ -68,6 +72,19 @@ class JobAlreadyEnded(ServiceError):
 class FeatureSpecNotFound(ServiceError):
     def __init__(self, spec_id: str) -> None:
         super().__init__(f"no feature spec is registered under {spec_id!r}")
+
+
+class IdempotencyKeyInvalid(ServiceError):
+    pass
+
+
+class IdempotencyKeyReused(ServiceError):
+    def __init__(self, key: str, job_id: str) -> None:
+        super().__init__(
+            f"Idempotency-Key {key!r} was used for job {job_id} with a different request; "
+            "send a new key for a new request"
+        )
+        self.job_id = job_id
 
 
 class NotReady(ServiceError):

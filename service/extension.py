@@ -46,6 +46,7 @@ def limits_of(settings: Settings) -> Limits:
         job_time_limit_s=settings.job_time_limit_s,
         result_ttl_s=settings.result_ttl_s,
         max_wait_s=settings.max_wait_s,
+        idempotency_ttl_s=settings.idempotency_ttl_s,
     )
 
 

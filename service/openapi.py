@@ -114,6 +114,18 @@ _PREFER_WAIT = {
     "schema": {"type": "string", "example": "wait=10"},
 }
 
+_IDEMPOTENCY_KEY = {
+    "name": "Idempotency-Key",
+    "in": "header",
+    "required": False,
+    "description": "A key of the client's choosing (1-255 visible ASCII characters, a UUID "
+    "say, bare or as a quoted string). Within idempotency_ttl_s of its first use (24 h by "
+    "default, see /v1/capabilities) the same key with the same request answers the job made "
+    "the first time instead of queueing another; the same key with a different request is a "
+    "422. Once that job's result has expired the key starts over. Keys are scoped by owner.",
+    "schema": {"type": "string", "maxLength": 257, "example": "5f0c6d1e-0b7a-4c7e-9d2a-1b3c"},
+}
+
 _JOB_ID = {
     "name": "job_id",
     "in": "path",
@@ -157,7 +169,7 @@ def _paths() -> dict[str, Any]:
             "post": {
                 "summary": "Submit a job",
                 "operationId": "submitJob",
-                "parameters": [_PREFER_WAIT],
+                "parameters": [_PREFER_WAIT, _IDEMPOTENCY_KEY],
                 "requestBody": {
                     "required": True,
                     "content": {**_json("JobRequest"), "multipart/form-data": _UPLOAD},
@@ -171,7 +183,7 @@ def _paths() -> dict[str, Any]:
                         "headers": {"Location": {"schema": {"type": "string"}}},
                         "content": _json("JobStatus"),
                     },
-                    "400": _problem("The body is not JSON."),
+                    "400": _problem("The body is not JSON, or the Idempotency-Key is unusable."),
                     "413": _problem(
                         "The body is above the size limit (max_body_bytes for JSON, "
                         "max_upload_bytes for multipart)."
@@ -181,7 +193,8 @@ def _paths() -> dict[str, Any]:
                     ),
                     "422": _problem(
                         "The request is invalid; `errors` points at each field (`/data` is "
-                        "the uploaded file)."
+                        "the uploaded file). Or the Idempotency-Key was used with another "
+                        "request."
                     ),
                     "503": _UNAVAILABLE,
                 },

@@ -13,6 +13,8 @@ from werkzeug.exceptions import HTTPException
 from service.errors import (
     BodyNotJson,
     FeatureSpecNotFound,
+    IdempotencyKeyInvalid,
+    IdempotencyKeyReused,
     JobAlreadyEnded,
     JobHasNoResult,
     JobNotFound,
@@ -37,6 +39,8 @@ _KINDS: dict[type[ServiceError], tuple[int, str, str]] = {
     JobHasNoResult: (409, "job-not-finished", "Job has no result"),
     JobAlreadyEnded: (409, "job-ended", "Job already ended"),
     FeatureSpecNotFound: (404, "feature-spec-not-found", "Feature spec not found"),
+    IdempotencyKeyInvalid: (400, "idempotency-key-invalid", "Invalid Idempotency-Key"),
+    IdempotencyKeyReused: (422, "idempotency-key-reused", "Idempotency-Key reused"),
     NotReady: (503, "not-ready", "Not ready"),
 }
 

@@ -5,6 +5,8 @@ submitted under (``job.meta['owner']``), so scoping by tenant later changes who 
 not how jobs are stored.
 """
 
+import functools
+import time
 import uuid
 from datetime import UTC, datetime
 from typing import Any
@@ -19,6 +21,7 @@ from rq.results import Result
 from rq.serializers import JSONSerializer
 
 from service.errors import (
+    IdempotencyKeyReused,
     JobAlreadyEnded,
     JobHasNoResult,
     JobNotFound,
@@ -37,6 +40,14 @@ __all__ = ["Job", "JobQueue"]  # Job: the handle routes get from and give back t
 
 RQ_TIMEOUT_MARGIN_S = 60
 """RQ's own job timeout is the time limit plus this: a backstop behind the worker's SIGKILL."""
+
+IDEMPOTENCY_PREFIX = "lacuna:idempotency:"
+"""Redis key prefix of Idempotency-Key records: ``<prefix><owner>:<key>`` -> job id and the
+request hash, for ``Settings.idempotency_ttl_s``."""
+
+_CLAIM_WAIT_S = 5
+"""A key claimed this recently (seconds) whose job cannot be found yet is still being
+enqueued by the request that claimed it; an older one names a job that has expired."""
 
 # A worker that dies mid-job leaves RQ status "started" until RQ's cleanup marks it failed.
 _STATES = {
@@ -70,20 +81,74 @@ class JobQueue:
         self.settings = settings
         self.queue = Queue(settings.queue, connection=redis, serializer=JSONSerializer)
 
-    def submit(self, submission: Submission, owner: str) -> Job:
-        """Store the input array next to the job and enqueue ``workers.jobs.run``."""
+    def submit(self, submission: Submission, owner: str, idempotency_key: str | None = None) -> Job:
+        """Store the input array next to the job and enqueue ``workers.jobs.run``.
+
+        With ``idempotency_key``, a request equal to the one first sent under that key (the
+        same request hash) within ``Settings.idempotency_ttl_s`` gets that job back instead of
+        a new one; a different request under the key is IdempotencyKeyReused.
+        """
         input_sha = array_sha256(submission.array)
+        request_sha = canonical_sha256({"request": submission.described, "input_sha256": input_sha})
+        job_id = str(uuid.uuid4())
+        if idempotency_key is None:
+            return self._enqueue(submission, owner, job_id, input_sha, request_sha)
+        record = f"{IDEMPOTENCY_PREFIX}{owner}:{idempotency_key}"
+        claim = f"{job_id} {request_sha}"
+        earlier = self._claim(record, claim, idempotency_key, owner)
+        if earlier is not None:
+            return earlier
+        try:
+            return self._enqueue(submission, owner, job_id, input_sha, request_sha)
+        except BaseException:
+            self._release(record, claim)  # a retry under the key may queue the job anew
+            raise
+
+    def _claim(self, record: str, claim: str, key: str, owner: str) -> Job | None:
+        """Hold ``record`` with ``claim`` ("<job id> <request hash>") and answer None, or
+        answer the job of the same request that already holds it."""
+        ttl = self.settings.idempotency_ttl_s
+        while not self.redis.set(record, claim, nx=True, ex=ttl):
+            raw = self.redis.get(record)
+            if raw is None:  # expired between the two calls
+                continue
+            held = raw.decode() if isinstance(raw, bytes) else str(raw)
+            earlier_id, earlier_sha = held.split(" ")
+            if earlier_sha != claim.split(" ")[1]:
+                raise IdempotencyKeyReused(key, earlier_id)
+            try:
+                return self.find(earlier_id, owner)
+            except JobNotFound:
+                pass
+            age = ttl - self.redis.ttl(record)
+            if age <= _CLAIM_WAIT_S:  # the first request is enqueueing its job right now
+                time.sleep(0.05)
+            else:  # its job expired before the key did, or was never queued: start over
+                self._release(record, held)
+        return None
+
+    def _release(self, record: str, claim: str) -> None:
+        """Delete ``record`` if it still holds ``claim`` (never another request's claim)."""
+        self._release_script(keys=[record], args=[claim])
+
+    @functools.cached_property
+    def _release_script(self) -> Any:
+        return self.redis.register_script(
+            "if redis.call('GET', KEYS[1]) == ARGV[1] then "
+            "return redis.call('DEL', KEYS[1]) end return 0"
+        )
+
+    def _enqueue(
+        self, submission: Submission, owner: str, job_id: str, input_sha: str, request_sha: str
+    ) -> Job:
         payload = JobPayload(
             schema_version=SCHEMA_VERSION,
             input=stored_input(submission, input_sha),
             task=submission.task,
-            request_sha256=canonical_sha256(
-                {"request": submission.described, "input_sha256": input_sha}
-            ),
+            request_sha256=request_sha,
             time_limit_s=self.settings.job_time_limit_s,
             max_result_pairs=self.settings.max_result_pairs,
         )
-        job_id = str(uuid.uuid4())
         keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)
         # One MULTI/EXEC for the job and its input: no worker can see one without the other.
         with self.redis.pipeline() as pipe:

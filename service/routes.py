@@ -9,7 +9,7 @@ from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, Unsupporte
 
 from service.auth import owner_of
 from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
-from service.errors import BodyNotJson, FeatureSpecNotFound, RequestInvalid
+from service.errors import BodyNotJson, FeatureSpecNotFound, IdempotencyKeyInvalid, RequestInvalid
 from service.extension import ServiceState
 from service.graphml import decode_graph
 from service.queue import Job
@@ -29,6 +29,11 @@ _SPEC_ID = re.compile("[0-9a-f]{64}")
 
 # RFC 7240 preference "wait=N"; at most 6 digits, so an absurd value cannot cost a parse.
 _WAIT = re.compile(r"(?:^|[,;\s])wait\s*=\s*\"?(\d{1,6})\"?(?![\d])", re.IGNORECASE)
+
+
+# Idempotency-Key: a Structured Fields string (quoted) in the IETF httpapi draft; a bare
+# token (what most clients send, a UUID) is taken too. Visible ASCII, at most 255 characters.
+_IDEMPOTENCY_KEY = re.compile(r'"([!#-~]{1,255})"|([!#-~]{1,255})')
 
 
 def _state() -> ServiceState:
@@ -57,6 +62,20 @@ def _requested_wait() -> int:
     """Seconds asked for with ``Prefer: wait=N`` (RFC 7240), capped by the settings."""
     match = _WAIT.search(request.headers.get("Prefer", ""))
     return min(int(match.group(1)), _state().settings.max_wait_s) if match else 0
+
+
+def _idempotency_key() -> str | None:
+    """The request's ``Idempotency-Key``, if it sent one."""
+    raw = request.headers.get("Idempotency-Key")
+    if raw is None:
+        return None
+    match = _IDEMPOTENCY_KEY.fullmatch(raw.strip())
+    if match is None:
+        raise IdempotencyKeyInvalid(
+            "Idempotency-Key must be 1 to 255 visible ASCII characters without quotes inside "
+            "(a UUID, say), optionally in double quotes"
+        )
+    return match.group(1) or match.group(2)
 
 
 def _answer(job: Job, wait: int) -> tuple[Response, int, dict[str, str]]:
@@ -118,7 +137,8 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
 
     The body is JSON, or multipart/form-data with a JSON ``request`` part and a ``data`` file
     part: .npy, TIFF or PNG holding the array of an image or mask input, or GraphML holding a
-    graph."""
+    graph. An ``Idempotency-Key`` header makes a retried submission answer the first one's
+    job."""
     state = _state()
     wait = _requested_wait()
     job_request, data, uploaded = _job_request()
@@ -130,7 +150,8 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
             f"a job without features has no vector to send as {NPY_MEDIA_TYPE}; add features "
             "or ask for application/json"
         )
-    job = state.queue.submit(job_submission(job_request, data, uploaded), owner_of(request))
+    key = _idempotency_key()
+    job = state.queue.submit(job_submission(job_request, data, uploaded), owner_of(request), key)
     return _answer(job, wait)
 
 

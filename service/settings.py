@@ -77,6 +77,12 @@ class Settings(BaseSettings):
     queued_ttl_s: int = Field(
         86_400, ge=1, description="How long a job (and its input) may wait in the queue."
     )
+    idempotency_ttl_s: int = Field(
+        86_400,
+        ge=1,
+        description="How long an Idempotency-Key names its job: the same key with the same "
+        "request within it answers that job again instead of queueing another.",
+    )
     max_wait_s: int = Field(30, ge=0, description="Cap on the `Prefer: wait=N` header.")
     redis_timeout_s: float = Field(
         2.0, gt=0, description="Socket timeout of Redis calls; beyond it the API answers 503."

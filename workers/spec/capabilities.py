@@ -23,6 +23,9 @@ class Limits(BaseModel):
     job_time_limit_s: float
     result_ttl_s: int
     max_wait_s: int = Field(description="Cap on the Prefer: wait=N request header.")
+    idempotency_ttl_s: int = Field(
+        description="How long an Idempotency-Key answers the job it first made."
+    )
 
 
 class Capabilities(BaseModel):
