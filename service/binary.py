@@ -5,13 +5,11 @@ Chosen once for every binary array lacuna sends (and, later, takes): the .npy fo
 dtype, and is never pickled. Values are little-endian float64 in C order.
 """
 
-from typing import Any
-
 import numpy as np
 from flask import Request
 
 from workers.spec import NPY_MEDIA_TYPE
-from workers.spec.arrays import to_npy_bytes
+from workers.spec.arrays import result_array, to_npy_bytes
 
 __all__ = ["NPY_MEDIA_TYPE", "npy_bytes", "result_array", "wants_npy"]
 
@@ -22,25 +20,6 @@ def wants_npy(request: Request) -> bool:
     return bool(accept) and accept.best_match(["application/json", NPY_MEDIA_TYPE]) == (
         NPY_MEDIA_TYPE
     )
-
-
-def result_array(result: dict[str, Any]) -> np.ndarray | None:
-    """The array a result has in binary form, or None when it has none.
-
-    A job's result: its concatenated feature vector (length ``vector_length``). A distance
-    result: the N x N matrix, with inf where classes that never die cannot be matched and NaN
-    where a cosine distance is undefined (both null in JSON).
-    """
-    if "matrix" in result:
-        missing = np.nan if result["metric"] == "cosine" else np.inf
-        return np.array(
-            [[missing if v is None else v for v in row] for row in result["matrix"]],
-            dtype="<f8",
-        ).reshape(result["count"], result["count"])
-    vectors = result.get("vectors") or []
-    if not vectors:
-        return None
-    return np.concatenate([np.asarray(v["values"], dtype="<f8") for v in vectors])
 
 
 def npy_bytes(array: np.ndarray) -> bytes:

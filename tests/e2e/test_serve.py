@@ -6,10 +6,8 @@ import math
 import os
 import signal
 import subprocess
-import sys
 import time
 import uuid
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -19,37 +17,13 @@ from redis import Redis
 
 from tests.conftest import E2E_DB, with_database
 from tests.core.test_cubical import gudhi_diagrams
-from tests.processes import descendants, running
+from tests.e2e.stack import LACUNA, stop, wait_ready
 from tests.service.test_errors import pairs_array
 from tests.synthetic import HEXAGON, free_port, smooth_field
 
 pytestmark = pytest.mark.e2e
 
-LACUNA = str(Path(sys.executable).with_name("lacuna"))
 JOB = {"input": {"type": "points", "points": HEXAGON}, "filtration": {"type": "rips", "max_dim": 2}}
-
-
-def wait_ready(base: str, workers: int = 1, seconds: float = 60) -> None:
-    deadline = time.monotonic() + seconds
-    while time.monotonic() < deadline:
-        try:
-            answer = requests.get(base + "/readyz", timeout=1)
-            if answer.status_code == 200 and answer.json()["workers"] >= workers:
-                return
-        except requests.RequestException:
-            pass
-        time.sleep(0.1)
-    raise AssertionError(f"{base} never became ready")
-
-
-def stop(process: subprocess.Popen[bytes], how: int) -> set[int]:
-    children = descendants(process.pid)
-    process.send_signal(how)
-    process.wait(30)
-    deadline = time.monotonic() + 15
-    while time.monotonic() < deadline and any(running(p) for p in children):
-        time.sleep(0.1)
-    return {p for p in children if running(p)}
 
 
 def test_embedded_stack_answers_and_stops_cleanly() -> None:

@@ -16,6 +16,8 @@ __all__ = [
     "diagram_rows",
     "diagrams_of_rows",
     "from_npy_bytes",
+    "result_array",
+    "result_diagrams",
     "to_npy_bytes",
 ]
 
@@ -127,3 +129,43 @@ def diagrams_of_rows(rows: np.ndarray, labels: list[int]) -> dict[int, np.ndarra
         label: rows[start:stop, 1:]
         for label, start, stop in zip(labels, starts, stops, strict=True)
     }
+
+
+def result_array(result: dict[str, Any]) -> np.ndarray | None:
+    """The array a result (as JSON) has in binary form, or None when it has none.
+
+    A job's result: its concatenated feature vector (length ``vector_length``). A distance
+    result: the N x N matrix, with inf where classes that never die cannot be matched and NaN
+    where a cosine distance is undefined (both null in JSON).
+    """
+    if "matrix" in result:
+        missing = np.nan if result["metric"] == "cosine" else np.inf
+        return np.array(
+            [[missing if v is None else v for v in row] for row in result["matrix"]],
+            dtype="<f8",
+        ).reshape(result["count"], result["count"])
+    vectors = result.get("vectors") or []
+    if not vectors:
+        return None
+    return np.concatenate([np.asarray(v["values"], dtype="<f8") for v in vectors])
+
+
+def result_diagrams(result: dict[str, Any], direction: int | None = None) -> list[np.ndarray]:
+    """A job result's diagrams (as JSON) as arrays: item k holds the (n_k, 2) float64 pairs
+    of dimension k, deaths that are null (never) as inf; dimensions the job did not compute
+    up to the highest it did are empty. ``direction`` picks one diagram set of a result with
+    one per direction (``per_direction``)."""
+    if direction is None:
+        if result.get("per_direction"):
+            raise ValueError("the result has one diagram set per direction: pick a direction")
+        diagrams = result.get("diagrams") or []
+    else:
+        diagrams = result["per_direction"][direction]["diagrams"]
+    by_dim = {item["dim"]: item["pairs"] for item in diagrams}
+    return [
+        np.array(
+            [[birth, np.inf if death is None else death] for birth, death in by_dim.get(k, [])],
+            dtype=np.float64,
+        ).reshape(-1, 2)
+        for k in range(max(by_dim, default=-1) + 1)
+    ]

@@ -1,0 +1,379 @@
+"""A Python client of the lacuna API: numpy arrays in, numpy arrays out.
+
+    from service.client import Client
+
+    lacuna = Client("http://lab-server:8000")
+    job = lacuna.submit_points(points, filtration={"type": "rips", "max_dim": 1})
+    h0, h1 = lacuna.diagrams(job)          # (k, 2) float64 arrays, np.inf for "never dies"
+
+Every call retries connection errors, timeouts and 503 answers with exponential backoff
+(honouring Retry-After), never a 4xx; a submission carries an Idempotency-Key, so a retried
+submission never makes a second job. Every error the service or the network gives surfaces as
+one exception type, ``LacunaError``, carrying the RFC 9457 problem object.
+"""
+
+import json
+import time
+import uuid
+from collections.abc import Callable, Sequence
+from typing import Any
+
+import numpy as np
+import requests
+
+from workers.spec.arrays import result_array, result_diagrams, to_npy_bytes
+
+__all__ = ["Client", "LacunaError"]
+
+Json = dict[str, Any]
+
+_RETRIED_STATUS = 503
+_ENDED = {"succeeded", "failed", "cancelled"}
+_MAX_RETRY_AFTER_S = 60.0
+
+
+class LacunaError(Exception):
+    """Anything that went wrong, with the problem object (RFC 9457) that says what.
+
+    ``problem`` is the service's answer when it gave one, else one made here (status 0 for a
+    service that could not be reached). ``pointers`` lists the JSON Pointers of the fields a
+    422 names.
+    """
+
+    def __init__(self, problem: Json) -> None:
+        self.problem = problem
+        self.type: str = problem.get("type", "about:blank")
+        self.title: str = problem.get("title", "")
+        self.status: int = int(problem.get("status") or 0)
+        self.detail: str = problem.get("detail") or ""
+        self.errors: list[Json] = problem.get("errors") or []
+        super().__init__(f"{self.status} {self.title}: {self.detail}".strip())
+
+    @property
+    def pointers(self) -> list[str]:
+        return [error["pointer"] for error in self.errors]
+
+
+class Client:
+    """One lacuna service. ``timeout`` bounds each HTTP call (seconds); ``retries`` and
+    ``backoff`` (seconds, doubled per attempt) govern the retries. ``api_key`` is sent as
+    ``Authorization: Bearer <key>`` for deployments behind an authenticating proxy."""
+
+    def __init__(
+        self,
+        base_url: str,
+        api_key: str | None = None,
+        timeout: float = 60.0,
+        *,
+        retries: int = 5,
+        backoff: float = 0.5,
+    ) -> None:
+        self.base_url = base_url.rstrip("/")
+        self.timeout = timeout
+        self.retries = retries
+        self.backoff = backoff
+        self._session = requests.Session()
+        if api_key is not None:
+            self._session.headers["Authorization"] = f"Bearer {api_key}"
+
+    # --- submitting ---------------------------------------------------------------------------
+
+    def submit(self, request: Json, data: bytes | None = None, filename: str = "data") -> str:
+        """Submit a job request (the JSON body of ``POST /v1/jobs``); with ``data``, as
+        multipart with ``data`` as the uploaded file (.npy, TIFF, PNG or GraphML bytes).
+        Returns the job id."""
+        headers = {"Idempotency-Key": str(uuid.uuid4())}
+        if data is None:
+            answer = self._call("POST", "/v1/jobs", json=request, headers=headers)
+        else:
+            files = {
+                "request": (None, json.dumps(request), "application/json"),
+                "data": (filename, data, "application/octet-stream"),
+            }
+            answer = self._call("POST", "/v1/jobs", files=files, headers=headers)
+        job_id: str = answer.json()["job_id"]
+        return job_id
+
+    def submit_points(
+        self,
+        points: np.ndarray,
+        filtration: Json | None = None,
+        features: Sequence[Json] = (),
+        *,
+        units: str | None = None,
+        **request: Any,
+    ) -> str:
+        """A point set, (n, d) coordinates; extra keywords go into the request."""
+        array = np.asarray(points, dtype=np.float64)
+        body = _request(
+            {"type": "points", "points": array.tolist(), "units": units},
+            filtration,
+            features,
+            request,
+        )
+        return self.submit(body)
+
+    def submit_diagrams(
+        self,
+        diagrams: Sequence[np.ndarray],
+        features: Sequence[Json] = (),
+        *,
+        units: str | None = None,
+        **request: Any,
+    ) -> str:
+        """Diagrams computed elsewhere (item k: the (n, 2) pairs of dimension k, inf deaths),
+        for feature vectors."""
+        given = [
+            {"dim": k, "pairs": _pairs_json(np.asarray(pairs, dtype=np.float64))}
+            for k, pairs in enumerate(diagrams)
+        ]
+        body = _request(
+            {"type": "diagrams", "diagrams": given, "units": units}, None, features, request
+        )
+        return self.submit(body)
+
+    def submit_image(
+        self,
+        values: np.ndarray,
+        filtration: Json | None = None,
+        features: Sequence[Json] = (),
+        *,
+        spacing: Sequence[float] | None = None,
+        units: str | None = None,
+        **request: Any,
+    ) -> str:
+        """A 2D image or 3D volume of values, uploaded as .npy."""
+        return self._submit_array("image", values, filtration, features, spacing, units, request)
+
+    def submit_mask(
+        self,
+        mask: np.ndarray,
+        filtration: Json | None = None,
+        features: Sequence[Json] = (),
+        *,
+        spacing: Sequence[float] | None = None,
+        units: str | None = None,
+        skeletonize: bool = False,
+        **request: Any,
+    ) -> str:
+        """A 2D or 3D binary mask (nonzero = foreground), uploaded as .npy; ``skeletonize``
+        works on its skeleton graph."""
+        extra = {"skeletonize": True} if skeletonize else {}
+        return self._submit_array(
+            "mask", mask, filtration, features, spacing, units, request, extra
+        )
+
+    def submit_graph(
+        self,
+        nodes: np.ndarray,
+        edges: np.ndarray,
+        filtration: Json | None = None,
+        features: Sequence[Json] = (),
+        *,
+        radius: np.ndarray | None = None,
+        length: np.ndarray | None = None,
+        units: str | None = None,
+        **request: Any,
+    ) -> str:
+        """A graph: (n, 2|3) node coordinates, (m, 2) node index pairs, optional per-node
+        radius and per-edge length."""
+        graph: Json = {
+            "type": "graph",
+            "nodes": np.asarray(nodes, dtype=np.float64).tolist(),
+            "edges": np.asarray(edges, dtype=np.int64).reshape(-1, 2).tolist(),
+            "units": units,
+        }
+        if radius is not None:
+            graph["radius"] = np.asarray(radius, dtype=np.float64).tolist()
+        if length is not None:
+            graph["length"] = np.asarray(length, dtype=np.float64).tolist()
+        return self.submit(_request(graph, filtration, features, request))
+
+    def _submit_array(
+        self,
+        kind: str,
+        values: np.ndarray,
+        filtration: Json | None,
+        features: Sequence[Json],
+        spacing: Sequence[float] | None,
+        units: str | None,
+        request: Json,
+        extra: Json | None = None,
+    ) -> str:
+        given: Json = {"type": kind, "units": units, **(extra or {})}
+        if spacing is not None:
+            given["spacing"] = [float(s) for s in spacing]
+        body = _request(given, filtration, features, request)
+        return self.submit(body, to_npy_bytes(np.asarray(values)), f"{kind}.npy")
+
+    # --- following a job ------------------------------------------------------------------------
+
+    def status(self, job_id: str) -> Json:
+        """The job's status object (state, timestamps, progress, problem)."""
+        answer: Json = self._call("GET", f"/v1/jobs/{job_id}").json()
+        return answer
+
+    def wait(
+        self,
+        job_id: str,
+        timeout: float | None = None,
+        *,
+        poll: float = 1.0,
+        progress: Callable[[Json], None] | None = None,
+    ) -> Json:
+        """Block until the job succeeds; its final status. ``progress`` gets every status seen
+        on the way. LacunaError with the job's problem if it failed or was cancelled, or a
+        ``timeout`` problem (status 0) when ``timeout`` seconds pass first."""
+        deadline = None if timeout is None else time.monotonic() + timeout
+        while True:
+            remaining = poll if deadline is None else min(poll, deadline - time.monotonic())
+            # Prefer: wait ends the poll early when the job ends (RFC 7240).
+            wait = max(0, int(np.ceil(remaining)))
+            status: Json = self._call(
+                "GET", f"/v1/jobs/{job_id}", headers={"Prefer": f"wait={wait}"}
+            ).json()
+            if progress is not None:
+                progress(status)
+            if status["status"] == "succeeded":
+                return status
+            if status["status"] in _ENDED:
+                raise LacunaError(
+                    status.get("problem")
+                    or {"title": f"Job {status['status']}", "detail": f"job {job_id}"}
+                )
+            if deadline is not None and time.monotonic() >= deadline:
+                raise LacunaError(
+                    {
+                        "type": "timeout",
+                        "title": "Timed out",
+                        "detail": f"job {job_id} is still {status['status']} after {timeout} s",
+                    }
+                )
+            if wait == 0:
+                time.sleep(max(0.0, remaining))
+
+    def result(self, job_id: str, timeout: float | None = None) -> Json:
+        """The result of the job (waiting for it to succeed first)."""
+        self.wait(job_id, timeout)
+        answer: Json = self._call("GET", f"/v1/jobs/{job_id}/result").json()
+        return answer
+
+    def diagrams(self, job: str | Json, direction: int | None = None) -> list[np.ndarray]:
+        """The persistence diagrams of a job (its id or its result): item k holds the (n, 2)
+        float64 pairs of dimension k, ``np.inf`` where a class never dies. ``direction``
+        picks one set of a job with one set per direction."""
+        return result_diagrams(self._result_of(job), direction)
+
+    def vectors(self, job: str | Json) -> np.ndarray:
+        """The job's concatenated feature vector (float64, ``vector_length`` values, in the
+        order of its ``layout``)."""
+        array = result_array(self._result_of(job))
+        if array is None:
+            raise LacunaError(
+                {"title": "No feature vector", "detail": "the job computed no feature vectors"}
+            )
+        return array
+
+    def distances(
+        self,
+        metric: str,
+        *,
+        diagrams: Sequence[np.ndarray] | None = None,
+        vectors: np.ndarray | None = None,
+        job_ids: Sequence[str] | None = None,
+        timeout: float | None = None,
+        **request: Any,
+    ) -> np.ndarray:
+        """The N x N distance matrix between diagrams ((n, 2) arrays of one dimension, inf
+        deaths), vectors ((N, L) array) or finished jobs, with ``metric`` (bottleneck,
+        wasserstein, sliced_wasserstein, euclidean, cosine). inf where classes that never
+        die cannot be matched, NaN where a cosine distance is undefined."""
+        body: Json = {"metric": metric, **request}
+        if diagrams is not None:
+            body["diagrams"] = [_pairs_json(np.asarray(d, dtype=np.float64)) for d in diagrams]
+        if vectors is not None:
+            body["vectors"] = np.asarray(vectors, dtype=np.float64).tolist()
+        if job_ids is not None:
+            body["job_ids"] = list(job_ids)
+        answer = self._call("POST", "/v1/distances", json=body)
+        found: Json = answer.json()
+        if answer.status_code == 202:
+            found = self.result(found["job_id"], timeout)
+        matrix = result_array(found)
+        assert matrix is not None  # a distance result always has its matrix
+        return matrix
+
+    def cancel(self, job_id: str) -> Json:
+        """Cancel a queued or running job; its status afterwards."""
+        answer: Json = self._call("DELETE", f"/v1/jobs/{job_id}").json()
+        return answer
+
+    def _result_of(self, job: str | Json) -> Json:
+        return self.result(job) if isinstance(job, str) else job
+
+    # --- HTTP -----------------------------------------------------------------------------------
+
+    def _call(self, method: str, path: str, **kwargs: Any) -> requests.Response:
+        """One request with retries; LacunaError for any answer that is not 2xx."""
+        attempt = 0
+        while True:
+            last = attempt >= self.retries
+            try:
+                answer = self._session.request(
+                    method, self.base_url + path, timeout=self.timeout, **kwargs
+                )
+            except (requests.ConnectionError, requests.Timeout) as error:
+                if last:
+                    raise LacunaError(
+                        {
+                            "type": "unreachable",
+                            "title": "Service unreachable",
+                            "detail": f"{method} {self.base_url + path}: {error}",
+                        }
+                    ) from error
+                time.sleep(self._backoff(attempt))
+            else:
+                if answer.status_code < 400:
+                    return answer
+                if answer.status_code != _RETRIED_STATUS or last:
+                    raise LacunaError(_problem_of(answer))
+                time.sleep(self._retry_after(answer, attempt))
+            attempt += 1
+
+    def _backoff(self, attempt: int) -> float:
+        return self.backoff * (1 << attempt)
+
+    def _retry_after(self, answer: requests.Response, attempt: int) -> float:
+        """Seconds before the next try: Retry-After (RFC 9110 10.2.3, delay-seconds form)
+        when the service sends it, else the backoff."""
+        header = answer.headers.get("Retry-After", "")
+        if header.isdigit():
+            return min(float(header), _MAX_RETRY_AFTER_S)
+        return self._backoff(attempt)
+
+
+def _request(given: Json, filtration: Json | None, features: Sequence[Json], rest: Json) -> Json:
+    """A job request body: the input without unset fields, then the rest."""
+    body: Json = {"input": {k: v for k, v in given.items() if v is not None}}
+    if filtration is not None:
+        body["filtration"] = filtration
+    if features:
+        body["features"] = list(features)
+    return {**body, **rest}
+
+
+def _pairs_json(pairs: np.ndarray) -> list[list[float | None]]:
+    """(n, 2) pairs as JSON carries them: inf death -> null."""
+    return [[float(b), None if np.isinf(d) else float(d)] for b, d in pairs.reshape(-1, 2)]
+
+
+def _problem_of(answer: requests.Response) -> Json:
+    """The problem object of an error answer (made up from the status if it sent none)."""
+    try:
+        problem = answer.json()
+    except ValueError:
+        problem = None
+    if not isinstance(problem, dict) or "title" not in problem:
+        problem = {"title": answer.reason or "Error", "detail": answer.text[:500]}
+    problem.setdefault("status", answer.status_code)
+    return problem
