@@ -84,10 +84,11 @@ class Client:
         Returns the job id."""
         headers = {"Idempotency-Key": str(uuid.uuid4())}
         if data is None:
-            answer = self._call("POST", "/v1/jobs", json=request, headers=headers)
+            headers["Content-Type"] = "application/json"
+            answer = self._call("POST", "/v1/jobs", data=_json_text(request), headers=headers)
         else:
             files = {
-                "request": (None, json.dumps(request), "application/json"),
+                "request": (None, _json_text(request), "application/json"),
                 "data": (filename, data, "application/octet-stream"),
             }
             answer = self._call("POST", "/v1/jobs", files=files, headers=headers)
@@ -295,7 +296,8 @@ class Client:
             body["vectors"] = np.asarray(vectors, dtype=np.float64).tolist()
         if job_ids is not None:
             body["job_ids"] = list(job_ids)
-        answer = self._call("POST", "/v1/distances", json=body)
+        headers = {"Content-Type": "application/json"}
+        answer = self._call("POST", "/v1/distances", data=_json_text(body), headers=headers)
         found: Json = answer.json()
         if answer.status_code == 202:
             found = self.result(found["job_id"], timeout)
@@ -360,6 +362,41 @@ def _request(given: Json, filtration: Json | None, features: Sequence[Json], res
     if features:
         body["features"] = list(features)
     return {**body, **rest}
+
+
+def _json_text(document: Json) -> str:
+    """``document`` as JSON; LacunaError naming the first NaN or infinity, which JSON cannot
+    carry (so the service would never see them)."""
+    try:
+        return json.dumps(document, allow_nan=False)
+    except ValueError:
+        where = _non_finite(document)
+        raise LacunaError(
+            {
+                "type": "invalid-request",
+                "title": "Invalid request",
+                "detail": f"{where}: not a finite number (JSON has no NaN or infinity)",
+                "errors": [{"pointer": where, "message": "not a finite number"}],
+            }
+        ) from None
+
+
+def _non_finite(document: Any, pointer: str = "") -> str | None:
+    """JSON Pointer of the first NaN or infinity in ``document``, if any."""
+    if isinstance(document, float) and not np.isfinite(document):
+        return pointer or "/"
+    items = (
+        document.items()
+        if isinstance(document, dict)
+        else enumerate(document)
+        if isinstance(document, list)
+        else ()
+    )
+    for key, value in items:
+        found = _non_finite(value, f"{pointer}/{key}")
+        if found is not None:
+            return found
+    return None
 
 
 def _pairs_json(pairs: np.ndarray) -> list[list[float | None]]:

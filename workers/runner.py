@@ -17,7 +17,7 @@ from rq.serializers import JSONSerializer
 from workers import jobs
 from workers.settings import WorkerSettings
 
-__all__ = ["main", "build_worker"]
+__all__ = ["main", "build_worker", "worker_parser"]
 
 
 def build_worker(redis_url: str, queue_name: str, name: str | None = None) -> SimpleWorker:
@@ -35,15 +35,19 @@ def build_worker(redis_url: str, queue_name: str, name: str | None = None) -> Si
     )
 
 
-def main(argv: list[str] | None = None) -> int:
-    settings = WorkerSettings()
+def worker_parser(settings: WorkerSettings) -> argparse.ArgumentParser:
+    """Options of ``lacuna worker`` (``python -m workers``)."""
     parser = argparse.ArgumentParser(prog="lacuna worker", description=__doc__)
     parser.add_argument("--redis", default=settings.redis_url, help="Redis URL (LACUNA_REDIS_URL)")
     parser.add_argument("--queue", default=settings.queue, help="queue name (LACUNA_QUEUE)")
     parser.add_argument("--name", default=None, help="worker name shown in the registry")
     parser.add_argument("--burst", action="store_true", help="exit when the queue is empty")
     parser.add_argument("--log-level", default="INFO")
-    args = parser.parse_args(argv)
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    args = worker_parser(WorkerSettings()).parse_args(argv)
     logging.basicConfig(
         level=args.log_level, format="%(asctime)s %(name)s %(levelname)s %(message)s"
     )

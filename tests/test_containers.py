@@ -1,0 +1,82 @@
+"""docker/: no Docker engine runs here, so the files are checked for what can be checked
+without one: compose.yaml parses (YAML, PyYAML as the reference parser), names redis, the API
+and two workers with health checks wired to /readyz, and every command it runs is one the
+lacuna command line accepts; the Dockerfile's base is pinned and it runs as a non-root user."""
+
+import re
+from pathlib import Path
+from typing import Any
+
+import pytest
+import yaml
+
+from service.cli import PROGRAMS, build_parser
+from service.settings import Settings
+from workers.runner import worker_parser
+from workers.settings import WorkerSettings
+
+DOCKER = Path(__file__).resolve().parents[1] / "docker"
+
+
+@pytest.fixture(scope="module")
+def compose() -> dict[str, Any]:
+    document: dict[str, Any] = yaml.safe_load((DOCKER / "compose.yaml").read_text())
+    return document
+
+
+def accepts(command: list[str]) -> None:
+    """Parse ``command`` with the parser the lacuna command line would use (SystemExit,
+    which argparse raises on an unknown command or option, fails the test)."""
+    assert command[0] == "lacuna"
+    if command[1] in PROGRAMS:
+        assert command[1] == "worker"  # the only program compose runs
+        worker_parser(WorkerSettings()).parse_args(command[2:])
+    else:
+        build_parser(Settings()).parse_args(command[1:])
+
+
+def test_compose_has_redis_an_api_and_two_workers(compose: dict[str, Any]) -> None:
+    services = compose["services"]
+    assert "redis" in services and "api" in services
+    workers = [
+        s for s in services.values() if s.get("command", [None, None])[:2] == ["lacuna", "worker"]
+    ]
+    assert len(workers) == 2
+    for service in (services["api"], *workers):
+        assert service["depends_on"]["redis"]["condition"] == "service_healthy"
+        assert service["environment"]["LACUNA_REDIS_URL"].startswith("redis://redis:")
+
+
+def test_health_checks_are_wired_to_readyz(compose: dict[str, Any]) -> None:
+    api = compose["services"]["api"]
+    assert any("/readyz" in part for part in api["healthcheck"]["test"])
+    port = api["command"][api["command"].index("--port") + 1]
+    assert f"127.0.0.1:{port}/readyz" in " ".join(api["healthcheck"]["test"])
+    assert api["ports"] == [f"{port}:{port}"]
+    assert "redis-cli" in compose["services"]["redis"]["healthcheck"]["test"]
+
+
+def test_every_command_is_one_the_cli_accepts(compose: dict[str, Any]) -> None:
+    commands = [s["command"] for s in compose["services"].values() if s["command"][0] == "lacuna"]
+    assert len(commands) == 3
+    for command in commands:
+        accepts(command)
+
+
+def test_an_unknown_option_would_be_caught() -> None:
+    # The check above must be able to fail: argparse refuses what the CLI does not know.
+    with pytest.raises(SystemExit):
+        accepts(["lacuna", "serve", "--no-such-option"])
+    with pytest.raises(SystemExit):
+        accepts(["lacuna", "worker", "--no-such-option"])
+
+
+def test_dockerfile_pins_its_base_runs_as_a_user_and_runs_lacuna() -> None:
+    text = (DOCKER / "Dockerfile").read_text()
+    bases = re.findall(r"^FROM (\S+)", text, re.MULTILINE)
+    assert bases and all(re.fullmatch(r"python:\d+\.\d+\.\d+-slim-\w+( AS \w+)?", b) for b in bases)
+    users = re.findall(r"^USER (\S+)", text, re.MULTILINE)
+    assert users and users[-1] not in ("root", "0")
+    cmd = re.search(r"^CMD (\[.*\])$", text, re.MULTILINE)
+    assert cmd is not None
+    accepts(yaml.safe_load(cmd.group(1)))  # a JSON array is YAML too
