@@ -32,7 +32,7 @@ from tests.benchmarks.cubical import _agreement, _cell, _megabytes, _memory_rati
 from tests.benchmarks.vectors import Timed, _other_load, _ratio, _rss_rise, _timed_in_child
 from workers.core.graph_persistence import graph_diagrams
 from workers.core.skeleton_graph import skeleton_graph
-from workers.scenario import capillary_network
+from workers.scenario.capillaries import capillary_network
 
 Engine = Callable[[np.ndarray, np.ndarray], np.ndarray]
 """(values, edges) -> (k, 3) array of (dimension, birth, death), unsorted."""

@@ -1,21 +1,42 @@
-"""The synthetic capillary-network generator, checked with networkx and graph theory."""
+"""The synthetic demo generators (capillary networks, cell layouts, vessel masks and images)
+and the ``python -m workers.scenario`` command, checked with networkx, graph theory, geometry,
+ripser, scipy and the readers of each file format."""
 
+import csv
 import json
+import math
 import subprocess
 import sys
+import time
 from collections.abc import Callable
 from pathlib import Path
 
 import networkx as nx
 import numpy as np
 import pytest
+import tifffile
+from PIL import Image
+from ripser import ripser
+from scipy import ndimage
+from scipy.spatial import cKDTree
 
 from service.extension import limits_of
+from service.graphml import decode_graph
 from service.settings import Settings
+from service.uploads import decode_array
 from workers.core.errors import ParameterError
 from workers.core.network import edge_lengths, network_descriptors
-from workers.scenario import CapillaryNetwork, capillary_network, capillary_request
-from workers.scenario.capillaries import MIN_RADIUS, SPROUT_RADIUS
+from workers.core.skeleton_graph import skeleton_graph
+from workers.scenario import cells as cell_module
+from workers.scenario.capillaries import (
+    MIN_RADIUS,
+    SPROUT_RADIUS,
+    CapillaryNetwork,
+    capillary_network,
+    capillary_request,
+)
+from workers.scenario.cells import cell_layout
+from workers.scenario.vessel_masks import network_mask, tube_volume, vessel_image
 from workers.spec import JobRequest
 from workers.spec.graphs import GraphArrays
 
@@ -259,6 +280,11 @@ def test_command_writes_requests_and_readme(tmp_path: Path) -> None:
         ("network", "--out", "OUT", "--count", "many"),
         ("network", "--out", "OUT", "--seed", "1.5"),
         ("trees", "--out", "OUT"),
+        ("--count", "3"),  # no --out, for the default kind all
+        ("all", "--out", "OUT", "--count", "-1"),
+        ("cells", "--out", "OUT", "--count", "0"),
+        ("masks", "images", "--out", "OUT"),  # one kind at most
+        ("images", "--out", "OUT", "--spacing", "2"),
     ],
 )
 def test_command_usage_errors_exit_2(arguments: tuple[str, ...], tmp_path: Path) -> None:
@@ -304,3 +330,505 @@ def test_generated_requests_are_valid_job_requests(tmp_path: Path) -> None:
         data = request.input_data()
         assert isinstance(data, GraphArrays)
         assert request.field_errors(limits_of(Settings()), data) == []
+
+
+# Cell layouts ---------------------------------------------------------------------------
+
+PATTERNS = ("mixed", "segregated", "surrounding")
+CELL_SEEDS = range(10)
+
+
+@pytest.mark.parametrize("pattern", PATTERNS)
+@pytest.mark.parametrize(("size", "count"), [((500.0, 500.0), 300), ((800.0, 300.0), 101)])
+def test_cell_layout_shapes_populations_and_region(
+    pattern: str, size: tuple[float, float], count: int
+) -> None:
+    points, populations = cell_layout(pattern, 3, size=size, count=count)
+    assert points.shape == (count, 2) and points.dtype == np.float64
+    assert np.all(np.isfinite(points))
+    assert populations.shape == (count,)
+    assert populations.tolist() == ["A"] * (count // 2) + ["B"] * (count - count // 2)
+    x, y = points.T
+    assert np.all((x >= 0) & (x <= size[0]) & (y >= 0) & (y <= size[1]))
+
+
+@pytest.mark.parametrize("pattern", PATTERNS)
+def test_cell_layout_same_seed_same_layout_and_different_seeds_differ(pattern: str) -> None:
+    # Common practice: a seeded generator (numpy default_rng) replays exactly.
+    a, b, c = (cell_layout(pattern, seed) for seed in (5, 5, 6))
+    assert np.array_equal(a[0], b[0]) and np.array_equal(a[1], b[1])
+    assert not np.array_equal(a[0], c[0])
+
+
+@pytest.mark.parametrize(
+    ("arguments", "field"),
+    [
+        ({"pattern": "rings"}, "/pattern"),
+        ({"count": 1}, "/count"),
+        ({"count": 2.5}, "/count"),
+        ({"count": True}, "/count"),
+        ({"size": (500.0, -1.0)}, "/size"),
+        ({"size": (float("nan"), 500.0)}, "/size"),
+        ({"size": (500.0,)}, "/size"),
+    ],
+)
+def test_cell_layout_refuses_parameters_out_of_range(
+    arguments: dict[str, object], field: str
+) -> None:
+    given: dict[str, object] = {"pattern": "mixed", "seed": 0}
+    given.update(arguments)
+    with pytest.raises(ParameterError) as caught:
+        cell_layout(**given)  # type: ignore[arg-type]
+    assert caught.value.field == field
+
+
+def cross_ratio(points: np.ndarray, populations: np.ndarray) -> float:
+    """Mean distance from a B cell to the nearest A cell over the mean distance from a B cell
+    to the nearest other B cell (nearest neighbours by scipy.spatial.cKDTree)."""
+    a, b = points[populations == "A"], points[populations == "B"]
+    to_a, _ = cKDTree(a).query(b)
+    to_b, _ = cKDTree(b).query(b, k=2)  # the first neighbour is the cell itself
+    return float(to_a.mean() / to_b[:, 1].mean())
+
+
+def test_cell_patterns_are_told_apart_by_nearest_neighbour_distances() -> None:
+    ratios = {p: [cross_ratio(*cell_layout(p, seed)) for seed in CELL_SEEDS] for p in PATTERNS}
+    # Two independent uniform populations of equal size: a B cell's nearest A cell is as far,
+    # on average, as its nearest other B cell (both about 1 / (2 sqrt(density)), Clark & Evans
+    # 1954, Ecology 35:445, from memory), so the ratio is near 1.
+    assert max(ratios["mixed"]) < 1.5
+    # A ring of B cells just outside each nest of A: a B cell's nearest A is a few ring
+    # spacings away, its nearest B one spacing.
+    assert 2.2 < min(ratios["surrounding"]) and max(ratios["surrounding"]) < 8.0
+    # Clusters apart: the nearest A cell is in another cluster, a tile away.
+    assert min(ratios["segregated"]) > 12.0
+    # Clark & Evans again, for the absolute scale of the mixed layout: mean distance from a B
+    # cell to the nearest of 150 uniform A cells in 500 x 500 um is 0.5 / sqrt(150 / 500^2)
+    # = 20.4 um, a little more with the region's edges (no A cells beyond them).
+    expected = 0.5 / math.sqrt(150 / 500.0**2)
+    for seed in CELL_SEEDS:
+        points, populations = cell_layout("mixed", seed)
+        to_a, _ = cKDTree(points[populations == "A"]).query(points[populations == "B"])
+        assert expected * 0.85 < to_a.mean() < expected * 1.25
+
+
+def long_h0_bars(points: np.ndarray, length: float) -> int:
+    """Finite bars of the H0 Rips diagram (reference library ripser) that die after
+    ``length``."""
+    h0 = ripser(points, maxdim=0)["dgms"][0]
+    return int(np.sum(np.isfinite(h0[:, 1]) & (h0[:, 1] > length)))
+
+
+def test_cell_patterns_are_told_apart_by_their_h0_diagrams() -> None:
+    # Theorem (H0 of a Rips filtration is single linkage: its finite deaths are the edge
+    # lengths of a Euclidean minimum spanning tree; e.g. Edelsbrunner & Harer, Computational
+    # Topology, from memory): k groups whose gaps all exceed ``length``, each connected by
+    # steps below it, give exactly k - 1 bars longer than ``length``.
+    length = 55.0
+    tile = 500.0 / cell_module.SEGREGATED_GRID
+    assert cell_module.CLUSTER_GAP * tile > length  # gap between segregated clusters: 58 um
+    tile = 500.0 / cell_module.SURROUNDING_GRID
+    outer = (cell_module.NEST_RADIUS + cell_module.RING_GAP + cell_module.RING_WIDTH) * tile
+    assert (1 - 2 * cell_module.JITTER) * tile - 2 * outer > length  # between rings: 75 um
+    for seed in CELL_SEEDS:
+        segregated = long_h0_bars(cell_layout("segregated", seed)[0], length)
+        surrounding = long_h0_bars(cell_layout("surrounding", seed)[0], length)
+        mixed = long_h0_bars(cell_layout("mixed", seed)[0], length)
+        assert segregated == cell_module.SEGREGATED_GRID**2 - 1  # 9 clusters
+        assert surrounding == cell_module.SURROUNDING_GRID**2 - 1  # 4 nests with their rings
+        assert mixed <= 2  # one spread-out group, at most a few cells astray
+
+
+# Vessel masks and images ----------------------------------------------------------------
+
+
+def drawn_network(
+    segments: list[tuple[tuple[float, float], tuple[float, float]]],
+) -> CapillaryNetwork:
+    """A network of straight segments (micrometres) cut into edges of at most 10 um, segments
+    sharing an end point sharing the node; radius 3 um at x = 0 up to 5 um at x = 1000."""
+    index: dict[tuple[float, float], int] = {}
+    coordinates: list[tuple[float, float]] = []
+    edges: list[tuple[int, int]] = []
+
+    def node(x: float, y: float) -> int:
+        key = (round(x, 6), round(y, 6))
+        if key not in index:
+            index[key] = len(coordinates)
+            coordinates.append(key)
+        return index[key]
+
+    for (x0, y0), (x1, y1) in segments:
+        pieces = max(1, math.ceil(math.dist((x0, y0), (x1, y1)) / 10.0))
+        chain = [
+            node(x0 + (x1 - x0) * k / pieces, y0 + (y1 - y0) * k / pieces)
+            for k in range(pieces + 1)
+        ]
+        edges += list(zip(chain[:-1], chain[1:], strict=True))
+    points = np.array(coordinates, dtype=np.float64)
+    return CapillaryNetwork(
+        coordinates=points,
+        edges=np.array(edges, dtype=np.int64),
+        radius=3.0 + 2.0 * points[:, 0] / 1000.0,
+    )
+
+
+def cycle_rank_and_components(nodes: int, edges: np.ndarray) -> tuple[int, int]:
+    """(E - V + C, C) of a graph, with networkx's connected components."""
+    g = nx.Graph()
+    g.add_nodes_from(range(nodes))
+    g.add_edges_from(edges.tolist())
+    components = nx.number_connected_components(g)
+    return g.number_of_edges() - g.number_of_nodes() + components, components
+
+
+EIGHT = np.ones((3, 3), dtype=bool)
+"""8-connectivity for scipy.ndimage.label, the adjacency of the skeleton graph."""
+
+
+def test_mask_of_well_separated_vessels_keeps_loops_and_components() -> None:
+    # A ladder of three loops, a square loop and a tree with a diagonal branch, far apart:
+    # 4 independent cycles in 3 components.
+    network = drawn_network(
+        [
+            *[((x, y), (x, y + 200.0)) for x in (100.0, 300.0) for y in (100.0, 300.0, 500.0)],
+            *[((100.0, y), (300.0, y)) for y in (100.0, 300.0, 500.0, 700.0)],
+            ((600.0, 600.0), (900.0, 600.0)),
+            ((900.0, 600.0), (900.0, 900.0)),
+            ((900.0, 900.0), (600.0, 900.0)),
+            ((600.0, 900.0), (600.0, 600.0)),
+            ((700.0, 100.0), (700.0, 250.0)),
+            ((700.0, 250.0), (700.0, 400.0)),
+            ((700.0, 250.0), (850.0, 350.0)),
+        ]
+    )
+    assert cycle_rank_and_components(len(network.coordinates), network.edges) == (4, 3)
+    mask = network_mask(network, spacing=2.0)
+    skeleton = skeleton_graph(mask, (2.0, 2.0))
+    # Theorem (cycle rank E - V + C, Diestel, Graph Theory, ch. 1, from memory), counted with
+    # networkx on lacuna's skeleton graph of the mask: the same loops and components as the
+    # source network.
+    assert cycle_rank_and_components(len(skeleton.coordinates), skeleton.edges) == (4, 3)
+    assert ndimage.label(mask, structure=EIGHT)[1] == 3  # reference: scipy.ndimage.label
+    # The skeleton runs along the drawn centrelines: skeleton coordinates are (row, column)
+    # = (y, x) in um; each lies within half an edge (5 um) plus a pixel and an end cap of
+    # radius at most 5 um of a source node.
+    distance, _ = cKDTree(network.coordinates).query(skeleton.coordinates[:, ::-1])
+    assert distance.max() <= 5.0 + 2.0 + 5.0
+
+
+def test_mask_geometry_follows_the_pixel_convention_and_the_radii() -> None:
+    # A disc of radius 10 um at one pixel centre, spacing 1 um: the pixels with centres within
+    # the radius, about pi r^2 (Gauss circle problem; the count is 317, from memory).
+    lonely = CapillaryNetwork(
+        coordinates=np.array([[500.0, 300.0]]),
+        edges=np.empty((0, 2), dtype=np.int64),
+        radius=np.array([10.0]),
+    )
+    disc = network_mask(lonely, spacing=1.0)
+    assert disc.shape == (1001, 1001)
+    assert int(disc.sum()) == 317
+    assert disc[300, 500] and not disc[500, 300]  # rows along y, columns along x
+    # One straight tube of radius 5 and length 200 (a capsule, geometry: area
+    # 2 r L + pi r^2), at 0.5 um pixels: pixel count times pixel area within 2%.
+    tube = CapillaryNetwork(
+        coordinates=np.array([[100.0, 100.0], [260.0, 220.0]]),
+        edges=np.array([[0, 1]], dtype=np.int64),
+        radius=np.array([5.0, 5.0]),
+    )
+    area = float(network_mask(tube, spacing=0.5).sum()) * 0.25
+    assert area == pytest.approx(2 * 5.0 * 200.0 + math.pi * 25.0, rel=0.02)
+    # A tapered tube (radius 2 to 6 um) is thin at one end and thick at the other.
+    tapered = CapillaryNetwork(tube.coordinates, tube.edges, np.array([2.0, 6.0]))
+    mask = network_mask(tapered, spacing=0.5)
+    near, far = (int(mask[:, column].sum()) for column in (2 * 120, 2 * 240))
+    assert far > 2 * near
+
+
+@pytest.mark.parametrize(("branch", "fusion"), [(0.02, 0.05), (0.08, 0.6)])
+def test_every_network_component_is_drawn_in_one_piece(branch: float, fusion: float) -> None:
+    # Reference libraries networkx (components of the source) and scipy.ndimage.label
+    # (components of the mask): a component of the network is one piece of the mask, and the
+    # mask has no more pieces than the network has components (touching vessels may merge).
+    for seed in SEEDS[:2]:
+        network = capillary_network(branch_probability=branch, fusion_probability=fusion, seed=seed)
+        labels, pieces = ndimage.label(network_mask(network, spacing=2.0), structure=EIGHT)
+        pixel = np.rint(network.coordinates[:, ::-1] / 2.0).astype(np.int64)
+        at_nodes = labels[pixel[:, 0], pixel[:, 1]]
+        assert np.all(at_nodes > 0)
+        components = list(nx.connected_components(graph(network)))
+        assert all(len(set(at_nodes[sorted(c)].tolist())) == 1 for c in components)
+        assert pieces <= len(components)
+
+
+def test_mask_of_unbranched_sprouts_far_apart_has_their_topology() -> None:
+    # Sparse enough to draw faithfully: 4 unbranched sprouts 250 um apart (the model makes
+    # paths, networkx says 4 trees), which never come near each other.
+    for seed in SEEDS:
+        network = capillary_network(
+            branch_probability=0.0, fusion_probability=0.0, seed=seed, sprouts=4
+        )
+        assert cycle_rank_and_components(len(network.coordinates), network.edges) == (0, 4)
+        mask = network_mask(network, spacing=2.0)
+        skeleton = skeleton_graph(mask, (2.0, 2.0))
+        assert cycle_rank_and_components(len(skeleton.coordinates), skeleton.edges) == (0, 4)
+        assert ndimage.label(mask, structure=EIGHT)[1] == 4
+
+
+@pytest.mark.parametrize(
+    ("arguments", "field"),
+    [
+        ({"spacing": 0.0}, "/spacing"),
+        ({"spacing": math.inf}, "/spacing"),
+        ({"size": (1.0, -1.0)}, "/size"),
+    ],
+)
+def test_network_mask_refuses_parameters_out_of_range(
+    arguments: dict[str, object], field: str
+) -> None:
+    network = capillary_network(branch_probability=0.0, fusion_probability=0.0, seed=0)
+    with pytest.raises(ParameterError) as caught:
+        network_mask(network, **arguments)  # type: ignore[arg-type]
+    assert caught.value.field == field
+
+
+def test_tube_volume_is_seeded_and_its_tubes_run_face_to_face() -> None:
+    volume = tube_volume(3)
+    assert volume.shape == (48, 64, 64) and volume.dtype == np.bool_
+    assert np.array_equal(volume, tube_volume(3)) and not np.array_equal(volume, tube_volume(4))
+    assert 0 < volume.mean() < 0.2
+    six = np.ones((3, 3, 3), dtype=bool)
+    for seed in range(6):
+        # At most one piece per tube (tubes that cross merge; reference scipy.ndimage.label).
+        assert 1 <= ndimage.label(tube_volume(seed, tubes=4), structure=six)[1] <= 4
+        # One tube: one piece, a skeleton without loops (networkx on lacuna's skeleton graph),
+        # touching two opposite faces.
+        one = tube_volume(seed, tubes=1)
+        assert ndimage.label(one, structure=six)[1] == 1
+        skeleton = skeleton_graph(one, (1.0, 1.0, 1.0))
+        assert cycle_rank_and_components(len(skeleton.coordinates), skeleton.edges) == (0, 1)
+        assert any(one.take(0, axis).any() and one.take(-1, axis).any() for axis in range(3))
+
+
+@pytest.mark.parametrize(
+    ("arguments", "field"),
+    [
+        ({"shape": (48, 64)}, "/shape"),
+        ({"shape": (4, 64, 64)}, "/shape"),
+        ({"tubes": 0}, "/tubes"),
+        ({"radius": (3.0, 2.0)}, "/radius"),
+        ({"radius": (0.0, 2.0)}, "/radius"),
+        ({"radius": (2.0, 40.0)}, "/radius"),
+    ],
+)
+def test_tube_volume_refuses_parameters_out_of_range(
+    arguments: dict[str, object], field: str
+) -> None:
+    with pytest.raises(ParameterError) as caught:
+        tube_volume(0, **arguments)  # type: ignore[arg-type]
+    assert caught.value.field == field
+
+
+def test_vessel_image_is_the_blurred_mask_plus_seeded_noise() -> None:
+    network = capillary_network(branch_probability=0.05, fusion_probability=0.3, seed=1)
+    mask = network_mask(network, spacing=2.0)
+    for source in (mask, tube_volume(2)):
+        clean = vessel_image(source, 0, noise=0.0)
+        assert clean.dtype == np.float32 and clean.shape == source.shape
+        # Theorem: a normalised symmetric kernel with half-sample reflection at the borders
+        # (scipy's "reflect") keeps the sum, so the excess over the background is (1.0 - 0.1)
+        # times the vessel pixels, though the vessels touch the border.
+        excess = float(np.sum(clean.astype(np.float64) - 0.1))
+        assert excess == pytest.approx(0.9 * int(source.sum()), rel=1e-4)
+        noisy = vessel_image(source, 7, noise=0.05)
+        assert np.array_equal(noisy, vessel_image(source, 7, noise=0.05))
+        assert not np.array_equal(noisy, vessel_image(source, 8, noise=0.05))
+        # Far from the vessels (over 6 blur widths) only the noise is left: mean 0.1 and the
+        # standard deviation asked for (sample statistics of over 10^4 pixels, within 5%).
+        far = ndimage.distance_transform_edt(source == 0) > 9.0
+        assert far.sum() > 10_000
+        assert float(noisy[far].mean()) == pytest.approx(0.1, abs=0.002)
+        assert float(noisy[far].std()) == pytest.approx(0.05, rel=0.05)
+        assert float(noisy[source].mean()) > 0.6  # vessels bright
+    with pytest.raises(ParameterError) as caught:
+        vessel_image(mask, 0, blur=-1.0)
+    assert caught.value.field == "/blur"
+
+
+# The command: every kind, read back -----------------------------------------------------
+
+NETWORK_STEMS = [
+    "0.02-0.05-0",
+    "0.05-0.3-0",
+    "0.08-0.6-0",
+    "0.02-0.05-1",
+    "0.05-0.3-1",
+    "0.08-0.6-1",
+]
+NETWORK_SETTINGS = [(0.02, 0.05), (0.05, 0.3), (0.08, 0.6)]
+DEMO_SEED = 11
+
+EXPECTED_FILES = {
+    "network": {f"network-{stem}.{ext}" for stem in NETWORK_STEMS for ext in ("json", "graphml")},
+    "cells": {f"cells-{pattern}-{k}.csv" for pattern in PATTERNS for k in range(4)},
+    "masks": {f"vessels-{stem}.png" for stem in NETWORK_STEMS[:3]}
+    | {f"tubes-{k}.tif" for k in range(3)},
+    "images": {
+        f"{name}.{ext}"
+        for name in [*(f"vessels-{s}" for s in NETWORK_STEMS[:3]), "tubes-0", "tubes-1", "tubes-2"]
+        for ext in ("npy", "tif")
+    },
+}
+"""What ``all`` writes with the default counts (network 6, cells 12, masks 3, images 3)."""
+
+
+@pytest.fixture(scope="module")
+def demo(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """The default ``all`` of the command, seed 11."""
+    out = tmp_path_factory.mktemp("demo")
+    started = time.perf_counter()
+    completed = run_cli("--out", str(out), "--seed", str(DEMO_SEED))
+    elapsed = time.perf_counter() - started
+    assert completed.returncode == 0, completed.stderr
+    print(f"python -m workers.scenario all: {elapsed:.1f} s")
+    return out
+
+
+def test_all_writes_every_kind_with_a_readme(demo: Path) -> None:
+    assert {path.name for path in demo.iterdir()} == set(EXPECTED_FILES)
+    for kind, names in EXPECTED_FILES.items():
+        assert {path.name for path in (demo / kind).iterdir()} == names | {"README.txt"}
+        readme = " ".join((demo / kind / "README.txt").read_text(encoding="utf-8").split())
+        assert "The data are SYNTHETIC" in readme
+        assert "generated by workers.scenario" in readme
+        assert "describe no real sample" in readme
+        assert "research-use demos only, and not for diagnosis or treatment decisions" in readme
+        assert all(name in readme for name in names)
+        assert f"seed {DEMO_SEED}" in readme
+
+
+def test_graphml_holds_the_graph_of_the_json_request(demo: Path) -> None:
+    limits = limits_of(Settings())
+    for stem in NETWORK_STEMS:
+        given = json.loads((demo / "network" / f"network-{stem}.json").read_text())["input"]
+        path = demo / "network" / f"network-{stem}.graphml"
+        # Reference library networkx: read_graphml.
+        g = nx.read_graphml(path, node_type=int)
+        assert list(g.nodes) == list(range(len(given["nodes"])))
+        assert [[g.nodes[n]["x"], g.nodes[n]["y"]] for n in g.nodes] == given["nodes"]
+        assert [g.nodes[n]["radius"] for n in g.nodes] == given["radius"]
+        assert all(isinstance(g.nodes[0][key], float) for key in ("x", "y", "radius"))
+        edge_set = {frozenset(e) for e in given["edges"]}
+        assert g.number_of_edges() == len(given["edges"])
+        assert {frozenset(e) for e in g.edges} == edge_set
+        # And the service's own GraphML reader (what a multipart upload goes through).
+        arrays = decode_graph(path.read_bytes(), limits)
+        assert np.array_equal(arrays.coordinates, np.array(given["nodes"]))
+        assert arrays.radius is not None
+        assert np.array_equal(arrays.radius, np.array(given["radius"]))
+        assert {frozenset(e) for e in arrays.edges.tolist()} == edge_set
+
+
+def test_cell_tables_read_back_with_the_csv_module(demo: Path) -> None:
+    for i in range(12):
+        pattern = PATTERNS[i % 3]
+        path = demo / "cells" / f"cells-{pattern}-{i // 3}.csv"
+        with path.open(newline="", encoding="utf-8") as table:
+            reader = csv.DictReader(table)  # reference reader: the csv module
+            rows = list(reader)
+        assert reader.fieldnames == ["x", "y", "population"]
+        points, populations = cell_layout(pattern, DEMO_SEED + i)
+        assert [row["population"] for row in rows] == populations.tolist()
+        table_points = np.array([[float(row["x"]), float(row["y"])] for row in rows])
+        assert np.max(np.abs(table_points - points)) <= 5e-4  # 3 decimals
+
+
+def test_masks_read_back_with_pillow_and_tifffile(demo: Path) -> None:
+    limits = limits_of(Settings())
+    for i, stem in enumerate(NETWORK_STEMS[:3]):
+        path = demo / "masks" / f"vessels-{stem}.png"
+        with Image.open(path) as png:  # reference reader: Pillow
+            assert png.format == "PNG" and png.mode == "L"
+            pixels = np.asarray(png)
+        branch, fusion = NETWORK_SETTINGS[i]
+        network = capillary_network(
+            branch_probability=branch, fusion_probability=fusion, seed=DEMO_SEED + i
+        )
+        expected = network_mask(network, spacing=2.0)
+        assert set(np.unique(pixels).tolist()) == {0, 255}
+        assert np.array_equal(pixels == 255, expected)
+        assert np.array_equal(decode_array(path.read_bytes(), limits), pixels)
+    for i in range(3):
+        path = demo / "masks" / f"tubes-{i}.tif"
+        with tifffile.TiffFile(path) as tif:  # reference reader: tifffile
+            assert len(tif.pages) == 48  # one page per plane
+            volume = tif.asarray()
+        assert volume.shape == (48, 64, 64) and volume.dtype == np.uint8
+        assert set(np.unique(volume).tolist()) == {0, 255}
+        assert np.array_equal(volume == 255, tube_volume(DEMO_SEED + i))
+        assert np.array_equal(decode_array(path.read_bytes(), limits), volume)
+
+
+def test_images_read_back_as_npy_and_tiff(demo: Path) -> None:
+    limits = limits_of(Settings())
+    masks = [
+        np.asarray(Image.open(demo / "masks" / f"vessels-{stem}.png")) == 255
+        for stem in NETWORK_STEMS[:3]
+    ]
+    masks += [tifffile.imread(demo / "masks" / f"tubes-{i}.tif") == 255 for i in range(3)]
+    names = [f"vessels-{stem}" for stem in NETWORK_STEMS[:3]] + [f"tubes-{i}" for i in range(3)]
+    for k, (name, mask) in enumerate(zip(names, masks, strict=True)):
+        array = np.load(demo / "images" / f"{name}.npy", allow_pickle=False)
+        assert array.dtype == np.float32 and array.shape == mask.shape
+        assert np.array_equal(tifffile.imread(demo / "images" / f"{name}.tif"), array)
+        noise_seed = DEMO_SEED + k % 3
+        assert np.array_equal(array, vessel_image(mask, noise_seed, blur=1.5, noise=0.05))
+        path = demo / "images" / f"{name}.tif"
+        assert np.array_equal(decode_array(path.read_bytes(), limits), array)
+
+
+def test_same_seed_same_files_and_another_seed_other_files(tmp_path: Path) -> None:
+    # Common practice: seeded generators and writers without timestamps replay byte for byte.
+    runs = {}
+    for label, seed in (("a", "5"), ("b", "5"), ("c", "6")):
+        completed = run_cli("all", "--out", str(tmp_path / label), "--count", "1", "--seed", seed)
+        assert completed.returncode == 0, completed.stderr
+        runs[label] = {
+            path.relative_to(tmp_path / label): path.read_bytes()
+            for path in sorted((tmp_path / label).rglob("*"))
+            if path.is_file()
+        }
+    assert runs["a"] == runs["b"]
+    assert runs["a"].keys() == runs["c"].keys()
+    assert all(runs["a"][name] != runs["c"][name] for name in runs["a"])
+
+
+def test_one_kind_writes_into_the_directory_itself(tmp_path: Path) -> None:
+    completed = run_cli("cells", "--out", str(tmp_path), "--count", "5")
+    assert completed.returncode == 0, completed.stderr
+    assert {path.name for path in tmp_path.iterdir()} == {
+        "cells-mixed-0.csv",
+        "cells-segregated-0.csv",
+        "cells-surrounding-0.csv",
+        "cells-mixed-1.csv",
+        "cells-segregated-1.csv",
+        "README.txt",
+    }
+
+
+def test_usage_errors_answer_without_importing_numpy() -> None:
+    code = (
+        "import runpy, sys\n"
+        "sys.argv = ['workers.scenario', 'trees', '--out', 'x']\n"
+        "try:\n"
+        "    runpy.run_module('workers.scenario', run_name='__main__', alter_sys=True)\n"
+        "except SystemExit as stop:\n"
+        "    print(stop.code, 'numpy' in sys.modules)\n"
+    )
+    completed = subprocess.run(
+        [sys.executable, "-c", code],
+        capture_output=True,
+        text=True,
+        cwd=Path(__file__).resolve().parents[2],
+    )
+    assert completed.stdout.split() == ["2", "False"], completed.stderr

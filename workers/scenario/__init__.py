@@ -1,5 +1,6 @@
-"""Synthetic demo scenarios: generated inputs for lacuna jobs (pure numpy/scipy, no I/O)."""
+"""Synthetic demo scenarios: generated inputs for lacuna jobs (pure numpy/scipy, no I/O).
 
-from workers.scenario.capillaries import CapillaryNetwork, capillary_network, capillary_request
-
-__all__ = ["CapillaryNetwork", "capillary_network", "capillary_request"]
+Modules: ``capillaries`` (capillary networks), ``cells`` (two-population cell layouts),
+``vessel_masks`` (masks and images drawn from networks). Nothing is imported here, so that
+``python -m workers.scenario`` answers a usage error without loading numpy and scipy.
+"""
