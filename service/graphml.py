@@ -5,12 +5,16 @@ optional node attribute ``radius`` and edge attribute ``length`` are read too. N
 follow the order of the nodes in the file. Edges are undirected; repeated and self-loop edges
 are kept here and dropped (with a warning) by the job, as for JSON graphs.
 
-XML with a document type declaration is refused before parsing: entity expansion is how a
-small XML file becomes a huge one, and GraphML needs none.
+A first pass with expat, before networkx parses the file, refuses what GraphML does not need
+or networkx would read silently wrong: a document type declaration or entity (entity expansion
+is how a small XML file becomes a huge one; expat sees them in any encoding), more than one
+graph, repeated node ids, and coordinates declared as anything but numbers.
 """
 
 import math
 import re
+import xml.parsers.expat
+from collections import Counter
 from typing import Any
 
 import networkx as nx
@@ -24,7 +28,8 @@ from workers.spec.pixels import UPLOAD_POINTER
 
 __all__ = ["decode_graph"]
 
-_DECLARATIONS = re.compile(rb"<!DOCTYPE|<!ENTITY", re.IGNORECASE)
+_NUMERIC = {"int", "long", "float", "double"}
+_READ = ("x", "y", "z", "radius", "length")
 
 
 def _refused(message: str) -> RequestInvalid:
@@ -41,6 +46,55 @@ def _number(value: Any, what: str) -> float:
     return number
 
 
+class _Refusal(Exception):
+    """Raised inside expat's handlers to stop the first pass."""
+
+
+def _first_pass(data: bytes) -> None:
+    """Check the file's structure with expat (RequestInvalid at /data for what is refused)."""
+    counts: Counter[str] = Counter()
+    ids: set[str] = set()
+
+    def declaration(*_: Any) -> None:
+        raise _Refusal(
+            "the GraphML file has a DOCTYPE or ENTITY declaration; GraphML needs none, and "
+            "they are refused"
+        )
+
+    def element(name: str, attributes: dict[str, str]) -> None:
+        local = name.rsplit(" ", 1)[-1]
+        counts[local] += 1
+        if local == "node":
+            ids.add(attributes.get("id", ""))
+        if local == "key" and attributes.get("attr.name") in _READ:
+            kind = attributes.get("attr.type", "string")
+            if kind not in _NUMERIC and attributes.get("for", "all") in ("node", "edge", "all"):
+                raise _Refusal(
+                    f"the GraphML key {attributes.get('attr.name')!r} is declared as {kind!r}; "
+                    "x, y, z, radius and length must be int, long, float or double"
+                )
+
+    parser = xml.parsers.expat.ParserCreate(namespace_separator=" ")
+    parser.StartDoctypeDeclHandler = declaration
+    parser.EntityDeclHandler = declaration
+    parser.StartElementHandler = element
+    try:
+        parser.Parse(data, True)
+    except _Refusal as refusal:
+        raise _refused(str(refusal)) from None
+    except xml.parsers.expat.ExpatError as error:
+        raise _refused(f"the file is not GraphML: not well-formed XML ({error})") from None
+    if counts["graph"] != 1:
+        raise _refused(
+            f"the GraphML file has {counts['graph']} graph elements; send one graph per file"
+        )
+    if len(ids) != counts["node"]:
+        raise _refused(
+            f"the GraphML file has {counts['node']} node elements but {len(ids)} distinct node "
+            "ids; every node needs an id of its own"
+        )
+
+
 def decode_graph(data: bytes, limits: Limits) -> GraphArrays:
     """The graph in an uploaded GraphML file, as arrays; RequestInvalid at ``/data`` for files
     that are too large, not GraphML, or lack coordinates."""
@@ -49,11 +103,7 @@ def decode_graph(data: bytes, limits: Limits) -> GraphArrays:
             f"the GraphML file has {len(data)} bytes, above the limit of {limits.max_body_bytes} "
             "for a graph file"
         )
-    if _DECLARATIONS.search(data):
-        raise _refused(
-            "the GraphML file has a DOCTYPE or ENTITY declaration; GraphML needs "
-            "none, and they are refused"
-        )
+    _first_pass(data)
     try:
         graph = nx.parse_graphml(data, force_multigraph=True)
     except Exception as error:  # the XML parser and networkx raise many types on bad files
@@ -77,7 +127,8 @@ def decode_graph(data: bytes, limits: Limits) -> GraphArrays:
     first = graph.nodes[names[0]]
     axes = ["x", "y", "z"] if "z" in first else ["x", "y"]
     coordinates = np.empty((len(names), len(axes)), dtype=np.float64)
-    radius = np.empty(len(names)) if "radius" in first else None
+    has_radius = any("radius" in attributes for _, attributes in graph.nodes(data=True))
+    radius = np.empty(len(names)) if has_radius else None
     for row, name in enumerate(names):
         attributes = graph.nodes[name]
         for column, axis in enumerate(axes):
@@ -102,7 +153,7 @@ def decode_graph(data: bytes, limits: Limits) -> GraphArrays:
     edge_list = list(graph.edges(data=True))
     edges = np.array([(position[u], position[v]) for u, v, _ in edge_list], dtype=np.int64)
     length = None
-    if edge_list and "length" in edge_list[0][2]:
+    if any("length" in attributes for _, _, attributes in edge_list):
         length = np.empty(len(edge_list))
         for row, (u, v, attributes) in enumerate(edge_list):
             if "length" not in attributes:

@@ -133,8 +133,9 @@ def graph_diagram_sets(
         node_count = len(network.coordinates)
         for index, seed in enumerate(filtration.seeds):
             if seed >= node_count:  # a skeleton graph's nodes are known only now
+                has = f"nodes 0 to {node_count - 1}" if node_count else "no nodes"
                 raise ParameterError(
-                    f"seed {seed} is not a node; the graph has nodes 0 to {node_count - 1}",
+                    f"seed {seed} is not a node; the graph has {has}",
                     field=f"/filtration/seeds/{index}",
                 )
         values = geodesic_distances(
@@ -173,7 +174,14 @@ def descriptors_of(
     if shells.radii is not None:
         boundaries = np.asarray(shells.radii, dtype=np.float64)
     else:
-        boundaries = equal_shells(network.coordinates, center, shells.count or 1, shells.max_radius)
+        try:
+            boundaries = equal_shells(
+                network.coordinates, center, shells.count or 1, shells.max_radius
+            )
+        except ParameterError as error:  # the core names its argument; point into the request
+            raise ParameterError(
+                error.message, field=f"/descriptors/shells/{error.field}"
+            ) from None
     per_shell = shell_descriptors(
         network.coordinates,
         network.edges,

@@ -167,12 +167,13 @@ def _graph_persistence(
     if task.filtration is not None:
         sets, convention, unreached = graph_diagram_sets(network, task.filtration)
         several = sets[0].direction is not None
-        _check_pair_count(
-            [s.diagrams for s in sets],
-            payload.max_result_pairs,
-            field="/filtration/directions" if several else "/filtration",
-            advice="ask for fewer directions or lower max_dim",
-        )
+        if "diagrams" in task.output:  # only diagrams the result holds count toward its size
+            _check_pair_count(
+                [s.diagrams for s in sets],
+                payload.max_result_pairs,
+                field="/filtration/directions" if several else "/filtration",
+                advice="ask for fewer directions or lower max_dim",
+            )
         if several:
             named = [(s.direction or [], s.diagrams) for s in sets]
             vectors, layout, layout_id = direction_feature_vectors(task.features, named)

@@ -323,6 +323,91 @@ def test_graphml_with_entity_declarations_is_refused_unparsed(client: FlaskClien
     refused(response, ["/data"], "doctype")
 
 
+GRAPHML_HEAD = (
+    '<?xml version="1.0" encoding="UTF-8"?>'
+    '<graphml xmlns="http://graphml.graphdrawing.org/xmlns">'
+    '<key id="x" for="node" attr.name="x" attr.type="double"/>'
+    '<key id="y" for="node" attr.name="y" attr.type="double"/>'
+    '<key id="r" for="node" attr.name="radius" attr.type="double"/>'
+    '<key id="l" for="edge" attr.name="length" attr.type="double"/>'
+)
+
+
+def node(name: str, x: float, y: float, extra: str = "") -> str:
+    return f'<node id="{name}"><data key="x">{x}</data><data key="y">{y}</data>{extra}</node>'
+
+
+@pytest.mark.parametrize(
+    ("body", "hint"),
+    [
+        # The entity declaration in UTF-16: a byte pattern cannot see it, expat does.
+        (
+            '<?xml version="1.0" encoding="UTF-16"?><!DOCTYPE graphml [<!ENTITY a "7">]>'
+            '<graphml><graph edgedefault="undirected"></graph></graphml>',
+            "doctype",
+        ),
+        (GRAPHML_HEAD + "</graphml>", "0 graph elements"),
+        (
+            GRAPHML_HEAD + '<graph edgedefault="undirected">' + node("a", 0, 0) + "</graph>"
+            '<graph edgedefault="undirected">' + node("b", 0, 0) + "</graph></graphml>",
+            "2 graph elements",
+        ),
+        (
+            GRAPHML_HEAD
+            + '<graph edgedefault="undirected">'
+            + node("a", 0, 0)
+            + node("a", 1, 1)
+            + "</graph></graphml>",
+            "distinct node ids",
+        ),
+        (
+            GRAPHML_HEAD.replace(
+                'attr.name="x" attr.type="double"', 'attr.name="x" attr.type="boolean"'
+            )
+            + '<graph edgedefault="undirected">'
+            + node("a", 1, 0)
+            + "</graph></graphml>",
+            "declared as 'boolean'",
+        ),
+        (
+            GRAPHML_HEAD
+            + '<graph edgedefault="undirected">'
+            + node("a", 0, 0)
+            + node("b", 1, 0, '<data key="r">2</data>')
+            + "</graph></graphml>",
+            "node 'a' has no radius",
+        ),
+        (
+            GRAPHML_HEAD
+            + '<graph edgedefault="undirected">'
+            + node("a", 0, 0)
+            + node("b", 1, 0)
+            + node("c", 2, 0)
+            + '<edge source="a" target="b"/>'
+            '<edge source="b" target="c"><data key="l">1</data></edge></graph></graphml>',
+            "no length attribute",
+        ),
+    ],
+    ids=[
+        "utf16-entity",
+        "no-graph",
+        "two-graphs",
+        "repeated-id",
+        "boolean-x",
+        "some-radius",
+        "some-length",
+    ],
+)
+def test_graphml_that_would_be_read_wrong_is_refused(
+    client: FlaskClient, body: str, hint: str
+) -> None:
+    encoding = "utf-16" if 'encoding="UTF-16"' in body else "utf-8"
+    response = upload(
+        client, '{"input": {"type": "graph"}, "output": ["descriptors"]}', body.encode(encoding)
+    )
+    refused(response, ["/data"], hint)
+
+
 def test_graphml_that_is_not_xml_is_422(client: FlaskClient) -> None:
     response = upload(
         client, '{"input": {"type": "graph"}, "output": ["descriptors"]}', b"\x93NUMPY not a graph"
@@ -488,6 +573,42 @@ def _graph(**fields: Any) -> dict[str, Any]:
             ["/filtration/type"],
             "a mask takes",
         ),
+        (
+            {"input": _graph(edges=[[0, 2**63]]), "output": ["descriptors"]},
+            ["/input/edges/0/1"],
+            "less than",
+        ),
+        (
+            {
+                "input": {"type": "mask", "values": [[0, 1], [1, 1]], "skeletonize": "yes"},
+                "output": ["descriptors"],
+            },
+            ["/input/skeletonize"],
+            "valid boolean",
+        ),
+        (
+            {
+                "input": {"type": "mask", "values": [[1, 1], [1, 1]], "skeletonize": True},
+                "output": ["descriptors"],
+            },
+            ["/input/values"],
+            "no background",
+        ),
+        (
+            {"input": _graph(), "filtration": {"type": "height", "directions": 0}},
+            ["/filtration/directions"],
+            "greater than or equal to 1",
+        ),
+        (
+            {"input": _graph(), "filtration": {"type": "height", "directions": True}},
+            ["/filtration/directions"],
+            "valid integer",
+        ),
+        (
+            {"input": _graph(), "filtration": {"type": "height", "directions": []}},
+            ["/filtration/directions"],
+            "at least 1",
+        ),
     ],
     ids=[
         "edge-out-of-range",
@@ -509,6 +630,12 @@ def _graph(**fields: Any) -> dict[str, Any]:
         "count-of-directions-in-3d",
         "attribute-on-skeleton",
         "geodesic-on-pixels",
+        "edge-index-beyond-int64",
+        "skeletonize-as-string",
+        "skeleton-without-background",
+        "zero-directions",
+        "boolean-directions",
+        "empty-directions",
     ],
 )
 def test_bad_graph_input_is_422_naming_the_field(
@@ -523,6 +650,27 @@ def test_nan_coordinate_is_422_at_the_node(client: FlaskClient) -> None:
     problem = problem_of(response, 422)
     assert problem["errors"][0]["pointer"].startswith("/input/nodes/1/0")
     assert "finite" in said(problem) or "nan" in said(problem)
+
+
+@pytest.mark.parametrize(
+    ("nodes", "shells", "pointer"),
+    [
+        ([[0, 0], [3, 4]], {"center": [0, 0], "count": 1000, "max_radius": 5e-324}, "count"),
+        ([[0, 0]], {"center": [0, 0], "count": 3}, "max_radius"),
+    ],
+)
+def test_shells_the_data_cannot_take_fail_naming_the_field(
+    client: FlaskClient, nodes: list[list[float]], shells: dict[str, Any], pointer: str
+) -> None:
+    # Whether equal shells fit is known only from the node distances, on the worker.
+    body = {
+        "input": _graph(nodes=nodes, edges=[]),
+        "output": ["descriptors"],
+        "descriptors": {"shells": shells},
+    }
+    status = post(client, JOBS, body, headers=WAIT).get_json()
+    assert status["status"] == "failed"
+    assert status["problem"]["errors"][0]["pointer"] == f"/descriptors/shells/{pointer}"
 
 
 def test_seed_beyond_a_skeleton_fails_the_job_naming_the_seed(client: FlaskClient) -> None:

@@ -1,16 +1,20 @@
 """How a job builds its filtration."""
 
 import math
-from typing import Annotated, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
 
 from workers.spec.numbers import Coordinate, FiniteFloat
 
 MAX_NODE_VALUE = 1e100
 """Largest absolute value of an attribute filtration: the bound of diagram values."""
 
-NodeIndex = Annotated[int, Field(strict=True, ge=0, description="Position of a node.")]
+NodeIndex = Annotated[
+    int, Field(strict=True, ge=0, lt=2**31, description="Position of a node (0-based).")
+]
+"""Below 2**31: no graph holds more nodes (max_graph_nodes), and every index fits int64 and a
+float64 row exactly."""
 
 
 class Subsample(BaseModel):
@@ -101,6 +105,21 @@ MAX_DIRECTIONS = 256
 """Most directions one height filtration sweeps."""
 
 
+def _directions_kind(value: Any) -> str:
+    """Which form ``directions`` takes: a count (an integer) or a list of vectors (anything
+    else, so that its error says what a list needs)."""
+    return "count" if isinstance(value, int) else "vectors"
+
+
+Directions = Annotated[
+    Annotated[list[Vector], Field(min_length=1, max_length=MAX_DIRECTIONS), Tag("vectors")]
+    | Annotated[int, Field(strict=True, ge=1, le=MAX_DIRECTIONS), Tag("count")],
+    Discriminator(_directions_kind),
+]
+"""A list of direction vectors, or (2D) a count of evenly spaced directions. Told apart
+before validation, so an error names the field itself, not one guess per form."""
+
+
 class HeightFiltration(BaseModel):
     """A sweep by a line (2D) or plane (3D): foreground pixels, or graph nodes, enter at the
     projection of their centre on a unit direction (a graph edge with its later end). Give one
@@ -113,11 +132,7 @@ class HeightFiltration(BaseModel):
 
     type: Literal["height"]
     direction: Vector | None = None
-    directions: (
-        Annotated[list[Vector], Field(min_length=1, max_length=MAX_DIRECTIONS)]
-        | Annotated[int, Field(strict=True, ge=1, le=MAX_DIRECTIONS)]
-        | None
-    ) = None
+    directions: Directions | None = None
     max_dim: ArrayMaxDim = None
 
     def unit_directions(self) -> list[list[float]]:

@@ -126,6 +126,7 @@ class MaskInput(BaseModel):
     skeletonize: Annotated[
         bool,
         Field(
+            strict=True,
             description="Work on the mask's skeleton graph instead of its pixels: the mask is "
             "thinned to one-pixel-wide centre lines (scikit-image skeletonize), skeleton "
             "pixels become nodes at their physical centres, touching pixels are joined by "

@@ -189,6 +189,14 @@ def _value_errors(array: np.ndarray, array_input: ArrayInput, where: str) -> lis
                     "background and positive integers for foreground (0/1, 0/255 or labels)",
                 )
             ]
+    if isinstance(array_input, MaskInput) and array_input.skeletonize and array.all():
+        return [
+            FieldError(
+                pointer=where,
+                message="the mask has no background pixel (0); a skeleton's radii are distances "
+                "to the background, so a skeletonized mask needs some",
+            )
+        ]
     return []
 
 
