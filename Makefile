@@ -8,7 +8,7 @@ HASH   := $(shell cat pyproject.toml docker/constraints.txt | cksum | cut -d' ' 
 STAMP  := $(VENV)/.installed-$(HASH)
 DEV    := $(VENV)/.installed-dev-$(HASH)
 
-.PHONY: install install-dev serve test lint bench openapi lock clean
+.PHONY: install install-dev browser serve test lint bench openapi lock clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -36,16 +36,28 @@ lint: install-dev
 	$(BIN)/ruff check service workers tests
 	$(BIN)/mypy
 
+# Headless Chromium for the job page test, from Debian's packages where apt-get is there and
+# we may use it; elsewhere that one test is skipped and says why.
+browser:
+	@if command -v chromium >/dev/null; then :; \
+	elif command -v apt-get >/dev/null && [ "$$(id -u)" = 0 ]; then \
+		DEBIAN_FRONTEND=noninteractive apt-get install -y -q chromium chromium-driver >/dev/null \
+		|| { apt-get update -q >/dev/null && DEBIAN_FRONTEND=noninteractive \
+		     apt-get install -y -q chromium chromium-driver >/dev/null; }; \
+	else echo "no chromium and no apt-get as root: the browser test will be skipped"; fi
+
 # Redis: LACUNA_REDIS_URL if set, else 127.0.0.1:6379, else tests/conftest.py starts a
 # redis-server on a free port for the session and stops it afterwards.
-test: lint
+test: lint browser
 	$(BIN)/python -m pytest
 
 bench: install-dev
 	$(BIN)/python -m tests.benchmarks.run
 
+# The committed OpenAPI document and the README's example picture, both generated.
 openapi: install-dev
 	$(BIN)/lacuna openapi --out openapi/openapi.json
+	$(BIN)/python -m workers.scenario.picture --out openapi/examples/diagram.svg
 
 # Refresh the pinned versions deployments install (docker/constraints.txt).
 lock: install-dev

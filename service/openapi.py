@@ -23,6 +23,7 @@ from workers.spec import (
     Problem,
 )
 from workers.spec.features import FeatureSpecBody
+from workers.spec.plots import PlotQuery
 
 __all__ = ["openapi_document", "openapi_text"]
 
@@ -159,6 +160,29 @@ _UPLOAD = {
 }
 """The one way binary inputs arrive: a JSON ``request`` part and a ``data`` file part."""
 
+
+def _query_parameters(model: type[BaseModel]) -> list[dict[str, Any]]:
+    """The fields of a query model as OpenAPI query parameters (the model is their source)."""
+    schema = model.model_json_schema()
+    parameters = []
+    for name, field in schema["properties"].items():
+        field = dict(field)
+        field.pop("title", None)
+        description = field.pop("description", None)
+        parameter = {"name": name, "in": "query", "required": False, "schema": field}
+        if description:
+            parameter["description"] = description
+        parameters.append(parameter)
+    return parameters
+
+
+_HTML_PAGE = {
+    "text/html": {
+        "schema": {"type": "string"},
+        "example": "<!doctype html>...",
+    }
+}
+
 _UNAVAILABLE = _problem("Redis cannot be reached; retry after the Retry-After header.")
 _NOT_FOUND = _problem("No such job for this owner, or it has expired.")
 
@@ -204,10 +228,16 @@ def _paths() -> dict[str, Any]:
             "parameters": [_JOB_ID],
             "get": {
                 "summary": "State and timestamps of a job",
+                "description": "With Accept: text/html (a browser) the answer is a small "
+                "self-contained page: status, request summary, pictures of the diagrams, the "
+                "feature vector layout, download links and the research-use caution.",
                 "operationId": "getJob",
                 "parameters": [_PREFER_WAIT],
                 "responses": {
-                    "200": {"description": "The job.", "content": _json("JobStatus")},
+                    "200": {
+                        "description": "The job.",
+                        "content": {**_json("JobStatus"), **_HTML_PAGE},
+                    },
                     "404": _NOT_FOUND,
                     "503": _UNAVAILABLE,
                 },
@@ -240,6 +270,41 @@ def _paths() -> dict[str, Any]:
                     "404": _NOT_FOUND,
                     "409": _problem("The job has not succeeded (yet)."),
                     "503": _UNAVAILABLE,
+                },
+            },
+        },
+        "/v1/jobs/{job_id}/plot": {
+            "parameters": [_JOB_ID],
+            "get": {
+                "summary": "A picture of a succeeded job",
+                "description": "Drawn on a worker within max_wait_s: the persistence diagram "
+                "(the diagonal, a dashed line with an infinity tick for classes that never die, "
+                "axis labels with the result's units, one colour per dimension and a legend), "
+                "the barcode, or a persistence image the job computed as a feature. In SVG each "
+                "point is a group with id point-<dim>-<k> (bars bar-<dim>-<k>), up to 5000; "
+                "above that, one group per dimension. Query error pointers point into the query "
+                "taken as an object (`/dim` is `?dim=`).",
+                "operationId": "getPlot",
+                "parameters": _query_parameters(PlotQuery),
+                "responses": {
+                    "200": {
+                        "description": "The picture.",
+                        "content": {
+                            "image/svg+xml": {"schema": {"type": "string"}},
+                            "image/png": {
+                                "schema": {"type": "string", "contentMediaType": "image/png"}
+                            },
+                        },
+                    },
+                    "404": _NOT_FOUND,
+                    "409": _problem("The job has not succeeded (yet)."),
+                    "422": _problem(
+                        "A query parameter is invalid, or the job has nothing of that kind to "
+                        "draw (`errors` names the parameter)."
+                    ),
+                    "503": _problem(
+                        "Redis cannot be reached, or the picture was not drawn in time."
+                    ),
                 },
             },
         },

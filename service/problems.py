@@ -24,6 +24,7 @@ from service.errors import (
 )
 from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
 from workers.spec.features import FeatureSpecBody
+from workers.spec.plots import PlotQuery
 from workers.spec.problems import PROBLEM_TYPE
 from workers.spec.tags import discriminated_members, members_by_tag, strip_optional
 
@@ -45,7 +46,7 @@ _KINDS: dict[type[ServiceError], tuple[int, str, str]] = {
 }
 
 _REQUEST_MODELS: dict[str, type[BaseModel]] = {
-    model.__name__: model for model in (JobRequest, DistanceRequest, FeatureSpecBody)
+    model.__name__: model for model in (JobRequest, DistanceRequest, FeatureSpecBody, PlotQuery)
 }
 """Models whose ValidationError is the client's fault (a 422); any other is a bug (a 500)."""
 

@@ -273,6 +273,15 @@ class JobQueue:
         if ended in (JobState.succeeded, JobState.failed):  # it ended before the request
             raise JobAlreadyEnded(job.id, ended.value)
 
+    def payload_of(self, job: Job) -> JobPayload:
+        """The payload the job was queued with (what it computes, with resolved specs)."""
+        return JobPayload.model_validate(job.args[0])
+
+    def discard(self, job: Job) -> None:
+        """Delete a job that has served its purpose (a picture once sent), and its input."""
+        job.delete()
+        self.redis.delete(input_key(job.id), cancel_key(job.id))
+
     def ready_workers(self) -> int:
         """Workers registered on the queue; NotReady without Redis or without a worker."""
         try:

@@ -9,15 +9,23 @@ from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, Unsupporte
 
 from service.auth import owner_of
 from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
-from service.errors import BodyNotJson, FeatureSpecNotFound, IdempotencyKeyInvalid, RequestInvalid
+from service.errors import (
+    BodyNotJson,
+    FeatureSpecNotFound,
+    IdempotencyKeyInvalid,
+    RequestInvalid,
+)
 from service.extension import ServiceState
 from service.graphml import decode_graph
+from service.pages import job_page, wants_html
+from service.pictures import draw
 from service.queue import Job
 from service.submissions import distance_submission, job_submission
 from service.uploads import decode_array, multipart_parts
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
 from workers.spec.inputs import GraphInput, ImageInput, MaskInput
+from workers.spec.plots import PlotQuery
 from workers.spec.requests import InputData, length_error
 
 __all__ = ["v1", "health"]
@@ -164,9 +172,11 @@ def register_feature_spec() -> tuple[Response, int, dict[str, str]]:
         raise RequestInvalid([error for error in errors if error is not None])
     spec_id = _state().feature_specs.register(spec)
     answer = feature_spec_answer(spec)
-    return jsonify(answer.model_dump(mode="json")), 200, {
-        "Location": f"/v1/feature-specs/{spec_id}"
-    }
+    return (
+        jsonify(answer.model_dump(mode="json")),
+        200,
+        {"Location": f"/v1/feature-specs/{spec_id}"},
+    )
 
 
 @v1.get("/feature-specs/<spec_id>")
@@ -203,11 +213,16 @@ def submit_distances() -> tuple[Response, int, dict[str, str]]:
 
 @v1.get("/jobs/<job_id>")
 def job_status(job_id: str) -> Response:
-    """State and timestamps of a job; ``Prefer: wait=N`` waits for it to end first."""
-    queue = _state().queue
-    job = queue.find(job_id, owner_of(request))
-    queue.wait(job, _requested_wait())
-    return jsonify(queue.status(job).model_dump(mode="json"))
+    """State and timestamps of a job; ``Prefer: wait=N`` waits for it to end first.
+
+    ``Accept: text/html`` (a browser) gets a page with the pictures instead."""
+    state = _state()
+    owner = owner_of(request)
+    job = state.queue.find(job_id, owner)
+    state.queue.wait(job, _requested_wait())
+    if wants_html(request):
+        return Response(job_page(state, job, owner), mimetype="text/html")
+    return jsonify(state.queue.status(job).model_dump(mode="json"))
 
 
 @v1.get("/jobs/<job_id>/result")
@@ -218,6 +233,16 @@ def job_result(job_id: str) -> Response:
     queue = _state().queue
     job = queue.find(job_id, owner_of(request))
     return _result_response(queue.wait(job, _requested_wait()) or queue.result(job))
+
+
+@v1.get("/jobs/<job_id>/plot")
+def job_plot(job_id: str) -> Response:
+    """A picture of a succeeded job: its diagram, barcode or persistence image, SVG or PNG."""
+    query = PlotQuery.model_validate(request.args.to_dict())
+    state = _state()
+    owner = owner_of(request)
+    picture, media_type = draw(state, state.queue.find(job_id, owner), query, owner)
+    return Response(picture, mimetype=media_type)
 
 
 @v1.delete("/jobs/<job_id>")

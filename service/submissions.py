@@ -20,13 +20,15 @@ from workers.spec import (
 )
 from workers.spec.arrays import diagram_rows
 from workers.spec.distances import DEFAULT_DIRECTIONS, DIAGRAM_METRICS
+from workers.spec.features import PersistenceImageSpec
 from workers.spec.graphs import GraphArrays, graph_rows, layout_of
 from workers.spec.inputs import GraphInput, ImageInput, MaskInput
-from workers.spec.jobs import StoredInput, StoredType
+from workers.spec.jobs import JobPayload, StoredInput, StoredType
+from workers.spec.plots import PlotQuery, PlotTask
 from workers.spec.requests import InputData
 from workers.spec.results import Diagram
 
-__all__ = ["Submission", "job_submission", "distance_submission"]
+__all__ = ["Submission", "job_submission", "distance_submission", "plot_submission"]
 
 
 @dataclass(frozen=True)
@@ -36,7 +38,7 @@ class Submission:
     array: np.ndarray
     input_type: StoredType
     units: str | None
-    task: PersistenceTask | DistanceTask
+    task: PersistenceTask | DistanceTask | PlotTask
     described: dict[str, Any]
     description: str
 
@@ -241,4 +243,121 @@ def stored_input(submission: Submission, sha256: str) -> StoredInput:
         shape=list(submission.array.shape),
         sha256=sha256,
         units=submission.units,
+    )
+
+
+def plot_submission(
+    query: PlotQuery, result: dict[str, Any], payload: JobPayload, job_id: str
+) -> Submission:
+    """A plot job drawing what ``query`` asks of the succeeded job ``job_id`` (its result and
+    payload); RequestInvalid pointing into the query when the job has nothing of that kind."""
+    task = PlotTask(
+        type="plot",
+        kind=query.kind,
+        format=query.format,
+        width=query.width,
+        height=query.height,
+        units=result.get("units"),
+        value_name=str(result.get("value_convention", "value")).replace("_", " "),
+    )
+    described = {"plot": query.model_dump(mode="json"), "job_id": job_id}
+    if query.kind == "image":
+        values, dim, spec = _persistence_image(query, result, payload)
+        return Submission(
+            array=values,
+            input_type="grid",
+            units=task.units,
+            task=task.model_copy(
+                update={
+                    "dims": [dim],
+                    "birth_range": spec.birth_range,
+                    "persistence_range": spec.persistence_range,
+                }
+            ),
+            described=described,
+            description=f"persistence image of job {job_id}",
+        )
+    diagrams = _chosen_diagrams(query, result)
+    rows = diagram_rows([(item["dim"], item["pairs"]) for item in diagrams])
+    return Submission(
+        array=rows,
+        input_type="diagrams",
+        units=task.units,
+        task=task.model_copy(update={"dims": [item["dim"] for item in diagrams]}),
+        described=described,
+        description=f"{query.kind} of job {job_id}",
+    )
+
+
+def _chosen_diagrams(query: PlotQuery, result: dict[str, Any]) -> list[dict[str, Any]]:
+    """The diagrams of the result that ``query`` names (direction, then dimension)."""
+    sets = result.get("per_direction") or []
+    if sets and query.direction is None:
+        raise RequestInvalid(
+            [
+                FieldError(
+                    pointer="/direction",
+                    message=f"the job has one diagram set per direction; choose one of "
+                    f"0..{len(sets) - 1}",
+                )
+            ]
+        )
+    if query.direction is not None and query.direction >= len(sets):
+        have = f"0..{len(sets) - 1}" if sets else "none: the job has one diagram set"
+        raise RequestInvalid(
+            [FieldError(pointer="/direction", message=f"no direction {query.direction} ({have})")]
+        )
+    diagrams: list[dict[str, Any]] = (
+        sets[query.direction]["diagrams"]
+        if query.direction is not None
+        else result.get("diagrams") or []
+    )
+    if not diagrams:
+        raise RequestInvalid(
+            [FieldError(pointer="/kind", message="the job computed no diagrams to draw")]
+        )
+    if query.dim is None:
+        return diagrams
+    chosen = [item for item in diagrams if item["dim"] == query.dim]
+    if not chosen:
+        dims = [item["dim"] for item in diagrams]
+        raise RequestInvalid(
+            [
+                FieldError(
+                    pointer="/dim",
+                    message=f"the job has no diagram of dimension {query.dim} (it has {dims})",
+                )
+            ]
+        )
+    return chosen
+
+
+def _persistence_image(
+    query: PlotQuery, result: dict[str, Any], payload: JobPayload
+) -> tuple[np.ndarray, int, PersistenceImageSpec]:
+    """The (birth, persistence) grid of the first persistence image ``query`` matches, its
+    dimension and its spec."""
+    specs = {
+        spec.spec_id: spec
+        for spec in getattr(payload.task, "features", [])
+        if isinstance(spec, PersistenceImageSpec)
+    }
+    for vector in result.get("vectors") or []:
+        spec = specs.get(vector["spec_id"])
+        if (
+            spec is not None
+            and query.dim in (None, vector["dim"])
+            and query.direction in (None, vector.get("direction"))
+        ):
+            values = np.asarray(vector["values"], dtype=np.float64).reshape(vector["shape"])
+            return values, vector["dim"], spec
+    which = "" if query.dim is None else f" of dimension {query.dim}"
+    raise RequestInvalid(
+        [
+            FieldError(
+                pointer="/kind",
+                message=f"the job computed no persistence image{which}; ask for one among "
+                "its features",
+            )
+        ]
     )

@@ -22,6 +22,7 @@ from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.features import direction_feature_vectors, feature_vectors
 from workers.graphs import descriptors_of, graph_diagram_sets, graph_output, network_of
 from workers.pairwise import distance_matrix, usable_cores
+from workers.pictures import picture
 from workers.pixel_diagrams import pixel_diagram_sets
 from workers.spec import (
     SCHEMA_VERSION,
@@ -40,6 +41,7 @@ from workers.spec.arrays import array_sha256, diagrams_of_rows, from_npy_bytes
 from workers.spec.features import vector_length
 from workers.spec.filtrations import ArrayFiltration
 from workers.spec.jobs import cancel_key, input_key
+from workers.spec.plots import PlotTask
 from workers.spec.results import DirectionDiagrams, ValueConvention, package_versions
 
 __all__ = ["execute", "execute_bytes", "run", "compute_process"]
@@ -76,6 +78,8 @@ def execute(
         array = array.astype(np.float64, copy=False)
     if isinstance(payload.task, DistanceTask):
         return _distances(payload, payload.task, array, job_id, report)
+    if isinstance(payload.task, PlotTask):
+        return picture(payload.task, array).model_dump(mode="json")
     return _persistence(payload, payload.task, array, job_id)
 
 
@@ -361,6 +365,8 @@ def _runs_inline(payload: JobPayload) -> bool:
         return math.prod(payload.input.shape) <= INLINE_MAX_PIXELS
     if isinstance(task, DistanceTask):
         return task.count <= 8 and rows <= 2000
+    if isinstance(task, PlotTask):
+        return False  # matplotlib stays out of the worker process, in the compute child
     if task.filtration is None:
         values = sum(vector_length(spec) for spec in task.features)
         return rows <= INLINE_MAX_PAIRS and values <= INLINE_MAX_VALUES

@@ -832,3 +832,12 @@ def test_usage_errors_answer_without_importing_numpy() -> None:
         cwd=Path(__file__).resolve().parents[2],
     )
     assert completed.stdout.split() == ["2", "False"], completed.stderr
+
+
+def test_readme_picture_is_current() -> None:
+    # Like openapi/openapi.json, the committed picture is generated (make openapi); this fails
+    # when the drawing, the engine or the demo data change without regenerating it.
+    from workers.scenario.picture import readme_picture
+
+    committed = Path(__file__).resolve().parents[2] / "openapi" / "examples" / "diagram.svg"
+    assert committed.read_bytes() == readme_picture(), "run make openapi"

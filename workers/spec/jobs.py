@@ -11,6 +11,7 @@ from workers.spec.features import FeatureSpec
 from workers.spec.filtrations import Filtration
 from workers.spec.graphs import GraphLayout
 from workers.spec.networks import DescriptorOptions, OutputKind
+from workers.spec.plots import PlotTask
 from workers.spec.problems import Problem
 
 __all__ = [
@@ -81,7 +82,9 @@ class JobStatus(BaseModel):
     links: dict[str, str]
 
 
-StoredType = Literal["points", "diagrams", "diagram_set", "vectors", "image", "mask", "graph"]
+StoredType = Literal[
+    "points", "diagrams", "diagram_set", "vectors", "image", "mask", "graph", "grid"
+]
 
 
 class StoredInput(BaseModel):
@@ -90,7 +93,8 @@ class StoredInput(BaseModel):
     Arrays by type: ``points`` (n, d) coordinates; ``diagrams`` and ``diagram_set`` (k, 3)
     rows of (dimension or diagram index, birth, death with inf for never); ``vectors`` (N, L);
     ``image`` and ``mask`` 2D or 3D arrays in the dtype they arrived in; ``graph`` (n + m,
-    d + 1) rows of nodes, then edges (``workers.spec.graphs.graph_rows``).
+    d + 1) rows of nodes, then edges (``workers.spec.graphs.graph_rows``); ``grid`` a 2D
+    array of values to draw (a persistence image).
     """
 
     model_config = ConfigDict(extra="forbid")
@@ -142,7 +146,7 @@ class DistanceTask(BaseModel):
     count: Annotated[int, Field(ge=1)]
 
 
-Task = Annotated[PersistenceTask | DistanceTask, Field(discriminator="type")]
+Task = Annotated[PersistenceTask | DistanceTask | PlotTask, Field(discriminator="type")]
 
 
 DEFAULT_MAX_RESULT_PAIRS = 6_000_000

@@ -1,0 +1,87 @@
+"""The job page in a real headless Chromium (Debian's chromium package) against a real
+``lacuna serve``: the page loads, names the job and the research-use caution, and shows the
+pictures (pixels of the H0 and H1 colours in the screenshot, which is kept as a test artifact).
+"""
+
+import io
+import shutil
+import subprocess
+from collections.abc import Iterator
+from pathlib import Path
+
+import numpy as np
+import pytest
+from PIL import Image
+
+from service.client import Client
+from tests.conftest import E2E_DB, with_database
+from tests.e2e.stack import running_stack
+from tests.synthetic import noisy_circle
+from workers.core.drawing import COLOURS
+
+pytestmark = pytest.mark.e2e
+
+CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
+# Flags for a sandboxed root session on a closed network (common practice for CI machines).
+FLAGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--disable-quic",
+    "--no-first-run",
+    "--hide-scrollbars",
+]
+
+
+@pytest.fixture(scope="module")
+def base(redis_server: str) -> Iterator[str]:
+    with running_stack(with_database(redis_server, E2E_DB)) as url:
+        yield url
+
+
+def chromium(tmp_path: Path, *args: str) -> subprocess.CompletedProcess[str]:
+    assert CHROMIUM is not None
+    profile = tmp_path / "profile"
+    return subprocess.run(
+        [CHROMIUM, *FLAGS, f"--user-data-dir={profile}", *args],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+
+
+def pixels_near(picture: Image.Image, colour: str, tolerance: int = 12) -> int:
+    rgb = np.asarray(picture.convert("RGB"), dtype=np.int64)
+    target = np.array([int(colour[i : i + 2], 16) for i in (1, 3, 5)])
+    return int((np.abs(rgb - target).max(axis=2) <= tolerance).sum())
+
+
+@pytest.mark.skipif(
+    CHROMIUM is None,
+    reason="chromium is not installed (make test installs it where apt-get is available as root)",
+)
+def test_job_page_loads_and_shows_the_plots(base: str, tmp_path: Path) -> None:
+    client = Client(base)
+    job = client.submit_points(noisy_circle(40, seed=2), {"type": "rips", "max_dim": 1}, units="um")
+    client.wait(job, 60)
+    url = f"{base}/v1/jobs/{job}"
+
+    dom = chromium(tmp_path, "--dump-dom", url)
+    assert dom.returncode == 0, dom.stderr[-2000:]
+    assert f"lacuna job <code>{job}</code>" in dom.stdout
+    assert "not for diagnosis or treatment decisions" in dom.stdout
+    assert 'id="plot-diagram"' in dom.stdout and 'id="plot-barcode"' in dom.stdout
+
+    shot = tmp_path / "job-page.png"
+    done = chromium(tmp_path, f"--screenshot={shot}", "--window-size=1280,2000", url)
+    assert done.returncode == 0 and shot.exists(), done.stderr[-2000:]
+    picture = Image.open(io.BytesIO(shot.read_bytes()))
+    assert picture.size == (1280, 2000)
+    # The pictures were drawn: the page's own colours are only grey and pale tints, so pixels
+    # of the H0 (blue) and H1 (vermillion) colours come from the diagram and the barcode.
+    assert pixels_near(picture, COLOURS[0]) > 200
+    assert pixels_near(picture, COLOURS[1]) > 20
+    print(f"screenshot: {shot}")

@@ -1,0 +1,256 @@
+"""Pictures over HTTP: GET /v1/jobs/{id}/plot draws on a real worker, and GET /v1/jobs/{id}
+with Accept: text/html answers the job page.
+
+SVG answers are parsed as XML (xml.etree, on our own output) and their marker groups counted
+against the diagram the job returned; PNG answers are decoded with Pillow (reference decoder).
+"""
+
+import base64
+import io
+import re
+import xml.etree.ElementTree as ElementTree
+from collections.abc import Iterator
+from html.parser import HTMLParser
+from typing import Any
+
+import pytest
+from flask.testing import FlaskClient
+from PIL import Image
+from redis import Redis
+
+from service.settings import Settings
+from tests.conftest import with_database
+from tests.service.conftest import start_worker, stop_worker
+from tests.service.test_errors import app_with, call, fresh_queue, post, problem_of
+from tests.synthetic import noisy_circle
+
+JOBS = "/v1/jobs"
+WAIT = {"Prefer": "wait=30"}
+PICTURE_DB = 11  # shared with test_graphs_api, one module after the other
+IMAGE_FEATURE = {
+    "type": "persistence_image",
+    "dim": 1,
+    "birth_range": [0.0, 1.0],
+    "persistence_range": [0.0, 1.0],
+    "resolution": [6, 4],
+    "sigma": 0.1,
+    "weight": {"type": "power", "exponent": 1.0},
+}
+
+
+@pytest.fixture(scope="module")
+def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
+    url = with_database(redis_server, PICTURE_DB)
+    Redis.from_url(url).flushdb()
+    settings = Settings(redis_url=url, queue=fresh_queue())
+    worker = start_worker(url, settings.queue)
+    app = app_with(redis_url=url, queue=settings.queue)
+    yield app.test_client(), settings
+    stop_worker(worker)
+
+
+@pytest.fixture(scope="module")
+def client(served: tuple[FlaskClient, Settings]) -> FlaskClient:
+    return served[0]
+
+
+@pytest.fixture(scope="module")
+def circle_job(client: FlaskClient) -> tuple[str, dict[str, Any]]:
+    """A noisy circle's H0 and H1 with a persistence image of H1: its id and result."""
+    body = {
+        "input": {"type": "points", "points": noisy_circle(40, seed=2).tolist(), "units": "um"},
+        "filtration": {"type": "rips", "max_dim": 1},
+        "features": [IMAGE_FEATURE],
+    }
+    answer = post(client, JOBS, body, headers=WAIT)
+    assert answer.status_code == 200, answer.get_data(as_text=True)
+    result: dict[str, Any] = answer.get_json()
+    return result["job_id"], result
+
+
+def svg_ids(svg: bytes) -> list[str]:
+    """The ids of every element of an SVG document."""
+    root = ElementTree.fromstring(svg)
+    return [element.get("id", "") for element in root.iter()]
+
+
+def plot(client: FlaskClient, job_id: str, query: str) -> Any:
+    return call(client, "GET", f"{JOBS}/{job_id}/plot?{query}")
+
+
+def test_diagram_svg_has_one_marker_group_per_point(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    job_id, result = circle_job
+    answer = plot(client, job_id, "kind=diagram")
+    assert answer.status_code == 200 and answer.mimetype == "image/svg+xml"
+    ids = svg_ids(answer.data)
+    for diagram in result["diagrams"]:
+        points = [i for i in ids if i.startswith(f"point-{diagram['dim']}-")]
+        assert len(points) == len(diagram["pairs"]) > 0
+    text = answer.get_data(as_text=True)
+    assert "birth (um)" in text and "death (um)" in text  # axis labels with units
+    assert "H0" in text and "H1" in text  # the legend
+
+
+def test_one_dimension_only(client: FlaskClient, circle_job: tuple[str, dict[str, Any]]) -> None:
+    job_id, result = circle_job
+    ids = svg_ids(plot(client, job_id, "kind=diagram&dim=1").data)
+    h1 = [d for d in result["diagrams"] if d["dim"] == 1][0]
+    assert len([i for i in ids if i.startswith("point-")]) == len(h1["pairs"])
+
+
+def test_barcode_svg_has_one_bar_per_pair(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    job_id, result = circle_job
+    ids = svg_ids(plot(client, job_id, "kind=barcode").data)
+    total = sum(len(d["pairs"]) for d in result["diagrams"])
+    assert len([i for i in ids if i.startswith("bar-")]) == total
+
+
+@pytest.mark.parametrize(
+    ("query", "size"),
+    [
+        ("kind=diagram&format=png&width=300&height=200", (300, 200)),
+        ("kind=image&format=png&width=256&height=256", (256, 256)),
+    ],
+)
+def test_png_decodes_at_the_requested_size(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]], query: str, size: tuple[int, int]
+) -> None:
+    answer = plot(client, circle_job[0], query)
+    assert answer.status_code == 200 and answer.mimetype == "image/png"
+    picture = Image.open(io.BytesIO(answer.data))
+    picture.load()  # decodes every pixel: a truncated file fails here
+    assert picture.format == "PNG" and picture.size == size
+
+
+def test_plot_jobs_are_deleted_once_drawn(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    queue = client.application.extensions["lacuna"].queue
+    before = sum(1 for _ in queue.redis.scan_iter("rq:job:*"))
+    assert plot(client, circle_job[0], "kind=barcode").status_code == 200
+    assert sum(1 for _ in queue.redis.scan_iter("rq:job:*")) == before
+
+
+@pytest.mark.parametrize(
+    ("query", "pointer"),
+    [
+        ("kind=histogram", "/kind"),
+        ("dim=2", "/dim"),
+        ("dim=-1", "/dim"),
+        ("format=gif", "/format"),
+        ("width=10", "/width"),
+        ("height=99999", "/height"),
+        ("direction=0", "/direction"),
+        ("colour=red", "/colour"),
+        ("kind=image&dim=0", "/kind"),
+    ],
+)
+def test_bad_query_is_422_naming_the_parameter(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]], query: str, pointer: str
+) -> None:
+    problem = problem_of(plot(client, circle_job[0], query), 422)
+    assert [e["pointer"] for e in problem["errors"]] == [pointer]
+
+
+def test_plot_of_an_unknown_job_is_404(client: FlaskClient) -> None:
+    problem_of(plot(client, "00000000-0000-4000-8000-000000000000", "kind=diagram"), 404)
+
+
+def test_plot_of_an_unfinished_job_is_409(served: tuple[FlaskClient, Settings]) -> None:
+    # A job on a queue no worker serves stays queued.
+    client, settings = served
+    app = app_with(redis_url=settings.redis_url, queue=fresh_queue())
+    idle = app.test_client()
+    body = {"input": {"type": "points", "points": [[0, 0], [1, 1]]}, "filtration": {"type": "rips"}}
+    job_id = post(idle, JOBS, body).get_json()["job_id"]
+    problem = problem_of(plot(idle, job_id, "kind=diagram"), 409)
+    assert problem["job_status"] == "queued"
+
+
+def test_per_direction_jobs_need_a_direction(client: FlaskClient) -> None:
+    body = {
+        "input": {"type": "graph", "nodes": [[0, 0], [1, 0], [1, 1]], "edges": [[0, 1], [1, 2]]},
+        "filtration": {"type": "height", "directions": 3},
+    }
+    job_id = post(client, JOBS, body, headers=WAIT).get_json()["job_id"]
+    problem = problem_of(plot(client, job_id, "kind=diagram"), 422)
+    assert problem["errors"][0]["pointer"] == "/direction" and "0..2" in problem["detail"]
+    ids = svg_ids(plot(client, job_id, "kind=diagram&direction=2").data)
+    assert len([i for i in ids if i.startswith("point-0-")]) == 1  # a path: one component
+
+
+# --- the job page ------------------------------------------------------------------------------
+
+
+class Page(HTMLParser):
+    """Element names, ids and image sources of an HTML page (the standard library's parser)."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.tags: list[str] = []
+        self.images: dict[str, str] = {}
+        self.links: list[str] = []
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
+        found = dict(attrs)
+        self.tags.append(tag)
+        if tag == "img":
+            self.images[found.get("id") or ""] = found.get("src") or ""
+        for name in ("href", "src"):
+            if found.get(name):
+                self.links.append(found[name] or "")
+
+    def handle_data(self, data: str) -> None:
+        self.text.append(data)
+
+
+def test_job_page_is_self_contained_with_the_plots(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    job_id, result = circle_job
+    answer = call(client, "GET", f"{JOBS}/{job_id}", headers={"Accept": "text/html"})
+    assert answer.status_code == 200 and answer.mimetype == "text/html"
+    page = Page()
+    page.feed(answer.get_data(as_text=True))
+    text = " ".join(page.text)
+    assert "not for diagnosis or treatment decisions" in text
+    assert "succeeded" in text and result["layout_id"] in text
+    assert set(page.images) == {"plot-diagram", "plot-barcode", "plot-image"}
+    # No external asset: every src is inline data, every link stays on this server.
+    assert "script" not in page.tags and "link" not in page.tags
+    assert all(src.startswith("data:image/svg+xml;base64,") for src in page.images.values())
+    assert all(re.match(r"^(data:|/v1/)", link) for link in page.links), page.links
+    svg = base64.b64decode(page.images["plot-diagram"].split(",", 1)[1])
+    points = [i for i in svg_ids(svg) if i.startswith("point-")]
+    assert len(points) == sum(len(d["pairs"]) for d in result["diagrams"])
+
+
+def test_json_stays_the_default(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    for accept in ("*/*", "application/json", "application/json, text/html;q=0.5"):
+        answer = call(client, "GET", f"{JOBS}/{circle_job[0]}", headers={"Accept": accept})
+        assert answer.mimetype == "application/json" and answer.get_json()["status"]
+
+
+def test_page_of_a_failed_job_shows_its_problem(served: tuple[FlaskClient, Settings]) -> None:
+    # The same worker, an API whose results may hold one pair: the job fails on the worker.
+    _, settings = served
+    strict = app_with(redis_url=settings.redis_url, queue=settings.queue, max_result_pairs=1)
+    client = strict.test_client()
+    body = {
+        "input": {"type": "points", "points": noisy_circle(20, seed=1).tolist()},
+        "filtration": {"type": "rips", "max_dim": 1},
+    }
+    answer = post(client, JOBS, body, headers=WAIT)
+    assert answer.get_json()["status"] == "failed"
+    page = call(client, "GET", answer.headers["Location"], headers={"Accept": "text/html"})
+    text = page.get_data(as_text=True)
+    assert page.status_code == 200 and "failed" in text
+    assert answer.get_json()["problem"]["title"] in text
+    assert "Research use only" in text and "<img" not in text
