@@ -41,9 +41,10 @@ DEFAULT_TYPES = {
 }
 """Input type of each file extension when --input-type does not say."""
 
-DEFAULT_FILTRATIONS = {"points": "rips", "image": "cubical", "mask": "cubical"}
-"""Filtration of each input type when neither --filtration nor the file says (a graph has
-none by default: its filtrations need a direction, center, seeds or values)."""
+DEFAULT_FILTRATIONS = {"points": "rips", "image": "cubical", "mask": "distance"}
+"""Filtration of each input type when neither --filtration nor the file says (a graph, or a
+mask's skeleton, has none by default: its filtrations need a direction, center, seeds or
+values)."""
 
 _UPLOADED = {".tif", ".tiff", ".png", ".graphml"}
 
@@ -113,7 +114,7 @@ def request_of(path: Path, options: BatchOptions) -> tuple[Json, bytes | None]:
     body = {**body, "input": given}
     if options.filtration is not None:
         body["filtration"] = options.filtration
-    elif "filtration" not in body and kind in DEFAULT_FILTRATIONS:
+    elif "filtration" not in body and kind in DEFAULT_FILTRATIONS and not given.get("skeletonize"):
         body["filtration"] = {"type": DEFAULT_FILTRATIONS[given["type"]]}
     if options.features is not None:
         body["features"] = options.features

@@ -226,7 +226,7 @@ def _client_commands(commands: Any, settings: ClientSettings) -> None:
         "--filtration",
         type=_filtration,
         help='a name ("rips", "cubical", ...) or a JSON object / @file.json '
-        "(default: rips for points, cubical for images and masks)",
+        "(default: rips for points, cubical for images, distance for masks)",
     )
     submit.add_argument(
         "--features", type=_features, help="feature spec(s): a JSON file, @file or inline JSON"

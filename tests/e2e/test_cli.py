@@ -162,3 +162,44 @@ def test_unreachable_server_exits_1(tmp_path: Path) -> None:
 
     done = run("status", "abc", "--server", f"http://127.0.0.1:{closed_port()}", check=1)
     assert "unreachable" in done.stderr.lower()
+
+
+def test_every_demo_data_set_submits(base: str, tmp_path: Path) -> None:
+    # `lacuna demo --out DIR` writes every kind; each goes through `lacuna submit` as it is.
+    run("demo", "--out", str(tmp_path / "demo"), check=0)
+    demo = tmp_path / "demo"
+    height = '{"type": "height", "direction": [0, 1]}'
+    batches = [
+        [*map(str, sorted((demo / "images").iterdir())), "--out", str(tmp_path / "images")],
+        [
+            *(str(p) for p in sorted((demo / "masks").iterdir()) if p.suffix in (".png", ".tif")),
+            "--input-type",
+            "mask",
+            "--out",
+            str(tmp_path / "masks"),
+        ],
+        [
+            *map(str, sorted((demo / "masks").glob("*.png"))),
+            "--input-type",
+            "mask",
+            "--skeletonize",
+            "--filtration",
+            height,
+            "--out",
+            str(tmp_path / "skeletons"),
+        ],
+        [
+            *map(str, sorted((demo / "network").glob("*.graphml"))),
+            "--filtration",
+            height,
+            "--out",
+            str(tmp_path / "graphml"),
+        ],
+        [*map(str, sorted((demo / "network").glob("*.json"))), "--out", str(tmp_path / "json")],
+    ]
+    for files in batches:
+        files = [f for f in files if not f.endswith("README.txt")]
+        summary = json.loads(
+            run("submit", *files, "--server", base, "--quiet", "--json", check=0).stdout
+        )
+        assert summary["succeeded"] == summary["files"] > 0, summary["failed"]
