@@ -281,8 +281,9 @@ def _paths() -> dict[str, Any]:
                 "(the diagonal, a dashed line with an infinity tick for classes that never die, "
                 "axis labels with the result's units, one colour per dimension and a legend), "
                 "the barcode, or a persistence image the job computed as a feature. In SVG each "
-                "point is a group with id point-<dim>-<k> (bars bar-<dim>-<k>), up to 5000; "
-                "above that, one group per dimension. Query error pointers point into the query "
+                "point is a group with id point-<dim>-<k> (bars bar-<dim>-<k>), up to 20000; "
+                "above that, one group per dimension (point-<dim>s, bar-<dim>s). Query error "
+                "pointers point into the query "
                 "taken as an object (`/dim` is `?dim=`).",
                 "operationId": "getPlot",
                 "parameters": _query_parameters(PlotQuery),

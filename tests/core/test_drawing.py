@@ -68,7 +68,8 @@ def test_large_diagrams_draw_one_group_per_dimension() -> None:
     births = rng.uniform(size=MAX_MARKED + 1)
     pairs = np.column_stack([births, births + rng.uniform(size=len(births))])
     svg = diagram_plot([(1, pairs)])
-    assert ids(svg, "point-") == [] and ids(svg, "points-1") == ["points-1"]
+    assert ids(svg, "point-") == ["point-1s"]
+    assert ids(barcode_plot([(1, pairs)]), "bar-") == ["bar-1s"]
 
 
 @pytest.mark.parametrize("draw", [diagram_plot, barcode_plot])
