@@ -6,6 +6,7 @@ import sys
 import time
 import uuid
 from collections.abc import Iterator
+from contextlib import contextmanager
 
 import pytest
 from flask import Flask
@@ -84,3 +85,19 @@ def worker(settings: Settings) -> Iterator[subprocess.Popen[bytes]]:
     process = start_worker(settings.redis_url, settings.queue)
     yield process
     stop_worker(process)
+
+
+@contextmanager
+def served_on(redis_url: str) -> Iterator[tuple[FlaskClient, Settings]]:
+    """One app and one real worker on a flushed database, for a whole module (starting a
+    worker costs about a second); the database is not flushed per test, so the worker keeps
+    its registration."""
+    Redis.from_url(redis_url).flushdb()
+    settings = Settings(redis_url=redis_url, queue=f"test-{uuid.uuid4().hex[:12]}")
+    worker = start_worker(redis_url, settings.queue)
+    app = create_app(settings)
+    app.testing = True
+    try:
+        yield app.test_client(), settings
+    finally:
+        stop_worker(worker)

@@ -14,15 +14,12 @@ import networkx as nx
 import numpy as np
 import pytest
 from flask.testing import FlaskClient
-from redis import Redis
 
 from service.settings import Settings
 from tests.conftest import with_database
-from tests.service.conftest import start_worker, stop_worker
+from tests.service.conftest import served_on
 from tests.service.test_errors import (
-    app_with,
     call,
-    fresh_queue,
     pairs_array,
     post,
     problem_of,
@@ -38,14 +35,8 @@ GRAPH_DB = 11  # not flushed per test: the module's worker keeps its registratio
 
 @pytest.fixture(scope="module")
 def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
-    """One app and one real worker for the module."""
-    url = with_database(redis_server, GRAPH_DB)
-    Redis.from_url(url).flushdb()
-    settings = Settings(redis_url=url, queue=fresh_queue())
-    worker = start_worker(url, settings.queue)
-    app = app_with(redis_url=url, queue=settings.queue)
-    yield app.test_client(), settings
-    stop_worker(worker)
+    with served_on(with_database(redis_server, GRAPH_DB)) as served:
+        yield served
 
 
 @pytest.fixture

@@ -20,14 +20,13 @@ import pytest
 import tifffile
 from flask.testing import FlaskClient
 from PIL import Image
-from redis import Redis
 from scipy.ndimage import label
 from werkzeug.test import TestResponse
 
 from service.settings import Settings
 from tests.conftest import with_database
 from tests.core.test_cubical import gudhi_diagrams
-from tests.service.conftest import start_worker, stop_worker
+from tests.service.conftest import served_on
 from tests.service.test_errors import (
     app_with,
     call,
@@ -49,14 +48,8 @@ IMAGE_DB = 12  # not flushed per test: the module's worker keeps its registratio
 
 @pytest.fixture(scope="module")
 def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
-    """One app and one real worker for the module (starting a worker costs about a second)."""
-    url = with_database(redis_server, IMAGE_DB)
-    Redis.from_url(url).flushdb()
-    settings = Settings(redis_url=url, queue=fresh_queue())
-    worker = start_worker(url, settings.queue)
-    app = app_with(redis_url=url, queue=settings.queue)
-    yield app.test_client(), settings
-    stop_worker(worker)
+    with served_on(with_database(redis_server, IMAGE_DB)) as served:
+        yield served
 
 
 @pytest.fixture

@@ -16,11 +16,10 @@ from typing import Any
 import pytest
 from flask.testing import FlaskClient
 from PIL import Image
-from redis import Redis
 
 from service.settings import Settings
 from tests.conftest import with_database
-from tests.service.conftest import start_worker, stop_worker
+from tests.service.conftest import served_on
 from tests.service.test_errors import app_with, call, fresh_queue, post, problem_of
 from tests.synthetic import noisy_circle
 
@@ -40,13 +39,8 @@ IMAGE_FEATURE = {
 
 @pytest.fixture(scope="module")
 def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
-    url = with_database(redis_server, PICTURE_DB)
-    Redis.from_url(url).flushdb()
-    settings = Settings(redis_url=url, queue=fresh_queue())
-    worker = start_worker(url, settings.queue)
-    app = app_with(redis_url=url, queue=settings.queue)
-    yield app.test_client(), settings
-    stop_worker(worker)
+    with served_on(with_database(redis_server, PICTURE_DB)) as served:
+        yield served
 
 
 @pytest.fixture(scope="module")
