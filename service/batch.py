@@ -26,7 +26,7 @@ import numpy as np
 
 from service.client import Client, LacunaError
 
-__all__ = ["BatchOptions", "FileJob", "BatchError", "request_of", "run_batch"]
+__all__ = ["BatchError", "BatchOptions", "FileJob", "LayoutMismatch", "request_of", "run_batch"]
 
 Json = dict[str, Any]
 
@@ -52,6 +52,10 @@ _UPLOADED = {".tif", ".tiff", ".png", ".graphml"}
 class BatchError(ValueError):
     """A file cannot be read or turned into a request, or the results do not stack; the
     message says why."""
+
+
+class LayoutMismatch(BatchError):
+    """The jobs succeeded but their vectors have different layouts, so they do not stack."""
 
 
 @dataclass(frozen=True)
@@ -240,7 +244,7 @@ def _write_vectors(jobs: list[FileJob], out: Path) -> None:
     for job in having:
         assert job.result is not None
         if job.result.get("layout_id") != first["layout_id"]:
-            raise BatchError(
+            raise LayoutMismatch(
                 f"{job.path}: its vectors have layout {job.result.get('layout_id')}, "
                 f"{having[0].path} has {first['layout_id']}; only one layout stacks"
             )

@@ -120,7 +120,7 @@ def _print(args: argparse.Namespace, document: Any, text: str) -> None:
 def _submit(args: argparse.Namespace) -> int:
     from tqdm import tqdm
 
-    from service.batch import BatchError, BatchOptions, run_batch
+    from service.batch import BatchError, BatchOptions, LayoutMismatch, run_batch
 
     options = BatchOptions(
         input_type=args.input_type,
@@ -142,10 +142,10 @@ def _submit(args: argparse.Namespace) -> int:
             on_done=lambda job: bar.update(1),
             timeout=args.timeout,
         )
-    except BatchError as error:
+    except BatchError as error:  # a file that cannot be sent (usage), or vectors that don't stack
         bar.close()
         sys.stderr.write(f"lacuna submit: {error}\n")
-        return USAGE
+        return FAILED if isinstance(error, LayoutMismatch) else USAGE
     bar.close()
     failed = [job for job in jobs if job.result is None]
     summary = {

@@ -203,3 +203,32 @@ def test_every_demo_data_set_submits(base: str, tmp_path: Path) -> None:
             run("submit", *files, "--server", base, "--quiet", "--json", check=0).stdout
         )
         assert summary["succeeded"] == summary["files"] > 0, summary["failed"]
+
+
+def test_vectors_of_different_layouts_do_not_stack(base: str, tmp_path: Path) -> None:
+    # Each file's request carries its own feature: the jobs succeed, the rows would not be
+    # comparable, so nothing is stacked and the exit code says so.
+    points = [[0, 0], [1, 0], [0, 1], [1, 1]]
+    for name, feature in (("a", SUMMARY), ("b", BETTI)):
+        request = {
+            "input": {"type": "points", "points": points},
+            "filtration": {"type": "rips"},
+            "features": [feature],
+        }
+        (tmp_path / f"{name}.json").write_text(json.dumps(request))
+    done = run(
+        "submit",
+        str(tmp_path / "a.json"),
+        str(tmp_path / "b.json"),
+        "--server",
+        base,
+        "--quiet",
+        "--input-type",
+        "points",
+        "--out",
+        str(tmp_path / "out"),
+        check=1,
+    )
+    assert "only one layout stacks" in done.stderr
+    assert not (tmp_path / "out" / "vectors.npy").exists()
+    assert len(list((tmp_path / "out").glob("*.result.json"))) == 2
