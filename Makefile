@@ -46,8 +46,8 @@ browser:
 		     apt-get install -y -q chromium chromium-driver >/dev/null; }; \
 	else echo "no chromium and no apt-get as root: the browser test will be skipped"; fi
 
-# Redis: LACUNA_REDIS_URL if set, else 127.0.0.1:6379, else tests/conftest.py starts a
-# redis-server on a free port for the session and stops it afterwards.
+# Redis: the suite starts its own redis-server on a free port and stops it afterwards; it
+# never touches another (LACUNA_TEST_REDIS_URL names a shared one explicitly).
 test: lint browser
 	$(BIN)/python -m pytest
 

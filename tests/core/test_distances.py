@@ -15,7 +15,7 @@ from scipy.optimize import linear_sum_assignment
 from scipy.spatial.distance import cdist
 from scipy.stats import wasserstein_distance as scipy_wasserstein
 
-from tests.synthetic import noisy_circle, uniform
+from tests.support.synthetic import noisy_circle, uniform
 from workers.core.bottleneck import bottleneck_distance
 from workers.core.diagram_distances import DiagramMetric, diagram_distance, vector_distance_matrix
 from workers.core.diagrams import checked_diagram

@@ -10,7 +10,7 @@ import pytest
 import ripser
 from PIL import Image
 
-from tests.synthetic import noisy_circle
+from tests.support.synthetic import noisy_circle
 from workers.core.drawing import (
     COLOURS,
     MAX_MARKED,

@@ -12,7 +12,7 @@ from hypothesis import strategies as st
 from scipy.ndimage import label
 from skimage.measure import euler_number
 
-from tests.synthetic import cell_blobs, ring_mask, smooth_field
+from tests.support.synthetic import cell_blobs, ring_mask, smooth_field
 from workers.core.cubical import cubical_diagrams
 from workers.core.mask_filtrations import heights, radial_distances, signed_distance
 from workers.pixel_diagrams import pixel_diagram_sets

@@ -6,7 +6,7 @@ import gudhi
 import numpy as np
 import pytest
 
-from tests.synthetic import noisy_circle
+from tests.support.synthetic import noisy_circle
 from workers.core.errors import InvalidArrayError, ParameterError
 from workers.core.rips import rips_diagrams
 

@@ -8,7 +8,7 @@ import pytest
 from ripser import ripser
 from scipy.spatial.distance import cdist
 
-from tests.synthetic import noisy_circle
+from tests.support.synthetic import noisy_circle
 from workers.core.neighbourhood import longest_neighbourhood_edge
 from workers.core.rips import enclosing_radius, loop_death_bound, rips_diagrams
 

@@ -12,8 +12,8 @@ from pathlib import Path
 
 import requests
 
-from tests.processes import descendants, running
-from tests.synthetic import free_port
+from tests.support.processes import descendants, running
+from tests.support.synthetic import free_port
 
 LACUNA = str(Path(sys.executable).with_name("lacuna"))
 

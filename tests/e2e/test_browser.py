@@ -14,9 +14,9 @@ import pytest
 from PIL import Image
 
 from service.client import Client
-from tests.conftest import E2E_DB, with_database
+from tests.support.redis import E2E_DB, with_database
 from tests.e2e.stack import running_stack
-from tests.synthetic import noisy_circle
+from tests.support.synthetic import noisy_circle
 from workers.core.drawing import COLOURS
 
 pytestmark = pytest.mark.e2e

@@ -12,7 +12,7 @@ import numpy as np
 import pytest
 
 from service.client import Client, LacunaError
-from tests.conftest import E2E_DB, with_database
+from tests.support.redis import E2E_DB, with_database
 from tests.e2e.stack import LACUNA, running_stack
 
 pytestmark = pytest.mark.e2e

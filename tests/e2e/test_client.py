@@ -18,11 +18,11 @@ import requests
 
 import service.client
 from service.client import Client, LacunaError
-from tests.conftest import E2E_DB, with_database
+from tests.support.redis import E2E_DB, with_database
 from tests.core.test_cubical import gudhi_diagrams
 from tests.e2e.stack import running_stack
 from tests.service.test_errors import closed_port, pairs_array
-from tests.synthetic import HEXAGON, noisy_circle, ring_mask, smooth_field
+from tests.support.synthetic import HEXAGON, noisy_circle, ring_mask, smooth_field
 
 pytestmark = pytest.mark.e2e
 

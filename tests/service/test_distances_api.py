@@ -34,7 +34,7 @@ from tests.service.test_errors import (
     said,
     stored_jobs,
 )
-from tests.synthetic import noisy_circle
+from tests.support.synthetic import noisy_circle
 
 DISTANCES = "/v1/distances"
 JOBS = "/v1/jobs"

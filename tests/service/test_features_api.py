@@ -29,7 +29,7 @@ from tests.service.test_errors import (
     said,
     stored_jobs,
 )
-from tests.synthetic import noisy_circle
+from tests.support.synthetic import noisy_circle
 from workers.features import feature_values
 from workers.spec import FeatureSpec
 from workers.spec.arrays import canonical_sha256

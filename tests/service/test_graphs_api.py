@@ -16,7 +16,7 @@ import pytest
 from flask.testing import FlaskClient
 
 from service.settings import Settings
-from tests.conftest import with_database
+from tests.support.redis import with_database
 from tests.service.conftest import served_on
 from tests.service.test_errors import (
     call,
@@ -26,7 +26,7 @@ from tests.service.test_errors import (
     refused,
     said,
 )
-from tests.synthetic import ring_mask
+from tests.support.synthetic import ring_mask
 
 JOBS = "/v1/jobs"
 WAIT = {"Prefer": "wait=30"}

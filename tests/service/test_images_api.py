@@ -24,7 +24,7 @@ from scipy.ndimage import label
 from werkzeug.test import TestResponse
 
 from service.settings import Settings
-from tests.conftest import with_database
+from tests.support.redis import with_database
 from tests.core.test_cubical import gudhi_diagrams
 from tests.service.conftest import served_on
 from tests.service.test_errors import (
@@ -38,7 +38,7 @@ from tests.service.test_errors import (
     said,
     stored_jobs,
 )
-from tests.synthetic import ring_mask, smooth_field
+from tests.support.synthetic import ring_mask, smooth_field
 from workers.spec.arrays import to_npy_bytes as npy
 
 JOBS = "/v1/jobs"

@@ -14,9 +14,9 @@ from rq.serializers import JSONSerializer
 
 from service.app import create_app
 from service.settings import Settings
-from tests.processes import children_of, process_state
+from tests.support.processes import children_of, process_state
 from tests.service.conftest import start_worker, stop_worker
-from tests.synthetic import HEXAGON
+from tests.support.synthetic import HEXAGON
 from workers.jobs import execute
 from workers.spec import JobPayload
 

