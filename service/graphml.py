@@ -22,9 +22,9 @@ import numpy as np
 
 from service.errors import RequestInvalid
 from workers.spec import FieldError, Limits
-from workers.spec.graphs import GraphArrays
 from workers.spec.inputs import MAX_GRAPH_MAGNITUDE
-from workers.spec.pixels import UPLOAD_POINTER
+from workers.spec.kinds.graphs import GraphArrays
+from workers.spec.kinds.pixels import UPLOAD_POINTER
 
 __all__ = ["decode_graph"]
 

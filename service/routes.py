@@ -2,6 +2,7 @@
 
 import json
 import re
+from collections.abc import Callable
 from typing import Any
 
 from flask import Blueprint, Response, current_app, jsonify, request
@@ -23,10 +24,11 @@ from service.queue import Job
 from service.submissions import distance_submission, job_submission
 from service.uploads import decode_array, multipart_parts
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
+from workers.spec.capabilities import Limits
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
-from workers.spec.inputs import GraphInput, ImageInput, MaskInput
+from workers.spec.kinds import InputData, kind_of, request_errors
 from workers.spec.plots import PlotQuery
-from workers.spec.requests import InputData, length_error
+from workers.spec.requests import length_error
 
 __all__ = ["v1", "health"]
 
@@ -110,6 +112,13 @@ def _result_response(result: dict[str, Any]) -> Response:
     return Response(npy_bytes(array), mimetype=NPY_MEDIA_TYPE)
 
 
+_DECODERS: dict[str, Callable[[bytes, Limits], InputData]] = {
+    "array": decode_array,
+    "graphml": decode_graph,
+}
+"""How the ``data`` part of a multipart request is read, by what the input kind uploads."""
+
+
 def _job_request() -> tuple[JobRequest, InputData | None, bool]:
     """The request of a job, the arrays of its image, mask or graph input, and whether they
     came as an uploaded file (multipart) rather than JSON."""
@@ -117,16 +126,15 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
     if request.mimetype != "multipart/form-data":
         body = _json_body(", or as multipart/form-data with request and data parts")
         job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
-        data = job_request.input_data()
+        data = kind_of(job_request.input.type).data(job_request.input)
         if isinstance(data, FieldError):
             raise RequestInvalid([data])
         return job_request, data, False
     request.max_content_length = state.settings.max_upload_bytes
     body, raw = multipart_parts(request)
     job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
-    if isinstance(job_request.input, GraphInput):
-        return job_request, decode_graph(raw, state.limits), True
-    if not isinstance(job_request.input, ImageInput | MaskInput):
+    upload = kind_of(job_request.input.type).upload
+    if upload is None:
         raise RequestInvalid(
             [
                 FieldError(
@@ -136,7 +144,7 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
                 )
             ]
         )
-    return job_request, decode_array(raw, state.limits), True
+    return job_request, _DECODERS[upload](raw, state.limits), True
 
 
 @v1.post("/jobs")
@@ -150,7 +158,7 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
     state = _state()
     wait = _requested_wait()
     job_request, data, uploaded = _job_request()
-    errors = job_request.field_errors(state.limits, data, uploaded)
+    errors = request_errors(job_request, state.limits, data, uploaded)
     if errors:
         raise RequestInvalid(errors)
     if wants_npy(request) and not job_request.features:  # refused before it is queued

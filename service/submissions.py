@@ -10,22 +10,13 @@ from typing import Any
 import numpy as np
 
 from service.errors import RequestInvalid
-from workers.spec import (
-    DistanceRequest,
-    DistanceTask,
-    FieldError,
-    JobRequest,
-    PersistenceTask,
-    PointsInput,
-)
+from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, PersistenceTask
 from workers.spec.arrays import diagram_rows
 from workers.spec.distances import DEFAULT_DIRECTIONS, DIAGRAM_METRICS
 from workers.spec.features import PersistenceImageSpec
-from workers.spec.graphs import GraphArrays, graph_rows, layout_of
-from workers.spec.inputs import GraphInput, ImageInput, MaskInput
 from workers.spec.jobs import JobPayload, StoredInput, StoredType
+from workers.spec.kinds import InputData, kind_of
 from workers.spec.plots import PlotQuery, PlotTask
-from workers.spec.requests import InputData
 from workers.spec.results import Diagram
 
 __all__ = ["Submission", "job_submission", "distance_submission", "plot_submission"]
@@ -43,88 +34,35 @@ class Submission:
     description: str
 
 
-_ARRAY_FIELDS = {
-    "points": ("points",),
-    "diagrams": ("diagrams",),
-    "image": ("values",),  # null for JSON values and uploads alike: the same hash
-    "mask": ("values",),
-    "graph": ("nodes", "edges", "radius", "length"),  # the same for JSON and GraphML
-}
-"""Fields of each input type that hold its data, which the stored array carries."""
-
-
 def job_submission(
     request: JobRequest, data: InputData | None = None, uploaded: bool = False
 ) -> Submission:
     """A ``POST /v1/jobs`` request (feature references already resolved); ``data`` is the
     array of an image or mask input, or the arrays of a graph, checked, from JSON or an
     upload (``uploaded``)."""
+    kind = kind_of(request.input.type)
     specs = request.specs()
-    arrays = _ARRAY_FIELDS[request.input.type]
-    # The arrays are left out of the dump (a million edges cost a second to dump) and written
-    # as null: the request is hashed without them, its input hash stands for them.
-    described = request.model_dump(mode="json", exclude={"input": set(arrays)})
-    described["input"].update(dict.fromkeys(arrays))
+    # The data fields are left out of the dump (a million edges cost a second to dump) and
+    # written as null: the request is hashed without them, its input hash stands for them.
+    described = request.model_dump(mode="json", exclude={"input": set(kind.data_fields)})
+    described["input"].update(dict.fromkeys(kind.data_fields))
     described["features"] = [spec.model_dump(mode="json") for spec in specs]
+    stored = kind.stored(request, data, uploaded)
     task = PersistenceTask(
         type="persistence",
         filtration=request.filtration,
         features=specs,
         output=request.output,
         descriptors=request.descriptors,
+        **stored.task,
     )
-    filtration = request.filtration.type if request.filtration else "none"
-    if isinstance(request.input, GraphInput):
-        if not isinstance(data, GraphArrays):
-            raise ValueError("a graph job needs its checked arrays")
-        return Submission(
-            array=graph_rows(data),
-            input_type="graph",
-            units=request.input.units,
-            task=task.model_copy(
-                update={
-                    "graph": layout_of(data, uploaded=uploaded),
-                    "spacing": request.input.spacing,
-                }
-            ),
-            described=described,
-            description=f"{filtration} on a graph of {len(data.coordinates)} nodes and "
-            f"{len(data.edges)} edges",
-        )
-    if isinstance(request.input, ImageInput | MaskInput):
-        pixels = data
-        if not isinstance(pixels, np.ndarray):
-            raise ValueError("an image or mask job needs its checked array")
-        skeleton = isinstance(request.input, MaskInput) and request.input.skeletonize
-        return Submission(
-            array=pixels,
-            input_type=request.input.type,
-            units=request.input.units,
-            task=task.model_copy(
-                update={"spacing": request.input.spacing, "skeletonize": skeleton}
-            ),
-            described=described,
-            description=f"{filtration} on {request.input.type} "
-            + " x ".join(map(str, pixels.shape)),
-        )
-    if isinstance(request.input, PointsInput):
-        array = np.asarray(request.input.points, dtype=np.float64)
-        return Submission(
-            array=array,
-            input_type="points",
-            units=request.input.units,
-            task=task,
-            described=described,
-            description=f"{filtration} on {array.shape[0]} x {array.shape[1]}",
-        )
-    array = diagram_rows([(d.dim, d.pairs) for d in request.input.diagrams])
     return Submission(
-        array=array,
-        input_type="diagrams",
+        array=stored.array,
+        input_type=stored.type,
         units=request.input.units,
-        task=task.model_copy(update={"given_dims": [d.dim for d in request.input.diagrams]}),
+        task=task,
         described=described,
-        description=f"features of {len(array)} given pairs",
+        description=stored.description,
     )
 
 

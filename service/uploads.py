@@ -24,7 +24,7 @@ from PIL import Image
 
 from service.errors import BodyNotJson, RequestInvalid
 from workers.spec import FieldError, Limits
-from workers.spec.pixels import UPLOAD_POINTER, shape_error
+from workers.spec.kinds.pixels import UPLOAD_POINTER, shape_error
 
 __all__ = ["UPLOAD_FORMATS", "REQUEST_PART", "DATA_PART", "decode_array", "multipart_parts"]
 

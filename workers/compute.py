@@ -20,6 +20,7 @@ from collections.abc import Callable
 from multiprocessing.connection import Connection
 from typing import Any
 
+from workers import defaults
 from workers.core.errors import CoreError
 from workers.spec import JobPayload, Problem, failures
 
@@ -33,13 +34,7 @@ Report = Callable[[int, int], None]
 Handler = Callable[[dict[str, Any], bytes, Report], dict[str, Any]]
 """(JSON header, .npy bytes, progress callback) -> result dict; runs in the child."""
 
-PROGRESS_INTERVAL_S = 0.25
-"""Least time between two progress messages from the child (the last one is always sent)."""
-
 _PR_SET_PDEATHSIG = 1  # from <sys/prctl.h>
-
-POLL_INTERVAL_S = 0.05
-"""How often a waiting worker looks for a cancel request; the result itself wakes it at once."""
 
 
 def problem_for(error: Exception) -> Problem:
@@ -79,7 +74,7 @@ class _ProgressSender:
 
     def __call__(self, done: int, total: int) -> None:
         now = time.monotonic()
-        if now - self._last >= PROGRESS_INTERVAL_S or done == total:
+        if now - self._last >= defaults.PROGRESS_INTERVAL_S or done == total:
             self._last = now
             self._connection.send_bytes(json.dumps({"progress": [done, total]}).encode("utf-8"))
 
@@ -167,7 +162,7 @@ class ComputeProcess:
             self._connection.send_bytes(input_bytes)
             while True:
                 if self._connection.poll(
-                    max(0.0, min(POLL_INTERVAL_S, deadline - time.monotonic()))
+                    max(0.0, min(defaults.POLL_INTERVAL_S, deadline - time.monotonic()))
                 ):
                     reply = json.loads(self._connection.recv_bytes())
                     if "progress" not in reply:

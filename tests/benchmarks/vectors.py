@@ -40,7 +40,7 @@ from gudhi.representations import PersistenceImage
 from workers.core.bottleneck import bottleneck_distance
 from workers.core.persistence_image import persistence_images
 from workers.core.wasserstein import wasserstein_distance
-from workers.pairwise import distance_matrix
+from workers.jobs.pairwise import distance_matrix
 from workers.spec.jobs import DistanceTask
 
 Distance = Callable[[np.ndarray, np.ndarray], float]

@@ -15,7 +15,7 @@ from skimage.measure import euler_number
 from tests.support.synthetic import cell_blobs, ring_mask, smooth_field
 from workers.core.cubical import cubical_diagrams
 from workers.core.mask_filtrations import heights, radial_distances, signed_distance
-from workers.pixel_diagrams import pixel_diagram_sets
+from workers.jobs.pixels import pixel_diagram_sets
 from workers.spec.filtrations import (
     CubicalFiltration,
     DistanceFiltration,

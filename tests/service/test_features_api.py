@@ -30,7 +30,7 @@ from tests.service.test_errors import (
     stored_jobs,
 )
 from tests.support.synthetic import noisy_circle
-from workers.features import feature_values
+from workers.jobs.features import feature_values
 from workers.spec import FeatureSpec
 from workers.spec.arrays import canonical_sha256
 from workers.spec.features import FEATURE_SPEC_VERSION, spec_id_of

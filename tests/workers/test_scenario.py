@@ -38,7 +38,7 @@ from workers.scenario.capillaries import (
 from workers.scenario.cells import cell_layout
 from workers.scenario.vessel_masks import network_mask, tube_volume, vessel_image
 from workers.spec import JobRequest
-from workers.spec.graphs import GraphArrays
+from workers.spec.kinds import GraphArrays, kind_of, request_errors
 
 SEEDS = (0, 1, 2, 3)
 
@@ -327,9 +327,9 @@ def test_generated_requests_are_valid_job_requests(tmp_path: Path) -> None:
     assert run_cli("network", "--out", str(tmp_path), "--count", "3").returncode == 0
     for path in sorted(tmp_path.glob("*.json")):
         request = JobRequest.model_validate_json(path.read_text())
-        data = request.input_data()
+        data = kind_of(request.input.type).data(request.input)
         assert isinstance(data, GraphArrays)
-        assert request.field_errors(limits_of(Settings()), data) == []
+        assert request_errors(request, limits_of(Settings()), data) == []
 
 
 # Cell layouts ---------------------------------------------------------------------------

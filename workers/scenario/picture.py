@@ -10,9 +10,9 @@ from pathlib import Path
 
 import numpy as np
 
-from workers.core.drawing import diagram_plot
 from workers.core.rips import rips_diagrams
-from workers.scenario.__main__ import write_cells
+from workers.pictures.drawing import diagram_plot
+from workers.scenario.writers import write_cells
 
 DEMO_TABLE = "cells-surrounding-0.csv"
 

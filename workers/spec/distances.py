@@ -7,8 +7,7 @@ from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
 from workers.spec.capabilities import Limits
 from workers.spec.numbers import Coordinate, FiniteFloat
 from workers.spec.problems import FieldError
-from workers.spec.requests import pair_errors
-from workers.spec.results import Diagram, Dimension, Pair, Provenance
+from workers.spec.results import Diagram, Dimension, Pair, Provenance, pair_errors
 
 __all__ = [
     "DIAGRAM_METRICS",

@@ -6,6 +6,7 @@ from typing import Annotated, Any, Literal
 from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
 
 from workers.spec.numbers import Coordinate, FiniteFloat
+from workers.spec.problems import FieldError
 
 MAX_NODE_VALUE = 1e100
 """Largest absolute value of an attribute filtration: the bound of diagram values."""
@@ -224,3 +225,49 @@ Filtration = Annotated[
     Field(discriminator="type"),
 ]
 """Every filtration type, told apart by ``type``."""
+
+
+def direction_errors(filtration: HeightFiltration, ndim: int, what: str) -> list[FieldError]:
+    """What is wrong with the direction(s) of a height filtration on ``what`` (``ndim``-D)."""
+    if (filtration.direction is None) == (filtration.directions is None):
+        return [
+            FieldError(
+                pointer="/filtration/direction",
+                message='give either "direction" (one vector) or "directions" (a list), '
+                "exactly one of them",
+            )
+        ]
+    if isinstance(filtration.directions, int):
+        if ndim != 2:
+            return [
+                FieldError(
+                    pointer="/filtration/directions",
+                    message=f"a count of evenly spaced directions needs 2D data; for {what} "
+                    "give the direction vectors",
+                )
+            ]
+        return []
+    if filtration.direction is not None:
+        named = [("/filtration/direction", filtration.direction)]
+    else:
+        named = [
+            (f"/filtration/directions/{i}", vector)
+            for i, vector in enumerate(filtration.directions or [])
+        ]
+    errors = []
+    for pointer, vector in named:
+        if len(vector) != ndim:
+            errors.append(
+                FieldError(
+                    pointer=pointer,
+                    message=f"the direction has {len(vector)} numbers for {what}",
+                )
+            )
+        elif math.hypot(*vector) == 0:
+            errors.append(
+                FieldError(
+                    pointer=pointer,
+                    message="the direction has length 0; give a non-zero vector",
+                )
+            )
+    return errors

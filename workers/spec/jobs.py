@@ -9,7 +9,6 @@ from pydantic import BaseModel, ConfigDict, Field
 from workers.spec.distances import Metric
 from workers.spec.features import FeatureSpec
 from workers.spec.filtrations import Filtration
-from workers.spec.graphs import GraphLayout
 from workers.spec.networks import DescriptorOptions, OutputKind
 from workers.spec.plots import PlotTask
 from workers.spec.problems import Problem
@@ -22,6 +21,7 @@ __all__ = [
     "JobState",
     "JobStatus",
     "DistanceTask",
+    "GraphLayout",
     "PersistenceTask",
     "Progress",
     "StoredInput",
@@ -82,6 +82,19 @@ class JobStatus(BaseModel):
     links: dict[str, str]
 
 
+class GraphLayout(BaseModel):
+    """How a packed graph array splits into its parts
+    (``workers.spec.kinds.graphs.graph_rows``)."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    node_count: int
+    dims: int
+    has_radius: bool
+    has_length: bool
+    uploaded: bool = False  # GraphML: warnings point at /data, not at /input/edges/k
+
+
 StoredType = Literal[
     "points", "diagrams", "diagram_set", "vectors", "image", "mask", "graph", "grid"
 ]
@@ -93,7 +106,7 @@ class StoredInput(BaseModel):
     Arrays by type: ``points`` (n, d) coordinates; ``diagrams`` and ``diagram_set`` (k, 3)
     rows of (dimension or diagram index, birth, death with inf for never); ``vectors`` (N, L);
     ``image`` and ``mask`` 2D or 3D arrays in the dtype they arrived in; ``graph`` (n + m,
-    d + 1) rows of nodes, then edges (``workers.spec.graphs.graph_rows``); ``grid`` a 2D
+    d + 1) rows of nodes, then edges (``workers.spec.kinds.graphs.graph_rows``); ``grid`` a 2D
     array of values to draw (a persistence image).
     """
 

@@ -13,7 +13,7 @@ MEDIA_TYPES: dict[str, str] = {"svg": "image/svg+xml", "png": "image/png"}
 """Media type of each picture format."""
 
 PixelSize = Annotated[int, Field(ge=160, le=4096)]
-"""Picture sizes drawn (as workers.core.drawing draws them)."""
+"""Picture sizes drawn (as workers.pictures.drawing draws them)."""
 
 
 class PlotQuery(BaseModel):

@@ -63,6 +63,22 @@ DirectionIndex = Annotated[
 ]
 
 
+def pair_errors(pairs: list[tuple[float, float | None]], where: str) -> list[FieldError]:
+    """A FieldError for each pair whose death is below its birth (at most 10)."""
+    errors = []
+    for row, (birth, death) in enumerate(pairs):
+        if death is not None and death < birth:
+            errors.append(
+                FieldError(
+                    pointer=f"{where}/{row}/1",
+                    message=f"death {death:g} is below birth {birth:g}",
+                )
+            )
+            if len(errors) == 10:
+                break
+    return errors
+
+
 class FeatureVector(BaseModel):
     """The values of one feature spec on one diagram."""
 

@@ -15,6 +15,7 @@ from multiprocessing.connection import Connection, Pipe, wait
 
 import numpy as np
 
+from workers import defaults
 from workers.core.diagram_distances import (
     DiagramMetric,
     distances_for_pairs,
@@ -28,12 +29,6 @@ __all__ = ["Report", "distance_matrix", "usable_cores"]
 
 Report = Callable[[int, int], None]
 """(done, total) units of work; called as chunks finish."""
-
-CHUNK_PAIRS = 256
-"""Most pairs per chunk: small enough for steady progress, large enough to amortise a send."""
-
-FORK_FROM_PAIRS = 64
-"""Fewer pairs than this are computed in this process: forking would cost more."""
 
 _FAILED = (1 << 63) - 1
 """Chunk index that marks an error message instead of values."""
@@ -107,11 +102,11 @@ def _fan_out(
     compute: Callable[[np.ndarray], np.ndarray], total: int, processes: int, report: Report
 ) -> np.ndarray:
     """compute(indices) over 0..total-1 in chunks, on up to ``processes`` forked processes."""
-    chunks = np.array_split(np.arange(total), max(1, -(-total // CHUNK_PAIRS)))
+    chunks = np.array_split(np.arange(total), max(1, -(-total // defaults.CHUNK_PAIRS)))
     values = np.empty(total)
     done = 0
     report(done, total)  # the job shows its total from the start
-    if processes <= 1 or total < FORK_FROM_PAIRS:
+    if processes <= 1 or total < defaults.FORK_FROM_PAIRS:
         for chunk in chunks:
             values[chunk] = compute(chunk)
             done += len(chunk)

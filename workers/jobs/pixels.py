@@ -1,17 +1,20 @@
-"""Diagrams of image and mask inputs: filtration values from the spec, then the cubical engine.
+"""Image and mask jobs: filtration values from the spec, then the cubical engine.
 
 The glue between ``workers.spec`` and ``workers.core`` for arrays: every filtration ends as one
 float64 value per pixel, and every value array goes through the same cubical complex (pixels
 as top-dimensional cells), so the cell convention is the same for all of them.
 """
 
+import math
 from collections.abc import Sequence
-from dataclasses import dataclass
 
 import numpy as np
 
+from workers import defaults
 from workers.core.cubical import cubical_diagrams
 from workers.core.mask_filtrations import heights, radial_distances, signed_distance
+from workers.jobs.results import Computed, DiagramSet
+from workers.spec import JobPayload, PersistenceTask
 from workers.spec.filtrations import (
     ArrayFiltration,
     CubicalFiltration,
@@ -19,19 +22,10 @@ from workers.spec.filtrations import (
     HeightFiltration,
     RadialFiltration,
 )
-from workers.spec.pixels import max_dim_of
+from workers.spec.kinds.pixels import max_dim_of
 from workers.spec.results import ValueConvention
 
-__all__ = ["DiagramSet", "pixel_diagram_sets"]
-
-
-@dataclass(frozen=True)
-class DiagramSet:
-    """Diagrams (dimension -> (k, 2) pairs) of one filtration, and its direction if it has
-    one of several."""
-
-    diagrams: dict[int, np.ndarray]
-    direction: list[float] | None = None
+__all__ = ["compute", "pixel_diagram_sets", "runs_inline"]
 
 
 def pixel_diagram_sets(
@@ -64,3 +58,25 @@ def pixel_diagram_sets(
         ]
         return sets, "height"
     raise TypeError(f"not an array filtration: {type(filtration).__name__}")
+
+
+def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Computed:
+    filtration = task.filtration
+    if not isinstance(filtration, ArrayFiltration):
+        raise TypeError("an image or mask job needs an array filtration")
+    sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
+    # Pixel values have no unit; lengths have the unit of spacing, or are in pixels.
+    units = None
+    if convention not in ("pixel_value", "negated_pixel_value"):
+        units = payload.input.units if task.spacing is not None else "pixel"
+    return Computed(
+        sets=sets,
+        convention=convention,
+        units=units,
+        limit_pointer="/filtration",
+        advice="lower max_dim, smooth the image or send a smaller region",
+    )
+
+
+def runs_inline(payload: JobPayload) -> bool:
+    return math.prod(payload.input.shape) <= defaults.INLINE_MAX_PIXELS

@@ -6,10 +6,9 @@ for JSON, ``/data`` for the uploaded part).
 """
 
 import math
-from dataclasses import dataclass
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict
+from pydantic import BaseModel
 
 from workers.spec.capabilities import Limits
 from workers.spec.filtrations import (
@@ -19,15 +18,18 @@ from workers.spec.filtrations import (
     GeodesicFiltration,
     HeightFiltration,
     RadialFiltration,
+    direction_errors,
 )
 from workers.spec.inputs import MAX_GRAPH_MAGNITUDE, GraphInput
+from workers.spec.jobs import GraphLayout, PersistenceTask
+from workers.spec.kinds.base import Checked, GraphArrays, InputData, InputKind, Stored
 from workers.spec.networks import DescriptorOptions
-from workers.spec.pixels import direction_errors
 from workers.spec.problems import FieldError
+from workers.spec.requests import JobRequest
 
 __all__ = [
     "GraphArrays",
-    "GraphLayout",
+    "GraphKind",
     "graph_arrays",
     "graph_errors",
     "graph_filtration_errors",
@@ -36,29 +38,6 @@ __all__ = [
     "graph_rows",
     "layout_of",
 ]
-
-
-@dataclass(frozen=True)
-class GraphArrays:
-    """A graph as arrays: ``coordinates`` (n, d) float64 as given (before spacing), ``edges``
-    (m, 2) int64, optional ``radius`` (n,) and ``length`` (m,) float64."""
-
-    coordinates: np.ndarray
-    edges: np.ndarray
-    radius: np.ndarray | None = None
-    length: np.ndarray | None = None
-
-
-class GraphLayout(BaseModel):
-    """How a packed graph array splits into its parts (see ``graph_rows``)."""
-
-    model_config = ConfigDict(extra="forbid", frozen=True)
-
-    node_count: int
-    dims: int
-    has_radius: bool
-    has_length: bool
-    uploaded: bool = False  # GraphML: warnings point at /data, not at /input/edges/k
 
 
 def graph_arrays(graph_input: GraphInput) -> GraphArrays | FieldError:
@@ -343,3 +322,64 @@ def graph_of_rows(rows: np.ndarray, layout: GraphLayout) -> GraphArrays:
         radius=rows[:n, dims].copy() if layout.has_radius else None,
         length=rows[n:, 2].copy() if layout.has_length else None,
     )
+
+
+class GraphKind(InputKind[GraphInput]):
+    """Vessel and fibre networks: JSON nodes and edges or an uploaded GraphML file, stored as
+    ``graph_rows`` with the ``GraphLayout`` that splits them in the task."""
+
+    type = "graph"
+    model = GraphInput
+    data_fields = ("nodes", "edges", "radius", "length")  # the same for JSON and GraphML
+    upload = "graphml"
+
+    def on_graph(self, given: BaseModel) -> bool:
+        return True
+
+    def data(self, given: BaseModel) -> InputData | FieldError | None:
+        if isinstance(given, GraphInput) and given.nodes is not None:
+            return graph_arrays(given)
+        return None
+
+    def check(
+        self, request: JobRequest, data: InputData | None, uploaded: bool, limits: Limits
+    ) -> Checked:
+        given = self.given(request)
+        if uploaded and given.nodes is not None:
+            return Checked.stop(
+                "/input/nodes",
+                "the graph is both in nodes and uploaded as the data part; send it one way",
+            )
+        if not isinstance(data, GraphArrays):
+            return Checked.stop(
+                "/input/nodes",
+                "give the graph as nodes and edges, or upload GraphML as the data part of a "
+                "multipart/form-data request",
+            )
+        if uploaded:
+            for name in ("edges", "radius", "length"):
+                if getattr(given, name) is not None:
+                    return Checked.stop(
+                        f"/input/{name}",
+                        f"an uploaded graph carries its own {name}; leave it out of the "
+                        "request part",
+                    )
+        filtration = request.filtration
+        errors = graph_errors(data, given, filtration, request.descriptors, limits, uploaded)
+        if errors:
+            return Checked(errors, None)
+        return Checked([], set(range(graph_max_dim(filtration) + 1)) if filtration else set())
+
+    def stored(self, request: JobRequest, data: InputData | None, uploaded: bool) -> Stored:
+        if not isinstance(data, GraphArrays):
+            raise TypeError("a graph job needs its checked arrays")
+        name = request.filtration.type if request.filtration else "none"
+        return Stored(
+            graph_rows(data),
+            "graph",
+            {"graph": layout_of(data, uploaded=uploaded), "spacing": self.given(request).spacing},
+            f"{name} on a graph of {len(data.coordinates)} nodes and {len(data.edges)} edges",
+        )
+
+    def worker(self, task: PersistenceTask) -> str:
+        return "workers.jobs.graphs"

@@ -1,5 +1,5 @@
-"""Plot jobs: the stored rows or grid drawn by ``workers.core.drawing`` (matplotlib, imported
-on the first plot, in the compute child only)."""
+"""Plot jobs: the stored rows or grid drawn by ``workers.pictures.drawing`` (matplotlib,
+imported on the first plot, in the compute child only)."""
 
 import base64
 
@@ -14,7 +14,7 @@ __all__ = ["picture"]
 def picture(task: PlotTask, array: np.ndarray) -> PlotResult:
     """Draw ``array``: (k, 3) rows of (dim, birth, death) for diagrams and barcodes, the
     (birth, persistence) grid for a persistence image."""
-    from workers.core import drawing as plots
+    from workers.pictures import drawing as plots
 
     if task.kind == "image":
         if task.birth_range is None or task.persistence_range is None:

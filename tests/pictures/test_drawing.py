@@ -11,7 +11,7 @@ import ripser
 from PIL import Image
 
 from tests.support.synthetic import noisy_circle
-from workers.core.drawing import (
+from workers.pictures.drawing import (
     COLOURS,
     MAX_MARKED,
     barcode_plot,

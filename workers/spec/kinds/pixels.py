@@ -9,6 +9,7 @@ import math
 from typing import Any
 
 import numpy as np
+from pydantic import BaseModel
 
 from workers.spec.capabilities import Limits
 from workers.spec.filtrations import (
@@ -17,14 +18,20 @@ from workers.spec.filtrations import (
     Filtration,
     HeightFiltration,
     RadialFiltration,
+    direction_errors,
 )
-from workers.spec.inputs import MAX_PIXEL_MAGNITUDE, ArrayInput, MaskInput
+from workers.spec.inputs import MAX_PIXEL_MAGNITUDE, ArrayInput, ImageInput, MaskInput
+from workers.spec.jobs import PersistenceTask
+from workers.spec.kinds.base import Checked, InputData, InputKind, Stored
+from workers.spec.kinds.graphs import graph_filtration_errors, graph_max_dim
 from workers.spec.problems import FieldError
+from workers.spec.requests import JobRequest
 
 __all__ = [
+    "ImageKind",
+    "MaskKind",
     "UPLOAD_POINTER",
     "array_of_values",
-    "direction_errors",
     "max_dim_of",
     "pixel_errors",
     "shape_error",
@@ -280,47 +287,72 @@ def _filtration_errors(
     return errors
 
 
-def direction_errors(filtration: HeightFiltration, ndim: int, what: str) -> list[FieldError]:
-    """What is wrong with the direction(s) of a height filtration on ``what`` (``ndim``-D)."""
-    if (filtration.direction is None) == (filtration.directions is None):
-        return [
-            FieldError(
-                pointer="/filtration/direction",
-                message='give either "direction" (one vector) or "directions" (a list), '
-                "exactly one of them",
+class _PixelKind(InputKind[ArrayInput]):
+    """Images and masks: an array of pixels or voxels, as JSON values or an uploaded file,
+    stored in the dtype it arrived in."""
+
+    data_fields = ("values",)  # null for JSON values and uploads alike: the same hash
+    upload = "array"
+
+    def data(self, given: BaseModel) -> InputData | FieldError | None:
+        if isinstance(given, ImageInput | MaskInput) and given.values is not None:
+            return array_of_values(given.values)
+        return None
+
+    def check(
+        self, request: JobRequest, data: InputData | None, uploaded: bool, limits: Limits
+    ) -> Checked:
+        given = self.given(request)
+        if uploaded and given.values is not None:
+            return Checked.stop(
+                "/input/values",
+                "the array is both in values and uploaded as the data part; send it one way",
             )
-        ]
-    if isinstance(filtration.directions, int):
-        if ndim != 2:
-            return [
-                FieldError(
-                    pointer="/filtration/directions",
-                    message=f"a count of evenly spaced directions needs 2D data; for {what} "
-                    "give the direction vectors",
-                )
-            ]
-        return []
-    if filtration.direction is not None:
-        named = [("/filtration/direction", filtration.direction)]
-    else:
-        named = [
-            (f"/filtration/directions/{i}", vector)
-            for i, vector in enumerate(filtration.directions or [])
-        ]
-    errors = []
-    for pointer, vector in named:
-        if len(vector) != ndim:
-            errors.append(
-                FieldError(
-                    pointer=pointer,
-                    message=f"the direction has {len(vector)} numbers for {what}",
-                )
+        if not isinstance(data, np.ndarray):
+            return Checked.stop(
+                "/input/values",
+                "give the array as values (nested lists), or upload it as the data part of a "
+                "multipart/form-data request",
             )
-        elif math.hypot(*vector) == 0:
-            errors.append(
-                FieldError(
-                    pointer=pointer,
-                    message="the direction has length 0; give a non-zero vector",
-                )
+        where = UPLOAD_POINTER if uploaded else "/input/values"
+        errors = pixel_errors(data, given, request.filtration, limits, where)
+        if errors:
+            return Checked(errors, None)
+        filtration = request.filtration
+        if self.on_graph(given):
+            errors = graph_filtration_errors(
+                filtration, data.ndim, None, request.descriptors, limits
             )
-    return errors
+            if errors:
+                return Checked(errors, None)
+            return Checked([], set(range(graph_max_dim(filtration) + 1)) if filtration else set())
+        assert filtration is not None  # pixel_errors asks for one
+        return Checked([], set(range(max_dim_of(filtration, data.ndim) + 1)))
+
+    def stored(self, request: JobRequest, data: InputData | None, uploaded: bool) -> Stored:
+        given = self.given(request)
+        if not isinstance(data, np.ndarray):
+            raise TypeError(f"an {self.type} job needs its checked array")
+        name = request.filtration.type if request.filtration else "none"
+        return Stored(
+            data,
+            given.type,
+            {"spacing": given.spacing, "skeletonize": self.on_graph(given)},
+            f"{name} on {given.type} " + " x ".join(map(str, data.shape)),
+        )
+
+    def worker(self, task: PersistenceTask) -> str:
+        return "workers.jobs.graphs" if task.skeletonize else "workers.jobs.pixels"
+
+
+class ImageKind(_PixelKind):
+    type = "image"
+    model = ImageInput
+
+
+class MaskKind(_PixelKind):
+    type = "mask"
+    model = MaskInput
+
+    def on_graph(self, given: BaseModel) -> bool:
+        return isinstance(given, MaskInput) and given.skeletonize

@@ -1,16 +1,18 @@
 """Graph jobs: the network a job works on, its filtration values and its descriptors.
 
 The glue between ``workers.spec`` and ``workers.core`` for graphs: a graph input (stored as
-rows, ``workers.spec.graphs.graph_rows``) or a mask's skeleton graph becomes one ``Network``
+rows, ``workers.spec.kinds.graphs.graph_rows``) or a mask's skeleton graph becomes one ``Network``
 with clean edges and physical lengths; every filtration ends as one value per node and goes
 through the same engine, ``workers.core.graph_persistence.graph_diagrams``.
 """
 
+import math
 from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
 
+from workers import defaults
 from workers.core.errors import ParameterError
 from workers.core.graph_filtrations import (
     geodesic_distances,
@@ -29,7 +31,8 @@ from workers.core.network import (
     shell_descriptors,
 )
 from workers.core.skeleton_graph import skeleton_graph
-from workers.pixel_diagrams import DiagramSet
+from workers.jobs.results import Computed, DiagramSet
+from workers.spec import JobPayload, PersistenceTask
 from workers.spec.filtrations import (
     AttributeFiltration,
     Filtration,
@@ -38,7 +41,8 @@ from workers.spec.filtrations import (
     RadialFiltration,
     unit_vector,
 )
-from workers.spec.graphs import GraphLayout, graph_max_dim, graph_of_rows
+from workers.spec.jobs import GraphLayout
+from workers.spec.kinds.graphs import graph_max_dim, graph_of_rows
 from workers.spec.networks import (
     DescriptorOptions,
     GraphOutput,
@@ -209,3 +213,43 @@ def graph_output(network: Network) -> GraphOutput:
         radius=None if network.radius is None else network.radius.tolist(),
         length=network.lengths.tolist(),
     )
+
+
+def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Computed:
+    """Diagrams of the graph filtration (one set per direction, or none without a
+    filtration), and the network descriptors and graph when the output asks for them."""
+    network = network_of(
+        array, layout=task.graph, skeletonize=task.skeletonize, spacing=task.spacing
+    )
+    sets: list[DiagramSet] = []
+    convention: ValueConvention | None = None
+    unreached = None
+    if task.filtration is not None:
+        sets, convention, unreached = graph_diagram_sets(network, task.filtration)
+    descriptors, shells = (
+        descriptors_of(network, task.descriptors) if "descriptors" in task.output else (None, None)
+    )
+    lengths_unit = payload.input.units
+    if task.skeletonize and task.spacing is None:
+        lengths_unit = "pixel"
+    return Computed(
+        sets=sets,
+        convention=convention,
+        units=None if convention == "node_value" else lengths_unit,
+        limit_pointer="/filtration",
+        advice="lower max_dim",
+        diagrams_kept="diagrams" in task.output,
+        fields={
+            "descriptors": descriptors,
+            "shells": shells,
+            "graph": graph_output(network) if "graph" in task.output else None,
+            "unreached_nodes": unreached,
+            "warnings": network.warnings,
+        },
+    )
+
+
+def runs_inline(payload: JobPayload) -> bool:
+    if payload.input.type != "graph":  # a mask to skeletonize
+        return math.prod(payload.input.shape) <= defaults.INLINE_MAX_PIXELS
+    return payload.input.shape[0] <= defaults.INLINE_MAX_GRAPH_ROWS

@@ -1,0 +1,149 @@
+"""RQ entry point and the one function that turns a job payload into a result.
+
+``execute`` is what both paths run: inline (tests, benchmarks) and on a worker, where ``run``
+fetches the input from Redis and hands ``execute`` to the worker's compute process, which the
+worker kills when the job overruns its time limit or is cancelled.
+
+A persistence task is computed by the module its input kind names
+(``workers.spec.kinds.KINDS``, ``InputKind.worker``), and every result is built by
+``workers.jobs.results.persistence_result``; distance tasks go to ``workers.jobs.distances``,
+plot tasks to ``workers.pictures``.
+"""
+
+import importlib
+import time
+from typing import Any, cast
+
+import numpy as np
+from pydantic import ValidationError
+from rq import get_current_job
+from rq.job import Job
+
+from workers.compute import ComputeProcess, JobAborted, Report, problem_for
+from workers.jobs import distances
+from workers.jobs.results import KindWorker, persistence_result
+from workers.pictures.plot_jobs import picture
+from workers.spec import DistanceTask, JobPayload, PersistenceTask, Problem, failures
+from workers.spec.arrays import array_sha256, from_npy_bytes
+from workers.spec.jobs import cancel_key, input_key
+from workers.spec.kinds import kind_of
+from workers.spec.plots import PlotTask
+
+__all__ = ["execute", "execute_bytes", "run", "compute_process"]
+
+_compute: ComputeProcess | None = None
+
+
+def _ignore(done: int, total: int) -> None:
+    """Progress callback of computations nobody watches."""
+
+
+def kind_worker(payload: JobPayload, task: PersistenceTask) -> KindWorker:
+    """The module that computes ``task`` on the payload's input kind."""
+    module = importlib.import_module(kind_of(payload.input.type).worker(task))
+    return cast(KindWorker, module)
+
+
+def execute(
+    payload: JobPayload, array: np.ndarray, *, job_id: str, report: Report = _ignore
+) -> dict[str, Any]:
+    """Compute the result of one job from its payload and its stored input array."""
+    if payload.input.type not in ("image", "mask"):  # images keep their dtype until negated
+        array = array.astype(np.float64, copy=False)
+    task = payload.task
+    if isinstance(task, DistanceTask):
+        return distances.compute(payload, task, array, job_id, report)
+    if isinstance(task, PlotTask):
+        return picture(task, array).model_dump(mode="json")
+    started = time.perf_counter()
+    computed = kind_worker(payload, task).compute(payload, task, array)
+    return persistence_result(payload, task, computed, job_id, started)
+
+
+def execute_bytes(header: dict[str, Any], input_bytes: bytes, report: Report) -> dict[str, Any]:
+    """Entry used inside the compute child: JSON header and .npy bytes in, result dict out."""
+    payload = JobPayload.model_validate(header["payload"])
+    array = from_npy_bytes(input_bytes)
+    return execute(payload, array, job_id=header["job_id"], report=report)
+
+
+def compute_process() -> ComputeProcess:
+    """This worker's compute child, forked on first use (the runner forks it at start-up)."""
+    global _compute
+    if _compute is None:
+        _compute = ComputeProcess(execute_bytes)
+    return _compute
+
+
+class JobFailed(RuntimeError):
+    """Raised so RQ marks the job failed; the problem object is in ``job.meta['problem']``."""
+
+
+def _checked_input(data: object, payload: JobPayload) -> np.ndarray:
+    """The stored array if it is the one the service recorded, else JobAborted."""
+    if not isinstance(data, bytes):
+        raise JobAborted(failures.input_missing())
+    try:
+        array = from_npy_bytes(data)
+    except ValueError:
+        raise JobAborted(failures.input_corrupt()) from None
+    if list(array.shape) != payload.input.shape or array_sha256(array) != payload.input.sha256:
+        raise JobAborted(failures.input_corrupt())
+    return array
+
+
+def _runs_inline(payload: JobPayload) -> bool:
+    """Is this job so small that the compute child's round trip would cost more than it?"""
+    task = payload.task
+    if isinstance(task, DistanceTask):
+        return distances.runs_inline(payload)
+    if isinstance(task, PlotTask):
+        return False  # matplotlib stays out of the worker process, in the compute child
+    return kind_worker(payload, task).runs_inline(payload)
+
+
+def _save_progress(job: Job, done: int, total: int) -> None:
+    job.meta["progress"] = {"done": done, "total": total}
+    job.save_meta()
+
+
+def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
+    """RQ job: read the input saved next to the job, compute in the killable child, return."""
+    job = get_current_job()
+    if job is None:
+        raise RuntimeError("workers.jobs.run must run inside an RQ worker")
+    connection = job.connection
+    try:
+        try:
+            payload = JobPayload.model_validate(raw_payload)
+        except ValidationError as error:
+            raise JobAborted(failures.payload_invalid(f"{error.error_count()} errors")) from None
+        # One round trip: was it cancelled while a worker was taking it, and its input
+        # (taken out of Redis at once: from here on it lives in this process only).
+        pipe = connection.pipeline()
+        pipe.exists(cancel_key(job.id))
+        pipe.getdel(input_key(job.id))
+        cancelled, stored = pipe.execute()
+        if cancelled:
+            raise JobAborted(failures.cancelled())
+        array = _checked_input(stored, payload)
+        if _runs_inline(payload):
+            try:
+                return execute(payload, array, job_id=job.id)
+            except Exception as error:
+                raise JobAborted(problem_for(error)) from None
+        assert isinstance(stored, bytes)  # _checked_input refused anything else
+        return compute_process().run(
+            job_id=job.id,
+            payload=payload,
+            input_bytes=stored,
+            time_limit_s=payload.time_limit_s,
+            should_stop=lambda: bool(connection.exists(cancel_key(job.id))),
+            on_progress=lambda done, total: _save_progress(job, done, total),
+        )
+    except JobAborted as aborted:
+        connection.delete(input_key(job.id))  # if the payload was refused before GETDEL
+        problem: Problem = aborted.problem
+        job.meta["problem"] = problem.model_dump(mode="json", exclude_none=True)
+        job.save_meta()
+        raise JobFailed(problem.detail or problem.title) from None

@@ -1,0 +1,58 @@
+"""Distance jobs: the matrix between stored diagrams (rows of (index, birth, death)) or
+vectors (N, L), on all cores (``workers.jobs.pairwise``)."""
+
+import time
+from typing import Any
+
+import numpy as np
+
+from workers import defaults
+from workers.jobs.pairwise import Report, distance_matrix, usable_cores
+from workers.jobs.results import provenance
+from workers.spec import SCHEMA_VERSION, DistanceResult, DistanceTask, JobPayload
+from workers.spec.arrays import diagrams_of_rows
+
+__all__ = ["compute", "runs_inline"]
+
+
+def compute(
+    payload: JobPayload, task: DistanceTask, array: np.ndarray, job_id: str, report: Report
+) -> dict[str, Any]:
+    """The DistanceResult (as JSON) of ``task`` on the stored items."""
+    started = time.perf_counter()
+    if payload.input.type == "vectors":
+        items: list[np.ndarray] = list(array)
+    else:
+        by_index = diagrams_of_rows(array, list(range(task.count)))
+        items = [by_index[index] for index in range(task.count)]
+    matrix, nulls = distance_matrix(items, task, report, processes=usable_cores())
+    finite = np.isfinite(matrix)
+    diagram_metric = payload.input.type != "vectors"
+    result = DistanceResult.model_validate(
+        {
+            "job_id": job_id,
+            "schema_version": SCHEMA_VERSION,
+            "metric": task.metric,
+            "order": task.order,
+            "directions": task.directions,
+            "dim": task.dim,
+            "ground_metric": "l_infinity" if diagram_metric else None,
+            "count": task.count,
+            "matrix": [
+                [float(v) if ok else None for v, ok in zip(row, oks, strict=True)]
+                for row, oks in zip(matrix.tolist(), finite.tolist(), strict=True)
+            ],
+            "nulls": nulls,
+            "provenance": provenance(payload, started),
+        }
+    )
+    return result.model_dump(mode="json")
+
+
+def runs_inline(payload: JobPayload) -> bool:
+    task = payload.task
+    return (
+        isinstance(task, DistanceTask)
+        and task.count <= defaults.INLINE_MAX_DISTANCE_ITEMS
+        and payload.input.shape[0] <= defaults.INLINE_MAX_DISTANCE_ROWS
+    )
