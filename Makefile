@@ -33,7 +33,7 @@ serve: install
 	$(BIN)/lacuna serve
 
 lint: install-dev
-	$(BIN)/ruff check service workers tests
+	$(BIN)/ruff check lacuna_client service workers tests
 	$(BIN)/mypy
 
 # Headless Chromium for the job page test, from Debian's packages where apt-get is there and

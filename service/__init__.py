@@ -1,6 +1,4 @@
-"""HTTP layer of lacuna: app factory, routes, problem errors, queue submission, command line."""
+"""HTTP layer of lacuna: app factory (``service.app.create_app``), routes, problem errors,
+queue submission, and the ``serve`` and ``openapi`` commands (``python -m service``).
 
-from service.app import create_app
-from service.settings import Settings
-
-__all__ = ["create_app", "Settings"]
+Importing the package imports nothing else, so a module of it pays only for what it uses."""

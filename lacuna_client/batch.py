@@ -24,7 +24,7 @@ from typing import Any
 
 import numpy as np
 
-from service.client import Client, LacunaError
+from lacuna_client.client import Client, LacunaError
 
 __all__ = ["BatchError", "BatchOptions", "FileJob", "LayoutMismatch", "request_of", "run_batch"]
 

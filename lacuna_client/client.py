@@ -1,6 +1,6 @@
 """A Python client of the lacuna API: numpy arrays in, numpy arrays out.
 
-    from service.client import Client
+    from lacuna_client import Client
 
     lacuna = Client("http://lab-server:8000")
     job = lacuna.submit_points(points, filtration={"type": "rips", "max_dim": 1})
@@ -21,7 +21,7 @@ from typing import Any
 import numpy as np
 import requests
 
-from workers.spec.arrays import result_array, result_diagrams, to_npy_bytes
+from lacuna_client.arrays import result_array, result_diagrams, to_npy_bytes
 
 __all__ = ["Client", "LacunaError"]
 

@@ -1,0 +1,5 @@
+import sys
+
+from service.commands import main
+
+sys.exit(main())
