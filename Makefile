@@ -14,15 +14,15 @@ $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
 
-# The service alone (what `make serve` needs) ...
+# The server (what `make serve` needs; `pip install lacuna` alone is the client) ...
 $(STAMP): pyproject.toml docker/constraints.txt | $(BIN)/python
-	$(BIN)/python -m pip install --quiet -c docker/constraints.txt -e .
+	$(BIN)/python -m pip install --quiet -c docker/constraints.txt -e '.[server]'
 	rm -f $(VENV)/.installed-*
 	touch $@
 
 # ... and with the test and benchmark extras.
 $(DEV): $(STAMP)
-	$(BIN)/python -m pip install --quiet -c docker/constraints.txt -e '.[test,bench]'
+	$(BIN)/python -m pip install --quiet -c docker/constraints.txt -e '.[server,test,bench]'
 	touch $@
 
 install: $(STAMP)

@@ -2,7 +2,7 @@
 without one: compose.yaml parses (YAML, PyYAML as the reference parser), names redis, the API
 and two workers with health checks wired to /readyz, and every command it runs is one the
 lacuna command line accepts; the Dockerfile's base is pinned, it copies every package the
-project installs and runs as a non-root user."""
+project installs, installs the server and runs as a non-root user."""
 
 import re
 import tomllib
@@ -87,9 +87,9 @@ def test_dockerfile_pins_its_base_runs_as_a_user_and_runs_lacuna() -> None:
     accepts(yaml.safe_load(cmd.group(1)))  # a JSON array is YAML too
 
 
-def test_dockerfile_copies_every_package() -> None:
+def test_dockerfile_copies_every_package_and_installs_the_server() -> None:
     # The packages pyproject.toml installs (lacuna_client holds the lacuna command itself)
-    # must all be in the image.
+    # must all be in the image, and the image is the server: lacuna[server].
     text = (DOCKER / "Dockerfile").read_text()
     found = tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"]
     packages = [pattern.rstrip("*") for pattern in found["packages"]["find"]["include"]]
@@ -97,3 +97,5 @@ def test_dockerfile_copies_every_package() -> None:
     copied = re.findall(r"^COPY (\S+) (\S+)$", text, re.MULTILINE)
     for package in packages:
         assert (package, package) in copied, f"the Dockerfile does not copy {package}/"
+    installs = re.findall(r"pip install .*$", text, re.MULTILINE)
+    assert any("'lacuna[server]'" in line for line in installs), installs
