@@ -1,6 +1,6 @@
 """``make bench``: lacuna against reference libraries, measured side by side in one run.
 
-Nine tables, all ratios (no absolute targets in tests):
+Ten tables, all ratios (no absolute targets in tests):
 
 1. Rips engine (H0+H1, full filtration) against ripser, gudhi with edge collapse and
    giotto-ph, on uniform points and noisy circles; diagrams are checked equal.
@@ -13,6 +13,8 @@ Nine tables, all ratios (no absolute targets in tests):
 9. Graph persistence (H0+H1) of a random geometric graph with 10^6 edges against gudhi's
    SimplexTree, and skeleton graphs of a 512^2 and a 128^3 mask against scikit-image's
    skeletonize alone (tests/benchmarks/graphs.py).
+10. Start-up of the installed `lacuna --help` against `python -c pass` and importing requests
+    and numpy (tests/benchmarks/startup.py).
 
 Options: ``--quick`` skips n = 2000 (Rips) and 5000 (one pair); ``--cap S`` bounds each
 reference run (default 120 s); ``--only`` runs one group of tables.
@@ -39,6 +41,7 @@ import requests
 from tests.benchmarks.cubical import cubical_table
 from tests.benchmarks.engines import REFERENCES, Engine, lacuna, ripser
 from tests.benchmarks.graphs import graph_table, skeleton_table
+from tests.benchmarks.startup import startup_table
 from tests.benchmarks.vectors import distance_tables, features_table
 from tests.support.synthetic import FAMILIES, free_port, noisy_circle
 
@@ -235,7 +238,7 @@ def main() -> None:
     parser.add_argument("--cap", type=float, default=120.0, help="seconds per reference run")
     parser.add_argument(
         "--only",
-        choices=["engine", "service", "features", "distances", "cubical", "graphs"],
+        choices=["engine", "service", "features", "distances", "cubical", "graphs", "cli"],
         default=None,
     )
     args = parser.parse_args()
@@ -254,6 +257,8 @@ def main() -> None:
     if args.only in (None, "graphs"):
         graph_table(args.cap)
         skeleton_table(args.cap)
+    if args.only in (None, "cli"):
+        startup_table(cap=args.cap)
 
 
 if __name__ == "__main__":
