@@ -43,7 +43,8 @@ from tests.benchmarks.engines import REFERENCES, Engine, lacuna, ripser
 from tests.benchmarks.graphs import graph_table, skeleton_table
 from tests.benchmarks.startup import startup_table
 from tests.benchmarks.vectors import distance_tables, features_table
-from tests.support.synthetic import FAMILIES, free_port, noisy_circle
+from tests.support.ports import free_port
+from tests.support.synthetic import FAMILIES, noisy_circle
 
 
 def _measure_in_child(engine: Engine, points: np.ndarray, repeats: int, cap: float) -> dict:

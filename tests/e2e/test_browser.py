@@ -15,7 +15,7 @@ from PIL import Image
 
 from lacuna_client import Client
 from tests.support.redis import E2E_DB, with_database
-from tests.e2e.stack import running_stack
+from tests.support.stack import running_stack
 from tests.support.synthetic import noisy_circle
 from workers.core.drawing import COLOURS
 

@@ -12,8 +12,9 @@ import numpy as np
 import pytest
 
 from lacuna_client import Client, LacunaError
+from tests.support.ports import free_port
 from tests.support.redis import E2E_DB, with_database
-from tests.e2e.stack import LACUNA, running_stack
+from tests.support.stack import LACUNA, running_stack
 
 pytestmark = pytest.mark.e2e
 
@@ -158,9 +159,7 @@ def test_status_fetch_and_cancel(base: str, tmp_path: Path) -> None:
 
 
 def test_unreachable_server_exits_1(tmp_path: Path) -> None:
-    from tests.service.test_errors import closed_port
-
-    done = run("status", "abc", "--server", f"http://127.0.0.1:{closed_port()}", check=1)
+    done = run("status", "abc", "--server", f"http://127.0.0.1:{free_port()}", check=1)
     assert "unreachable" in done.stderr.lower()
 
 

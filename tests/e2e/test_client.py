@@ -17,10 +17,11 @@ import pytest
 import requests
 
 from lacuna_client import Client, LacunaError
+from tests.support.api import pairs_array
+from tests.support.ports import free_port
 from tests.support.redis import E2E_DB, with_database
-from tests.core.test_cubical import gudhi_diagrams
-from tests.e2e.stack import running_stack
-from tests.service.test_errors import closed_port, pairs_array
+from tests.support.references import gudhi_diagrams
+from tests.support.stack import running_stack
 from tests.support.synthetic import HEXAGON, noisy_circle, ring_mask, smooth_field
 
 pytestmark = pytest.mark.e2e
@@ -276,7 +277,7 @@ def test_503_beyond_the_retries_raises_its_problem(peer: tuple[str, type[Scripte
 
 
 def test_unreachable_service_raises_after_retries() -> None:
-    client = Client(f"http://127.0.0.1:{closed_port()}", retries=2, backoff=0.01)
+    client = Client(f"http://127.0.0.1:{free_port()}", retries=2, backoff=0.01)
     with pytest.raises(LacunaError) as raised:
         client.status("abc")
     assert raised.value.status == 0 and raised.value.type == "unreachable"

@@ -15,11 +15,12 @@ import requests
 import tifffile
 from redis import Redis
 
+from tests.support.api import pairs_array
+from tests.support.ports import free_port
 from tests.support.redis import E2E_DB, with_database
-from tests.core.test_cubical import gudhi_diagrams
-from tests.e2e.stack import LACUNA, stop, wait_ready
-from tests.service.test_errors import pairs_array
-from tests.support.synthetic import HEXAGON, free_port, smooth_field
+from tests.support.references import gudhi_diagrams
+from tests.support.stack import LACUNA, stop, wait_ready
+from tests.support.synthetic import HEXAGON, smooth_field
 
 pytestmark = pytest.mark.e2e
 

@@ -23,8 +23,7 @@ from scipy.stats import wasserstein_distance as w1_on_the_line
 from werkzeug.test import TestResponse
 
 from service.settings import Settings
-from tests.service.conftest import start_worker, stop_worker
-from tests.service.test_errors import (
+from tests.support.api import (
     app_with,
     call,
     fresh_queue,
@@ -35,6 +34,7 @@ from tests.service.test_errors import (
     stored_jobs,
 )
 from tests.support.synthetic import noisy_circle
+from tests.support.worker_process import start_worker, stop_worker
 
 DISTANCES = "/v1/distances"
 JOBS = "/v1/jobs"

@@ -1,33 +1,26 @@
 """Every error the API answers: status, application/problem+json, exact JSON Pointers, a detail
 a client can act on, and never a 500.
 
-All requests go through ``call``/``post_json`` so the "no 500" rule is checked on each answer.
-The app is in testing mode, so an unhandled exception fails the test instead of hiding in a 500.
+All requests go through ``call`` (tests/support/api.py), so the "no 500" rule is checked on
+each answer.
 """
 
 import json
-import math
-import socket
 import subprocess
 import time
 import uuid
 from typing import Any
 
-import numpy as np
 import pytest
-from flask import Flask
 from flask.testing import FlaskClient
 from redis import Redis
 from rq import Queue
 from rq.serializers import JSONSerializer
 from werkzeug.test import TestResponse
 
-from service.app import create_app
 from service.settings import Settings
-
-PROBLEM_JSON = "application/problem+json"
-JOBS = "/v1/jobs"
-
+from tests.support.api import JOBS, app_with, call, fresh_queue, pointers_of, post, problem_of, said
+from tests.support.ports import free_port
 
 # --- helpers ---------------------------------------------------------------------------------
 
@@ -42,86 +35,8 @@ def job_body(points: list[Any] | None = None, **filtration: Any) -> dict[str, An
     }
 
 
-def call(client: FlaskClient, method: str, path: str, **kwargs: Any) -> TestResponse:
-    response = client.open(path, method=method, **kwargs)
-    assert response.status_code != 500, response.get_data(as_text=True)
-    return response
-
-
 def post_json(client: FlaskClient, body: Any, **kwargs: Any) -> TestResponse:
-    # json.dumps, not the client's json=: it writes NaN/Infinity as raw tokens like many
-    # clients do, while the app's own provider would refuse to encode them.
-    return call(
-        client, "POST", JOBS, data=json.dumps(body), content_type="application/json", **kwargs
-    )
-
-
-def problem_of(response: TestResponse, status: int) -> dict[str, Any]:
-    """The RFC 9457 body of ``response``, after checking the envelope every problem shares."""
-    assert response.status_code == status, response.get_data(as_text=True)
-    assert response.mimetype == PROBLEM_JSON
-    problem = json.loads(response.get_data(as_text=True))
-    assert problem["status"] == status
-    for member in ("type", "title", "detail"):
-        assert isinstance(problem[member], str) and problem[member].strip(), member
-    return problem
-
-
-def pointers_of(problem: dict[str, Any]) -> list[str]:
-    return [error["pointer"] for error in problem["errors"]]
-
-
-def said(problem: dict[str, Any]) -> str:
-    """Everything the client is told in words, lower-cased for keyword checks."""
-    messages = [error["message"] for error in problem.get("errors") or []]
-    return " ".join([problem["detail"], *messages]).lower()
-
-
-def post(client: FlaskClient, path: str, body: Any, **kwargs: Any) -> TestResponse:
-    """POST ``body`` as JSON to ``path`` through ``call``."""
-    return call(
-        client, "POST", path, data=json.dumps(body), content_type="application/json", **kwargs
-    )
-
-
-def stored_jobs(client: FlaskClient) -> int:
-    """Jobs RQ holds in the test database (each test starts on a flushed one)."""
-    redis = client.application.extensions["lacuna"].queue.redis
-    return sum(1 for _ in redis.scan_iter("rq:job:*"))
-
-
-def refused(response: TestResponse, pointers: list[str], hint: str) -> dict[str, Any]:
-    """The 422 problem after checking its pointers, that the detail names the first (the
-    whole body, pointer "", is written "/"), and that the words carry ``hint``."""
-    problem = problem_of(response, 422)
-    assert pointers_of(problem) == pointers
-    assert problem["detail"].startswith((pointers[0] or "/") + ":"), problem["detail"]
-    assert hint.lower() in said(problem), said(problem)
-    return problem
-
-
-def pairs_array(pairs: list[list[float | None]]) -> np.ndarray:
-    """Pairs as JSON carries them (null death = never dies) as (k, 2) with inf deaths."""
-    return np.array(
-        [[b, math.inf if d is None else d] for b, d in pairs], dtype=np.float64
-    ).reshape(-1, 2)
-
-
-def closed_port() -> int:
-    # Bound then released, so nothing listens on it: connecting is refused straight away.
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
-
-
-def app_with(**overrides: Any) -> Flask:
-    app = create_app(Settings(**overrides))
-    app.testing = True
-    return app
-
-
-def fresh_queue() -> str:
-    return f"test-{uuid.uuid4().hex[:12]}"
+    return post(client, JOBS, body, **kwargs)
 
 
 # --- body and media type ---------------------------------------------------------------------
@@ -356,7 +271,7 @@ def test_result_of_an_unfinished_job_is_409(client: FlaskClient) -> None:
 @pytest.fixture
 def down_client() -> FlaskClient:
     return app_with(
-        redis_url=f"redis://127.0.0.1:{closed_port()}/0", redis_timeout_s=0.5, queue=fresh_queue()
+        redis_url=f"redis://127.0.0.1:{free_port()}/0", redis_timeout_s=0.5, queue=fresh_queue()
     ).test_client()
 
 

@@ -17,7 +17,7 @@ import rfc8785
 from flask.testing import FlaskClient
 from pydantic import TypeAdapter
 
-from tests.service.test_errors import (
+from tests.support.api import (
     app_with,
     call,
     fresh_queue,

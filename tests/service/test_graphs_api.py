@@ -16,9 +16,7 @@ import pytest
 from flask.testing import FlaskClient
 
 from service.settings import Settings
-from tests.support.redis import with_database
-from tests.service.conftest import served_on
-from tests.service.test_errors import (
+from tests.support.api import (
     call,
     pairs_array,
     post,
@@ -26,7 +24,9 @@ from tests.service.test_errors import (
     refused,
     said,
 )
+from tests.support.redis import with_database
 from tests.support.synthetic import ring_mask
+from tests.support.worker_process import served_on
 
 JOBS = "/v1/jobs"
 WAIT = {"Prefer": "wait=30"}

@@ -16,7 +16,7 @@ import pytest
 from flask.testing import FlaskClient
 
 from service.queue import IDEMPOTENCY_PREFIX
-from tests.service.test_errors import post, problem_of, stored_jobs
+from tests.support.api import post, problem_of, stored_jobs
 from tests.support.synthetic import HEXAGON
 from workers.spec.arrays import to_npy_bytes
 from workers.spec.problems import PROBLEM_TYPE

@@ -24,10 +24,7 @@ from scipy.ndimage import label
 from werkzeug.test import TestResponse
 
 from service.settings import Settings
-from tests.support.redis import with_database
-from tests.core.test_cubical import gudhi_diagrams
-from tests.service.conftest import served_on
-from tests.service.test_errors import (
+from tests.support.api import (
     app_with,
     call,
     fresh_queue,
@@ -38,7 +35,10 @@ from tests.service.test_errors import (
     said,
     stored_jobs,
 )
+from tests.support.redis import with_database
+from tests.support.references import gudhi_diagrams
 from tests.support.synthetic import ring_mask, smooth_field
+from tests.support.worker_process import served_on
 from workers.spec.arrays import to_npy_bytes as npy
 
 JOBS = "/v1/jobs"

@@ -15,8 +15,8 @@ from rq.serializers import JSONSerializer
 from service.app import create_app
 from service.settings import Settings
 from tests.support.processes import children_of, process_state
-from tests.service.conftest import start_worker, stop_worker
 from tests.support.synthetic import HEXAGON
+from tests.support.worker_process import start_worker, stop_worker
 from workers.jobs import execute
 from workers.spec import JobPayload
 

@@ -18,10 +18,10 @@ from flask.testing import FlaskClient
 from PIL import Image
 
 from service.settings import Settings
+from tests.support.api import app_with, call, fresh_queue, post, problem_of
 from tests.support.redis import with_database
-from tests.service.conftest import served_on
-from tests.service.test_errors import app_with, call, fresh_queue, post, problem_of
 from tests.support.synthetic import noisy_circle
+from tests.support.worker_process import served_on
 
 JOBS = "/v1/jobs"
 WAIT = {"Prefer": "wait=30"}

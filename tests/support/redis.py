@@ -17,7 +17,7 @@ from urllib.parse import parse_qsl, urlencode, urlsplit, urlunsplit
 from redis import Redis
 from redis.exceptions import RedisError
 
-from tests.support.synthetic import free_port
+from tests.support.ports import free_port
 
 SHARED_URL_VARIABLE = "LACUNA_TEST_REDIS_URL"
 """The one way to point the suite at a Redis it did not start."""

@@ -1,7 +1,6 @@
-"""Synthetic data and small helpers shared by tests and benchmarks."""
+"""Synthetic data shared by tests and benchmarks."""
 
 import math
-import socket
 
 import numpy as np
 
@@ -28,13 +27,6 @@ FAMILIES = {
     "noisy circle": lambda n, seed: noisy_circle(n, seed),
 }
 """The data families the Rips benchmark is judged on."""
-
-
-def free_port() -> int:
-    """A TCP port on 127.0.0.1 that nothing listens on right now."""
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
 
 
 def smooth_field(shape: tuple[int, ...], sigma: float, seed: int) -> np.ndarray:

@@ -12,23 +12,30 @@ from pathlib import Path
 
 import requests
 
+from tests.support.ports import free_port
 from tests.support.processes import descendants, running
-from tests.support.synthetic import free_port
+from tests.support.waiting import wait_until
 
 LACUNA = str(Path(sys.executable).with_name("lacuna"))
 
 
+def answers(url: str, status: int = 200) -> requests.Response | None:
+    """The answer to GET ``url`` if it has ``status``; None while nothing answers so."""
+    try:
+        answer = requests.get(url, timeout=1)
+    except requests.RequestException:
+        return None
+    return answer if answer.status_code == status else None
+
+
 def wait_ready(base: str, workers: int = 1, seconds: float = 60) -> None:
-    deadline = time.monotonic() + seconds
-    while time.monotonic() < deadline:
-        try:
-            answer = requests.get(base + "/readyz", timeout=1)
-            if answer.status_code == 200 and answer.json()["workers"] >= workers:
-                return
-        except requests.RequestException:
-            pass
-        time.sleep(0.1)
-    raise AssertionError(f"{base} never became ready")
+    """Return once ``base`` says it is ready with at least ``workers`` workers."""
+
+    def ready() -> bool:
+        answer = answers(base + "/readyz")
+        return answer is not None and answer.json()["workers"] >= workers
+
+    wait_until(ready, seconds, f"{base} ready with {workers} worker(s)", interval=0.1)
 
 
 def stop(process: subprocess.Popen[bytes], how: int) -> set[int]:
