@@ -21,7 +21,7 @@ from multiprocessing.connection import Connection
 from typing import Any
 
 from workers import defaults
-from workers.core.errors import CoreError
+from workers.core.errors import CoreError, RequestError
 from workers.spec import JobPayload, Problem, failures
 
 __all__ = ["ComputeProcess", "JobAborted", "Handler", "Report", "problem_for"]
@@ -39,8 +39,13 @@ _PR_SET_PDEATHSIG = 1  # from <sys/prctl.h>
 
 def problem_for(error: Exception) -> Problem:
     """The problem a computation that raised ``error`` is reported with."""
-    if isinstance(error, CoreError):
+    if isinstance(error, RequestError):
         return failures.invalid_parameters(error.message, error.field)
+    if isinstance(error, CoreError):
+        # Its field points into the arguments of a core function, not into the request: a
+        # call the job room did not wrap in pointing_into. The message still says what.
+        log.warning("core error without a request pointer (field %r): %s", error.field, error)
+        return failures.invalid_parameters(error.message, None)
     if isinstance(error, MemoryError):
         return failures.out_of_memory()
     # A bug: say so, with the traceback in the worker log.

@@ -59,4 +59,4 @@ def test_maxmin_covers_better_than_random_on_clustered_data() -> None:
 def test_size_outside_one_to_n(size: int) -> None:
     with pytest.raises(ParameterError) as raised:
         maxmin_subsample(np.zeros((10, 2)), size=size)
-    assert raised.value.field == "/filtration/subsample/size"
+    assert raised.value.field == "/size"  # a pointer into its own arguments

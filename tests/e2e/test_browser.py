@@ -17,7 +17,7 @@ from lacuna_client import Client
 from tests.support.redis import E2E_DB, with_database
 from tests.support.stack import running_stack
 from tests.support.synthetic import noisy_circle
-from workers.core.drawing import COLOURS
+from workers.pictures.drawing import COLOURS
 
 pytestmark = pytest.mark.e2e
 
@@ -34,12 +34,6 @@ FLAGS = [
     "--no-first-run",
     "--hide-scrollbars",
 ]
-
-
-@pytest.fixture(scope="module")
-def base(redis_server: str) -> Iterator[str]:
-    with running_stack(with_database(redis_server, E2E_DB)) as url:
-        yield url
 
 
 def chromium(tmp_path: Path, *args: str) -> subprocess.CompletedProcess[str]:

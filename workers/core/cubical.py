@@ -65,7 +65,7 @@ def cubical_diagrams(values: np.ndarray, *, max_dim: int) -> list[np.ndarray]:
     if not 0 <= max_dim <= array.ndim - 1:
         raise ParameterError(
             f"max_dim must be between 0 and {array.ndim - 1} for a {array.ndim}D array",
-            field="max_dim",
+            field="/max_dim",
         )
     packed = _cubical.diagrams(array.data, tuple(int(n) for n in array.shape), max_dim)
     return [sort_pairs(np.frombuffer(pairs, dtype=np.float64).reshape(-1, 2)) for pairs in packed]

@@ -76,7 +76,7 @@ def diagram_distance(a: np.ndarray, b: np.ndarray, metric: DiagramMetric) -> flo
     if metric.name == "sliced_wasserstein":
         finite = sliced_wasserstein_distance(finite_a, finite_b, directions=metric.directions)
         return finite + float(gaps.sum())
-    raise ParameterError(f"unknown metric {metric.name!r}", field="metric")
+    raise ParameterError(f"unknown metric {metric.name!r}", field="/metric")
 
 
 def distances_for_pairs(
@@ -113,4 +113,4 @@ def vector_distance_matrix(vectors: np.ndarray, metric: VectorMetric) -> np.ndar
         matrix[:, zero] = np.nan
         np.fill_diagonal(matrix, 0.0)
         return matrix
-    raise ParameterError(f"unknown metric {metric!r}", field="metric")
+    raise ParameterError(f"unknown metric {metric!r}", field="/metric")

@@ -65,7 +65,7 @@ def finite_part(pairs: np.ndarray, infinite: InfiniteDeaths, cap: float | None) 
     if infinite == "drop":
         return drop_empty_bars(pairs[~essential])
     if cap is None:
-        raise ParameterError('infinite "cap" needs a cap value', field="cap")
+        raise ParameterError('infinite "cap" needs a cap value', field="/cap")
     capped = pairs.copy()
     capped[essential, 1] = np.maximum(capped[essential, 0], cap)
     return drop_empty_bars(capped)

@@ -46,7 +46,7 @@ def geodesic_distances(
         raise InvalidArrayError("lengths must be one non-negative number per edge")
     if len(seeds) == 0 or (seeds < 0).any() or (seeds >= node_count).any():
         raise ParameterError(
-            f"seeds must be node positions between 0 and {node_count - 1}", field="seeds"
+            f"seeds must be node positions between 0 and {node_count - 1}", field="/seeds"
         )
     adjacency = scipy.sparse.csr_matrix(
         (lengths, (edges[:, 0], edges[:, 1])), shape=(node_count, node_count)

@@ -60,7 +60,7 @@ def graph_diagrams(values: np.ndarray, edges: np.ndarray, *, max_dim: int = 1) -
     if pairs.size and not (bool((pairs >= 0).all()) and bool((pairs < len(nodes)).all())):
         raise InvalidArrayError(f"edges must index nodes 0..{len(nodes) - 1}")
     if not 0 <= max_dim <= 1:
-        raise ParameterError("max_dim must be 0 or 1 for a graph", field="max_dim")
+        raise ParameterError("max_dim must be 0 or 1 for a graph", field="/max_dim")
     order = np.argsort(nodes, kind="stable")
     packed = _graph.diagrams(
         nodes.data,

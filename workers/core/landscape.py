@@ -21,19 +21,19 @@ def sample_grid(t_range: tuple[float, float], samples: int) -> np.ndarray:
     """``samples`` evenly spaced values from t_range[0] to t_range[1], both included."""
     low, high = t_range
     if not low < high:
-        raise ParameterError("t_range must be increasing", field="t_range")
+        raise ParameterError("t_range must be increasing", field="/t_range")
     if samples < 2:
-        raise ParameterError("samples must be at least 2", field="samples")
+        raise ParameterError("samples must be at least 2", field="/samples")
     return np.linspace(low, high, samples)
 
 
 def landscape(pairs: np.ndarray, *, levels: int, grid: np.ndarray) -> np.ndarray:
     """lambda_1..lambda_levels of finite ``pairs`` (k, 2) at each ``grid`` value: (levels, s)."""
     if levels < 1:
-        raise ParameterError("levels must be at least 1", field="levels")
+        raise ParameterError("levels must be at least 1", field="/levels")
     pairs = np.asarray(pairs, dtype=np.float64).reshape(-1, 2)
     if not np.isfinite(pairs).all():
-        raise ParameterError("landscapes need finite deaths", field="infinite")
+        raise ParameterError("landscapes need finite deaths", field="/pairs")
     values = np.zeros((levels, grid.size))
     if len(pairs) == 0:
         return values

@@ -104,10 +104,10 @@ def _coordinates(coordinates: np.ndarray) -> np.ndarray:
     array = np.asarray(coordinates, dtype=np.float64)
     if array.ndim != 2 or array.shape[1] not in (2, 3):
         raise InvalidArrayError(
-            "coordinates must be an (n, 2) or (n, 3) array", field="coordinates"
+            "coordinates must be an (n, 2) or (n, 3) array", field="/coordinates"
         )
     if not np.isfinite(array).all():
-        raise InvalidArrayError("coordinates must be finite", field="coordinates")
+        raise InvalidArrayError("coordinates must be finite", field="/coordinates")
     return array
 
 
@@ -116,21 +116,21 @@ def _edges(edges: np.ndarray, node_count: int | None) -> np.ndarray:
     if array.size == 0:  # an empty JSON list arrives as a float (0,) array
         return np.zeros((0, 2), dtype=np.int64)
     if array.ndim != 2 or array.shape[1] != 2:
-        raise InvalidArrayError("edges must be an (m, 2) array of node indices", field="edges")
+        raise InvalidArrayError("edges must be an (m, 2) array of node indices", field="/edges")
     if not np.issubdtype(array.dtype, np.integer):
-        raise InvalidArrayError("edges must hold integer node indices", field="edges")
+        raise InvalidArrayError("edges must hold integer node indices", field="/edges")
     array = array.astype(np.int64, copy=False)
     if array.min() < 0 or (node_count is not None and array.max() >= node_count):
-        raise InvalidArrayError("edges must index existing nodes", field="edges")
+        raise InvalidArrayError("edges must index existing nodes", field="/edges")
     return array
 
 
 def _per_edge(lengths: np.ndarray, edge_count: int) -> np.ndarray:
     array = np.asarray(lengths, dtype=np.float64)
     if array.shape != (edge_count,):
-        raise InvalidArrayError("lengths must hold one value per edge", field="lengths")
+        raise InvalidArrayError("lengths must hold one value per edge", field="/lengths")
     if not (np.isfinite(array).all() and (array >= 0).all()):
-        raise InvalidArrayError("lengths must be finite and >= 0", field="lengths")
+        raise InvalidArrayError("lengths must be finite and >= 0", field="/lengths")
     return array
 
 
@@ -139,16 +139,16 @@ def _per_node(radius: np.ndarray | None, node_count: int) -> np.ndarray | None:
         return None
     array = np.asarray(radius, dtype=np.float64)
     if array.shape != (node_count,):
-        raise InvalidArrayError("radius must hold one value per node", field="radius")
+        raise InvalidArrayError("radius must hold one value per node", field="/radius")
     if not (np.isfinite(array).all() and (array >= 0).all()):
-        raise InvalidArrayError("radius must be finite and >= 0", field="radius")
+        raise InvalidArrayError("radius must be finite and >= 0", field="/radius")
     return array
 
 
 def _vector(vector: Sequence[float] | np.ndarray, dimension: int, name: str) -> np.ndarray:
     array = np.asarray(vector, dtype=np.float64)
     if array.shape != (dimension,) or not np.isfinite(array).all():
-        raise ParameterError(f"{name} must be {dimension} finite numbers", field=name)
+        raise ParameterError(f"{name} must be {dimension} finite numbers", field=f"/{name}")
     return array
 
 
@@ -327,9 +327,9 @@ def shell_descriptors(
     origin = _vector(center, dimension, "center")
     limits = np.asarray(boundaries, dtype=np.float64)
     if limits.ndim != 1 or len(limits) < 2 or not np.isfinite(limits).all():
-        raise ParameterError("boundaries must be at least 2 finite numbers", field="boundaries")
+        raise ParameterError("boundaries must be at least 2 finite numbers", field="/boundaries")
     if not (np.diff(limits) > 0).all():
-        raise ParameterError("boundaries must be strictly increasing", field="boundaries")
+        raise ParameterError("boundaries must be strictly increasing", field="/boundaries")
     shells = len(limits) - 1
 
     midpoints = 0.5 * (points[pairs[:, 0]] + points[pairs[:, 1]])
@@ -376,17 +376,19 @@ def equal_shells(
     points = _coordinates(coordinates)
     origin = _vector(center, points.shape[1], "center")
     if isinstance(count, bool) or not isinstance(count, int | np.integer) or count < 1:
-        raise ParameterError("count must be an integer >= 1", field="count")
+        raise ParameterError("count must be an integer >= 1", field="/count")
     if max_radius is None:
         if len(points) == 0:
-            raise ParameterError("no nodes: give max_radius", field="max_radius")
+            raise ParameterError("no nodes: give max_radius", field="/max_radius")
         farthest = float(_distances(points, origin).max())
         if farthest == 0:
-            raise ParameterError("every node is at the center: give max_radius", field="max_radius")
+            raise ParameterError(
+                "every node is at the center: give max_radius", field="/max_radius"
+            )
         max_radius = float(np.nextafter(farthest, np.inf))
     if not (np.isfinite(max_radius) and max_radius > 0):
-        raise ParameterError("max_radius must be finite and > 0", field="max_radius")
+        raise ParameterError("max_radius must be finite and > 0", field="/max_radius")
     limits = np.linspace(0.0, max_radius, int(count) + 1)
     if not (np.diff(limits) > 0).all():  # widths below float64 resolution
-        raise ParameterError("max_radius is too small for that many shells", field="count")
+        raise ParameterError("max_radius is too small for that many shells", field="/count")
     return limits

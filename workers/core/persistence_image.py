@@ -48,15 +48,15 @@ def point_weights(
     """Weight of each point from its persistence (k,), as named by ``weight``."""
     if weight == "linear":
         if max_persistence is None or not max_persistence > 0:
-            raise ParameterError("linear weight needs max_persistence > 0", field="weight")
+            raise ParameterError("linear weight needs max_persistence > 0", field="/weight")
         return np.minimum(persistence / max_persistence, 1.0)
     if weight == "constant":
         return np.ones_like(persistence)
     if weight == "power":
         if exponent is None or not exponent > 0:
-            raise ParameterError("power weight needs exponent > 0", field="weight")
+            raise ParameterError("power weight needs exponent > 0", field="/weight")
         return persistence**exponent
-    raise ParameterError(f"unknown weight {weight!r}", field="weight")
+    raise ParameterError(f"unknown weight {weight!r}", field="/weight")
 
 
 SATURATION = 8.5
@@ -112,19 +112,19 @@ def persistence_images(
     """
     nx, ny = resolution
     if nx < 1 or ny < 1:
-        raise ParameterError("resolution must be at least 1 x 1", field="resolution")
+        raise ParameterError("resolution must be at least 1 x 1", field="/resolution")
     if not sigma > 0:
-        raise ParameterError("sigma must be > 0", field="sigma")
+        raise ParameterError("sigma must be > 0", field="/sigma")
     birth_edges = _edges(birth_range, nx, "birth_range")
     persistence_edges = _edges(persistence_range, ny, "persistence_range")
     if not np.isfinite(1.0 / sigma):
-        raise ParameterError("sigma is too small for float64", field="sigma")
+        raise ParameterError("sigma is too small for float64", field="/sigma")
 
     kept = []
     for pairs in diagrams:
         pairs = np.asarray(pairs, dtype=np.float64).reshape(-1, 2)
         if not np.isfinite(pairs).all():
-            raise ParameterError("persistence images need finite deaths", field="infinite")
+            raise ParameterError("persistence images need finite deaths", field="/diagrams")
         kept.append(pairs[pairs[:, 1] > pairs[:, 0]])
     offsets = np.concatenate([[0], np.cumsum([len(pairs) for pairs in kept])]).astype(np.int64)
     points = np.concatenate(kept) if kept else np.empty((0, 2))
@@ -152,12 +152,13 @@ def persistence_images(
     return images
 
 
-def _edges(bounds: tuple[float, float], pixels: int, field: str) -> np.ndarray:
-    """pixels + 1 evenly spaced edges from bounds[0] to bounds[1], strictly increasing."""
+def _edges(bounds: tuple[float, float], pixels: int, name: str) -> np.ndarray:
+    """pixels + 1 evenly spaced edges from bounds[0] to bounds[1], strictly increasing;
+    ``name``: the argument ``bounds`` came as."""
     edges = np.linspace(bounds[0], bounds[1], pixels + 1)
     if not np.isfinite(edges).all() or not (np.diff(edges) > 0).all():
         raise ParameterError(
-            f"{field} must be increasing and wide enough for {pixels} distinct pixels",
-            field=field,
+            f"{name} must be increasing and wide enough for {pixels} distinct pixels",
+            field=f"/{name}",
         )
     return edges

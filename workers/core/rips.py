@@ -136,13 +136,13 @@ def rips_diagrams(
     """
     points = np.asarray(points, dtype=np.float64)
     if points.ndim != 2 or points.shape[0] < 1 or points.shape[1] < 1:
-        raise InvalidArrayError("points must be a non-empty (n, d) array", field="/input/points")
+        raise InvalidArrayError("points must be a non-empty (n, d) array", field="/points")
     if not np.isfinite(points).all():
-        raise InvalidArrayError("points must be finite", field="/input/points")
+        raise InvalidArrayError("points must be finite", field="/points")
     if not 0 <= max_dim <= MAX_DIM:
-        raise ParameterError(f"max_dim must be in 0..{MAX_DIM}", field="/filtration/max_dim")
+        raise ParameterError(f"max_dim must be in 0..{MAX_DIM}", field="/max_dim")
     if max_edge is not None and not max_edge >= 0:
-        raise ParameterError("max_edge must be >= 0", field="/filtration/max_edge")
+        raise ParameterError("max_edge must be >= 0", field="/max_edge")
     n = points.shape[0]
     if n == 1:
         return [np.array([[0.0, np.inf]])] + [np.empty((0, 2)) for _ in range(max_dim)]

@@ -19,7 +19,7 @@ __all__ = ["sliced_wasserstein_distance", "direction_angles", "sliced_wasserstei
 def direction_angles(directions: int) -> np.ndarray:
     """The ``directions`` angles the distance averages over, in radians."""
     if directions < 1:
-        raise ParameterError("directions must be at least 1", field="directions")
+        raise ParameterError("directions must be at least 1", field="/directions")
     angles: np.ndarray = -np.pi / 2 + np.pi * np.arange(directions) / directions
     return angles
 

@@ -37,7 +37,7 @@ def _check_size(n: int, size: int) -> None:
     if not 1 <= size <= n:
         raise ParameterError(
             f"subsample size must be between 1 and the number of points ({n}), got {size}",
-            field="/filtration/subsample/size",
+            field="/size",
         )
 
 

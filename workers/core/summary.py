@@ -42,12 +42,12 @@ def summary_names(quantiles: Sequence[float]) -> list[str]:
 def summary(pairs: np.ndarray, *, order: float, quantiles: Sequence[float]) -> np.ndarray:
     """The values named by ``summary_names(quantiles)`` for finite ``pairs`` (k, 2)."""
     if not order > 0:
-        raise ParameterError("order must be > 0", field="order")
+        raise ParameterError("order must be > 0", field="/order")
     if any(not 0 <= q <= 1 for q in quantiles):
-        raise ParameterError("quantiles must lie in [0, 1]", field="quantiles")
+        raise ParameterError("quantiles must lie in [0, 1]", field="/quantiles")
     pairs = np.asarray(pairs, dtype=np.float64).reshape(-1, 2)
     if not np.isfinite(pairs).all():
-        raise ParameterError("summaries need finite deaths", field="infinite")
+        raise ParameterError("summaries need finite deaths", field="/pairs")
     lives = pairs[:, 1] - pairs[:, 0]
     lives = lives[lives > 0]
     values = np.zeros(len(SUMMARY_NAMES) + len(quantiles))

@@ -30,7 +30,7 @@ def wasserstein_distance(a: np.ndarray, b: np.ndarray, *, order: float = 1.0) ->
     float64's 16 digits, and the solver can no longer tell the small ones apart.
     """
     if not order >= 1 or not np.isfinite(order):
-        raise ParameterError("order must be a finite number >= 1", field="order")
+        raise ParameterError("order must be a finite number >= 1", field="/order")
     # Points on the diagonal go to it at no cost and change nothing: leave them out.
     a = np.asarray(a, dtype=np.float64).reshape(-1, 2)
     b = np.asarray(b, dtype=np.float64).reshape(-1, 2)

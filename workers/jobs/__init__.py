@@ -20,6 +20,7 @@ from rq import get_current_job
 from rq.job import Job
 
 from workers.compute import ComputeProcess, JobAborted, Report, problem_for
+from workers.core.errors import pointing_into
 from workers.jobs import distances
 from workers.jobs.results import KindWorker, persistence_result
 from workers.pictures.plot_jobs import picture
@@ -54,7 +55,8 @@ def execute(
     if isinstance(task, DistanceTask):
         return distances.compute(payload, task, array, job_id, report)
     if isinstance(task, PlotTask):
-        return picture(task, array).model_dump(mode="json")
+        with pointing_into(""):  # the picture's format and size are fields of the plot query
+            return picture(task, array).model_dump(mode="json")
     started = time.perf_counter()
     computed = kind_worker(payload, task).compute(payload, task, array)
     return persistence_result(payload, task, computed, job_id, started)

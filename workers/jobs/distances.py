@@ -7,6 +7,7 @@ from typing import Any
 import numpy as np
 
 from workers import defaults
+from workers.core.errors import pointing_into
 from workers.jobs.pairwise import Report, distance_matrix, usable_cores
 from workers.jobs.results import provenance
 from workers.spec import SCHEMA_VERSION, DistanceResult, DistanceTask, JobPayload
@@ -25,7 +26,8 @@ def compute(
     else:
         by_index = diagrams_of_rows(array, list(range(task.count)))
         items = [by_index[index] for index in range(task.count)]
-    matrix, nulls = distance_matrix(items, task, report, processes=usable_cores())
+    with pointing_into(""):  # the metric's parameters are fields of the distance request
+        matrix, nulls = distance_matrix(items, task, report, processes=usable_cores())
     finite = np.isfinite(matrix)
     diagram_metric = payload.input.type != "vectors"
     result = DistanceResult.model_validate(

@@ -6,7 +6,7 @@ import numpy as np
 
 from workers.core.betti_curve import betti_curve
 from workers.core.diagrams import finite_part
-from workers.core.errors import ParameterError
+from workers.core.errors import RequestError, pointing_into
 from workers.core.landscape import landscape, sample_grid
 from workers.core.persistence_image import persistence_images
 from workers.core.summary import summary, summary_names
@@ -102,12 +102,16 @@ def _vectors_of(
     layout: list[LayoutEntry] = []
     for index, spec in enumerate(specs):
         spec_id = spec.spec_id or spec_id_of(spec)
-        values = feature_values(spec, diagrams.get(spec.dim, np.empty((0, 2))))
+        where = f"/features/{index}"
+        # The diagram argument stands for the spec's handling of classes that never die.
+        never_dying = f"{where}/infinite"
+        with pointing_into(where, {"/pairs": never_dying, "/diagrams": never_dying}):
+            values = feature_values(spec, diagrams.get(spec.dim, np.empty((0, 2))))
         if not np.isfinite(values).all():  # JSON has no inf or NaN, and neither do vectors
-            raise ParameterError(
+            raise RequestError(
                 "the values of this feature overflow float64 on this diagram; lower the "
                 "exponent or order, or rescale the diagram",
-                field=f"/features/{index}",
+                field=where,
             )
         vectors.append(
             FeatureVector(

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from workers import defaults
-from workers.core.errors import ParameterError
+from workers.core.errors import RequestError, pointing_into
 from workers.core.graph_filtrations import (
     geodesic_distances,
     node_heights,
@@ -138,7 +138,7 @@ def graph_diagram_sets(
         for index, seed in enumerate(filtration.seeds):
             if seed >= node_count:  # a skeleton graph's nodes are known only now
                 has = f"nodes 0 to {node_count - 1}" if node_count else "no nodes"
-                raise ParameterError(
+                raise RequestError(
                     f"seed {seed} is not a node; the graph has {has}",
                     field=f"/filtration/seeds/{index}",
                 )
@@ -164,13 +164,14 @@ def descriptors_of(
     direction = None
     if options is not None and options.direction is not None:
         direction = np.asarray(unit_vector(options.direction))
-    whole = network_descriptors(
-        network.coordinates,
-        network.edges,
-        network.lengths,
-        direction=direction,
-        radius=network.radius,
-    )
+    with pointing_into("/descriptors"):
+        whole = network_descriptors(
+            network.coordinates,
+            network.edges,
+            network.lengths,
+            direction=direction,
+            radius=network.radius,
+        )
     if options is None or options.shells is None:
         return _model(whole), None
     shells = options.shells
@@ -178,23 +179,21 @@ def descriptors_of(
     if shells.radii is not None:
         boundaries = np.asarray(shells.radii, dtype=np.float64)
     else:
-        try:
+        with pointing_into("/descriptors/shells"):
             boundaries = equal_shells(
                 network.coordinates, center, shells.count or 1, shells.max_radius
             )
-        except ParameterError as error:  # the core names its argument; point into the request
-            raise ParameterError(
-                error.message, field=f"/descriptors/shells/{error.field}"
-            ) from None
-    per_shell = shell_descriptors(
-        network.coordinates,
-        network.edges,
-        network.lengths,
-        center=center,
-        boundaries=boundaries,
-        direction=direction,
-        radius=network.radius,
-    )
+    renames = {"/direction": "/descriptors/direction", "/boundaries": "/descriptors/shells/radii"}
+    with pointing_into("/descriptors/shells", renames):
+        per_shell = shell_descriptors(
+            network.coordinates,
+            network.edges,
+            network.lengths,
+            center=center,
+            boundaries=boundaries,
+            direction=direction,
+            radius=network.radius,
+        )
     return _model(whole), [
         ShellDescriptors(
             inner_radius=float(boundaries[index]),
@@ -225,7 +224,8 @@ def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Co
     convention: ValueConvention | None = None
     unreached = None
     if task.filtration is not None:
-        sets, convention, unreached = graph_diagram_sets(network, task.filtration)
+        with pointing_into("/filtration"):
+            sets, convention, unreached = graph_diagram_sets(network, task.filtration)
     descriptors, shells = (
         descriptors_of(network, task.descriptors) if "descriptors" in task.output else (None, None)
     )

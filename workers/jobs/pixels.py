@@ -12,6 +12,7 @@ import numpy as np
 
 from workers import defaults
 from workers.core.cubical import cubical_diagrams
+from workers.core.errors import pointing_into
 from workers.core.mask_filtrations import heights, radial_distances, signed_distance
 from workers.jobs.results import Computed, DiagramSet
 from workers.spec import JobPayload, PersistenceTask
@@ -64,7 +65,8 @@ def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Co
     filtration = task.filtration
     if not isinstance(filtration, ArrayFiltration):
         raise TypeError("an image or mask job needs an array filtration")
-    sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
+    with pointing_into("/filtration"):
+        sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
     # Pixel values have no unit; lengths have the unit of spacing, or are in pixels.
     units = None
     if convention not in ("pixel_value", "negated_pixel_value"):

@@ -3,12 +3,15 @@
 import numpy as np
 
 from workers import defaults
+from workers.core.errors import pointing_into
 from workers.core.rips import rips_diagrams
 from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.jobs.results import Computed, DiagramSet
 from workers.spec import JobPayload, PersistenceTask, RipsFiltration
 
 __all__ = ["compute", "runs_inline"]
+
+_POINTS = {"/points": "/input/points"}
 
 
 def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Computed:
@@ -19,13 +22,15 @@ def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Co
     points, provenance = array, {}
     if filtration.subsample is not None:
         choose = maxmin_subsample if filtration.subsample.method == "maxmin" else random_subsample
-        sample = choose(points, size=filtration.subsample.size, seed=filtration.subsample.seed)
+        with pointing_into("/filtration/subsample", _POINTS):
+            sample = choose(points, size=filtration.subsample.size, seed=filtration.subsample.seed)
         points = points[sample.indices]
         provenance = {
             "subsample_indices": sample.indices.tolist(),
             "subsample_covering_radius": sample.covering_radius,
         }
-    diagrams = rips_diagrams(points, max_dim=filtration.max_dim, max_edge=filtration.max_edge)
+    with pointing_into("/filtration", _POINTS):
+        diagrams = rips_diagrams(points, max_dim=filtration.max_dim, max_edge=filtration.max_edge)
     return Computed(
         sets=[DiagramSet(dict(enumerate(diagrams)))],
         convention="edge_length",

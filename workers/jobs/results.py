@@ -14,7 +14,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from workers.core.errors import ParameterError
+from workers.core.errors import RequestError
 from workers.jobs.features import direction_feature_vectors, feature_vectors
 from workers.spec import SCHEMA_VERSION, Diagram, JobPayload, JobResult, PersistenceTask
 from workers.spec.results import DirectionDiagrams, ValueConvention, package_versions
@@ -126,12 +126,12 @@ def persistence_result(
 def _check_pair_count(
     diagram_sets: list[dict[int, np.ndarray]], limit: int, *, pointer: str, advice: str
 ) -> None:
-    """ParameterError when the diagrams hold more pairs than one result may (the cap keeps a
+    """RequestError when the diagrams hold more pairs than one result may (the cap keeps a
     result under Redis's limit on one value)."""
     pairs = sum(len(pairs) for diagrams in diagram_sets for pairs in diagrams.values())
     if pairs > limit:
         where = f" over {len(diagram_sets)} directions" if len(diagram_sets) > 1 else ""
-        raise ParameterError(
+        raise RequestError(
             f"the diagrams have {pairs} pairs{where}, above the limit of {limit} per result; "
             + advice,
             field=pointer,

@@ -69,11 +69,11 @@ def _colour(dim: int) -> str:
 
 def _figure(width: int, height: int, format: str) -> Figure:
     if format not in ("svg", "png"):
-        raise ParameterError(f'format must be "svg" or "png", not {format!r}', field="format")
+        raise ParameterError(f'format must be "svg" or "png", not {format!r}', field="/format")
     for name, size in (("width", width), ("height", height)):
         if not MIN_PIXELS <= size <= MAX_PIXELS:
             raise ParameterError(
-                f"{name} must be {MIN_PIXELS} to {MAX_PIXELS} pixels, not {size}", field=name
+                f"{name} must be {MIN_PIXELS} to {MAX_PIXELS} pixels, not {size}", field=f"/{name}"
             )
     return Figure(figsize=(width / _DPI, height / _DPI), dpi=_DPI, layout="constrained")
 
@@ -292,13 +292,13 @@ def persistence_image_plot(
     figure = _figure(width, height, format)
     values = np.asarray(image, dtype=np.float64)
     if values.ndim != 2 or not values.size:
-        raise ParameterError("a persistence image is a non-empty 2D array", field="image")
+        raise ParameterError("a persistence image is a non-empty 2D array", field="/image")
     if not (
         math.isfinite(birth_range[1] - birth_range[0])
         and birth_range[1] > birth_range[0]
         and persistence_range[1] > persistence_range[0]
     ):
-        raise ParameterError("the ranges must be increasing", field="birth_range")
+        raise ParameterError("the ranges must be increasing", field="/birth_range")
     with matplotlib.rc_context(_RC):
         axes = figure.add_subplot()
         shown = axes.imshow(
