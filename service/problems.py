@@ -25,25 +25,25 @@ from service.errors import (
 from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
 from workers.spec.features import FeatureSpecBody
 from workers.spec.plots import PlotQuery
-from workers.spec.problems import PROBLEM_TYPE
+from workers.spec.problems import problem_of_kind
 from workers.spec.tags import discriminated_members, members_by_tag, strip_optional
 
 __all__ = ["register", "pointer_of", "field_errors_of"]
 
 log = logging.getLogger(__name__)
 
-# error class -> (HTTP status, problem type suffix, title)
-_KINDS: dict[type[ServiceError], tuple[int, str, str]] = {
-    BodyNotJson: (400, "malformed-json", "Body is not JSON"),
-    RequestInvalid: (422, "invalid-request", "Invalid request"),
-    JobNotFound: (404, "job-not-found", "Job not found"),
-    JobHasNoResult: (409, "job-not-finished", "Job has no result"),
-    JobAlreadyEnded: (409, "job-ended", "Job already ended"),
-    FeatureSpecNotFound: (404, "feature-spec-not-found", "Feature spec not found"),
-    IdempotencyKeyInvalid: (400, "idempotency-key-invalid", "Invalid Idempotency-Key"),
-    IdempotencyKeyReused: (422, "idempotency-key-reused", "Idempotency-Key reused"),
-    NotReady: (503, "not-ready", "Not ready"),
+_KINDS: dict[type[ServiceError], str] = {
+    BodyNotJson: "malformed-json",
+    RequestInvalid: "invalid-request",
+    JobNotFound: "job-not-found",
+    JobHasNoResult: "job-not-finished",
+    JobAlreadyEnded: "job-ended",
+    FeatureSpecNotFound: "feature-spec-not-found",
+    IdempotencyKeyInvalid: "idempotency-key-invalid",
+    IdempotencyKeyReused: "idempotency-key-reused",
+    NotReady: "not-ready",
 }
+"""The problem kind of each service error; its status and title are in PROBLEM_KINDS."""
 
 _REQUEST_MODELS: dict[str, type[BaseModel]] = {
     model.__name__: model for model in (JobRequest, DistanceRequest, FeatureSpecBody, PlotQuery)
@@ -134,16 +134,13 @@ def register(app: Flask) -> None:
 
     @app.errorhandler(ServiceError)
     def _service_error(error: ServiceError) -> Response:
-        status, kind, title = _KINDS[type(error)]
         extra: dict[str, Any] = {}
         if isinstance(error, RequestInvalid):
             extra["errors"] = error.errors
         if isinstance(error, JobHasNoResult | JobAlreadyEnded):
             extra["job_status"] = error.state
-        problem = Problem(
-            type=PROBLEM_TYPE + kind, title=title, status=status, detail=error.detail, **extra
-        )
-        return _respond(problem, retry_after if status == 503 else None)
+        problem = problem_of_kind(_KINDS[type(error)], error.detail, **extra)
+        return _respond(problem, retry_after if problem.status == 503 else None)
 
     @app.errorhandler(ValidationError)
     def _invalid(error: ValidationError) -> Response:
@@ -177,11 +174,9 @@ def register(app: Flask) -> None:
     def _redis_down(error: RedisError) -> Response:
         # Unreachable, read-only after a failover, out of memory: the queue cannot take work.
         log.error("Redis failed: %r", error)
-        problem = Problem(
-            type=PROBLEM_TYPE + "queue-unavailable",
-            title="Queue unavailable",
-            status=503,
-            detail="the job queue (Redis) cannot be reached or refused the request; retry later",
+        problem = problem_of_kind(
+            "queue-unavailable",
+            "the job queue (Redis) cannot be reached or refused the request; retry later",
         )
         return _respond(problem, retry_after)
 
@@ -190,11 +185,9 @@ def register(app: Flask) -> None:
         request_id = uuid.uuid4().hex
         cause = getattr(error, "original_exception", None) or error
         log.error("unhandled error, request id %s", request_id, exc_info=cause)
-        problem = Problem(
-            type=PROBLEM_TYPE + "internal-error",
-            title="Internal Server Error",
-            status=500,
-            detail=f"an unexpected error occurred; quote request id {request_id}",
+        problem = problem_of_kind(
+            "internal-error",
+            f"an unexpected error occurred; quote request id {request_id}",
             instance=request.path,
         )
         return _respond(problem)

@@ -3,7 +3,7 @@
 Every failure a worker can report is built here, so its ``type`` URIs form one list.
 """
 
-from workers.spec.problems import CANCELLED_TYPE, PROBLEM_TYPE, FieldError, Problem
+from workers.spec.problems import FieldError, Problem, problem_of_kind
 
 __all__ = [
     "cancelled",
@@ -21,89 +21,67 @@ __all__ = [
 _ADVICE = "lower max_dim, set max_edge or subsample"
 
 
-def _problem(kind: str, title: str, status: int, detail: str) -> Problem:
-    return Problem(type=PROBLEM_TYPE + kind, title=title, status=status, detail=detail)
-
-
 def time_limit_exceeded(limit_s: float) -> Problem:
-    return _problem(
+    return problem_of_kind(
         "time-limit",
-        "Time limit exceeded",
-        422,
         f"the job ran longer than its time limit of {limit_s:g} s and was stopped; " + _ADVICE,
     )
 
 
 def cancelled() -> Problem:
-    return Problem(
-        type=CANCELLED_TYPE, title="Cancelled", status=409, detail="the job was cancelled"
-    )
+    return problem_of_kind("cancelled", "the job was cancelled")
 
 
 def computation_crashed(exit_code: int | None) -> Problem:
-    return _problem(
+    return problem_of_kind(
         "compute-crashed",
-        "Computation crashed",
-        500,
         f"the compute process ended unexpectedly (exit code {exit_code}); this often "
         "means it ran out of memory",
     )
 
 
 def out_of_memory() -> Problem:
-    return _problem(
-        "out-of-memory", "Out of memory", 507, "the computation ran out of memory; " + _ADVICE
-    )
+    return problem_of_kind("out-of-memory", "the computation ran out of memory; " + _ADVICE)
 
 
 def invalid_parameters(message: str, pointer: str | None) -> Problem:
-    problem = _problem("invalid-request", "Invalid request", 422, message)
+    problem = problem_of_kind("invalid-request", message)
     if pointer:
         problem.errors = [FieldError(pointer=pointer, message=message)]
     return problem
 
 
 def internal_error() -> Problem:
-    return _problem(
+    return problem_of_kind(
         "internal-error",
-        "Internal error",
-        500,
         "the computation failed unexpectedly; the worker log has the traceback",
     )
 
 
 def input_missing() -> Problem:
-    return _problem(
+    return problem_of_kind(
         "input-expired",
-        "Input expired",
-        410,
         "the input of this job was no longer stored when a worker took it",
     )
 
 
 def input_corrupt() -> Problem:
-    return _problem(
+    return problem_of_kind(
         "input-corrupt",
-        "Input corrupt",
-        500,
         "the stored input does not match the shape and hash recorded at submission",
     )
 
 
 def payload_invalid(detail: str) -> Problem:
-    return _problem(
+    return problem_of_kind(
         "payload-invalid",
-        "Job payload invalid",
-        500,
         f"the queued job does not match this worker's schema ({detail}); are the API "
         "and the workers the same version?",
     )
 
 
 def worker_lost() -> Problem:
-    return _problem(
+    return problem_of_kind(
         "worker-lost",
-        "Worker lost",
-        500,
         "the worker stopped before the job ended (it was killed or lost)",
     )

@@ -1,6 +1,6 @@
 """Problem details (RFC 9457), used by HTTP errors and by failed jobs alike."""
 
-from typing import Annotated
+from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
@@ -9,6 +9,33 @@ PROBLEM_TYPE = "urn:lacuna:problem:"
 
 CANCELLED_TYPE = PROBLEM_TYPE + "cancelled"
 """Problem type stored with a job stopped by ``DELETE /v1/jobs/{id}``."""
+
+PROBLEM_KINDS: dict[str, tuple[int, str]] = {
+    # answers of the HTTP API
+    "malformed-json": (400, "Body is not JSON"),
+    "invalid-request": (422, "Invalid request"),
+    "job-not-found": (404, "Job not found"),
+    "job-not-finished": (409, "Job has no result"),
+    "job-ended": (409, "Job already ended"),
+    "feature-spec-not-found": (404, "Feature spec not found"),
+    "idempotency-key-invalid": (400, "Invalid Idempotency-Key"),
+    "idempotency-key-reused": (422, "Idempotency-Key reused"),
+    "not-ready": (503, "Not ready"),
+    "queue-unavailable": (503, "Queue unavailable"),
+    "internal-error": (500, "Internal error"),
+    # failed jobs (``workers.spec.failures``); invalid-request and internal-error too
+    "time-limit": (422, "Time limit exceeded"),
+    "cancelled": (409, "Cancelled"),
+    "compute-crashed": (500, "Computation crashed"),
+    "out-of-memory": (507, "Out of memory"),
+    "input-expired": (410, "Input expired"),
+    "input-corrupt": (500, "Input corrupt"),
+    "payload-invalid": (500, "Job payload invalid"),
+    "worker-lost": (500, "Worker lost"),
+}
+"""Every kind of problem lacuna reports, with its HTTP status and title: the one mapping of
+problems to statuses, for API answers and failed jobs alike. Its type URI is
+``PROBLEM_TYPE + kind``."""
 
 
 class FieldError(BaseModel):
@@ -31,3 +58,9 @@ class Problem(BaseModel):
     detail: str | None = None
     instance: str | None = None
     errors: list[FieldError] | None = None
+
+
+def problem_of_kind(kind: str, detail: str, **extra: Any) -> Problem:
+    """The problem of ``kind`` (a key of ``PROBLEM_KINDS``) saying ``detail``."""
+    status, title = PROBLEM_KINDS[kind]
+    return Problem(type=PROBLEM_TYPE + kind, title=title, status=status, detail=detail, **extra)
