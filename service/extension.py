@@ -19,7 +19,6 @@ from workers.spec import (
 from workers.spec.distances import DIAGRAM_METRICS, VECTOR_METRICS
 from workers.spec.features import FEATURE_SPEC_VERSION
 from workers.spec.inputs import MAX_COORDINATES
-from workers.spec.requests import MAX_FEATURES
 from workers.spec.results import package_versions
 from workers.spec.tags import members_by_tag
 
@@ -34,7 +33,7 @@ def limits_of(settings: Settings) -> Limits:
         max_body_bytes=settings.max_body_bytes,
         max_dim=settings.max_dim,
         max_coordinates=MAX_COORDINATES,
-        max_features=MAX_FEATURES,
+        max_features=settings.max_features,
         max_vector_length=settings.max_vector_length,
         max_distance_count=settings.max_distance_count,
         max_image_pixels=settings.max_image_pixels,

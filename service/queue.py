@@ -38,16 +38,9 @@ from workers.spec.problems import CANCELLED_TYPE
 
 __all__ = ["Job", "JobQueue"]  # Job: the handle routes get from and give back to JobQueue
 
-RQ_TIMEOUT_MARGIN_S = 60
-"""RQ's own job timeout is the time limit plus this: a backstop behind the worker's SIGKILL."""
-
 IDEMPOTENCY_PREFIX = "lacuna:idempotency:"
 """Redis key prefix of Idempotency-Key records: ``<prefix><owner>:<key>`` -> job id and the
 request hash, for ``Settings.idempotency_ttl_s``."""
-
-_CLAIM_WAIT_S = 5
-"""A key claimed this recently (seconds) whose job cannot be found yet is still being
-enqueued by the request that claimed it; an older one names a job that has expired."""
 
 # A worker that dies mid-job leaves RQ status "started" until RQ's cleanup marks it failed.
 _STATES = {
@@ -121,7 +114,7 @@ class JobQueue:
             except JobNotFound:
                 pass
             age = ttl - self.redis.ttl(record)
-            if age <= _CLAIM_WAIT_S:  # the first request is enqueueing its job right now
+            if age <= self.settings.idempotency_claim_wait_s:  # the first request is enqueueing
                 time.sleep(0.05)
             else:  # its job expired before the key did, or was never queued: start over
                 self._release(record, held)
@@ -157,7 +150,7 @@ class JobQueue:
                 payload.model_dump(mode="json"),
                 job_id=job_id,
                 description=submission.description,
-                job_timeout=int(self.settings.job_time_limit_s) + RQ_TIMEOUT_MARGIN_S,
+                job_timeout=int(self.settings.job_time_limit_s) + self.settings.rq_timeout_margin_s,
                 result_ttl=self.settings.result_ttl_s,
                 failure_ttl=self.settings.result_ttl_s,
                 ttl=self.settings.queued_ttl_s,

@@ -27,6 +27,7 @@ class Settings(BaseSettings):
     )
     max_body_bytes: int = Field(64 * 1024 * 1024, ge=1024, description="Largest request body.")
     max_dim: int = Field(2, ge=0, le=2, description="Highest homology dimension allowed.")
+    max_features: int = Field(64, ge=1, description="Most feature specs one job may ask for.")
     max_vector_length: int = Field(
         250_000, ge=1, description="Most values in one job's concatenated feature vector."
     )
@@ -73,6 +74,12 @@ class Settings(BaseSettings):
         "sends Prefer: wait.",
     )
     job_time_limit_s: float = Field(300.0, gt=0, description="Wall-time limit of one job.")
+    rq_timeout_margin_s: int = Field(
+        60,
+        ge=1,
+        description="RQ's own job timeout is job_time_limit_s plus this: a backstop behind "
+        "the worker's SIGKILL of a job over its limit.",
+    )
     result_ttl_s: int = Field(86_400, ge=1, description="How long results are kept.")
     queued_ttl_s: int = Field(
         86_400, ge=1, description="How long a job (and its input) may wait in the queue."
@@ -82,6 +89,13 @@ class Settings(BaseSettings):
         ge=1,
         description="How long an Idempotency-Key names its job: the same key with the same "
         "request within it answers that job again instead of queueing another.",
+    )
+    idempotency_claim_wait_s: float = Field(
+        5.0,
+        gt=0,
+        description="A key claimed this recently whose job cannot be found yet is still being "
+        "enqueued by the request that claimed it, and a retry waits for it; an older one names "
+        "a job that has expired.",
     )
     max_wait_s: int = Field(30, ge=0, description="Cap on the `Prefer: wait=N` header.")
     redis_timeout_s: float = Field(

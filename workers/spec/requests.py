@@ -21,10 +21,7 @@ from workers.spec.inputs import Input
 from workers.spec.networks import DescriptorOptions, OutputKind
 from workers.spec.problems import FieldError
 
-__all__ = ["JobRequest", "MAX_FEATURES", "feature_errors", "length_error", "output_errors"]
-
-MAX_FEATURES = 64
-"""Most feature specs one job may ask for."""
+__all__ = ["JobRequest", "feature_errors", "length_error", "output_errors"]
 
 _SIZE_FIELD = {
     PersistenceImageSpec: "resolution",
@@ -45,9 +42,8 @@ class JobRequest(BaseModel):
     features: Annotated[
         list[FeatureItem],
         Field(
-            max_length=MAX_FEATURES,
             description="Vectorisations, each of one homology dimension; the result lists "
-            "their vectors in this order.",
+            "their vectors in this order. At most `limits.max_features` of /v1/capabilities.",
         ),
     ] = []
     output: Annotated[
@@ -140,6 +136,14 @@ def feature_errors(
     """What is wrong with the features of ``request``: dimensions the job does not compute
     (``computed``), spec ids that do not match, vectors over the length limit (``copies``:
     how many times each feature repeats, once per direction)."""
+    if len(request.features) > limits.max_features:
+        return [
+            FieldError(
+                pointer="/features",
+                message=f"{len(request.features)} features is above this server's limit of "
+                f"{limits.max_features} per job",
+            )
+        ]
     errors: list[FieldError] = []
     total = 0
     for index, item in enumerate(request.features):
