@@ -82,12 +82,45 @@ def test_service_runs_without_numerical_modules() -> None:
 
 
 def test_core_imports_nothing_of_ours_outside_core() -> None:
-    # workers/core is pure: no service, spec, Flask, Redis, RQ or pydantic.
+    # workers/core is pure: no service, spec, jobs, pictures, Flask, Redis, RQ, pydantic or
+    # matplotlib.
     modules = sorted(path.stem for path in CORE.glob("*.py") if path.stem != "__init__")
     assert len(modules) >= 10  # the glob found the package
     run_with_blocked(
-        ["service", "workers.spec", "flask", "redis", "rq", "pydantic"],
+        [
+            "service",
+            "workers.spec",
+            "workers.jobs",
+            "workers.pictures",
+            "flask",
+            "redis",
+            "rq",
+            "pydantic",
+            "matplotlib",
+        ],
         "".join(f"import workers.core.{name}\n" for name in modules),
+    )
+
+
+def test_the_contract_loads_no_computation() -> None:
+    # workers/spec (the input kinds included) is what the API imports: it names the modules
+    # that compute (dotted names) but loads none of them.
+    run_with_blocked(
+        [
+            "workers.core",
+            "workers.jobs",
+            "workers.pictures",
+            "workers.compute",
+            "gudhi",
+            "scipy",
+            "matplotlib",
+            "flask",
+            "redis",
+            "rq",
+        ],
+        "import workers.spec, workers.spec.kinds, workers.spec.failures\n"
+        "from workers.spec.kinds import KINDS\n"
+        "assert all(kind.worker is not None for kind in KINDS.values())\n",
     )
 
 
