@@ -8,6 +8,7 @@ from gudhi.representations import BettiCurve, Landscape
 from persim import PersistenceImager
 from persim.persistent_entropy import persistent_entropy
 
+from tests.support.references import landscape_by_definition
 from workers.core.betti_curve import betti_curve
 from workers.core.diagrams import finite_part
 from workers.core.landscape import landscape, sample_grid
@@ -194,16 +195,6 @@ def test_blocks_of_points_give_the_same_images(sigma: float) -> None:
 # --- landscapes ----------------------------------------------------------------------------
 
 
-def brute_landscape(pairs: np.ndarray, levels: int, grid: np.ndarray) -> np.ndarray:
-    """Bubenik 2015, definition: lambda_k(t) = k-th largest of max(0, min(t - b, d - t))."""
-    values = np.zeros((levels, grid.size))
-    for column, t in enumerate(grid):
-        tents = sorted((max(0.0, min(t - b, d - t)) for b, d in pairs), reverse=True)
-        for k in range(min(levels, len(tents))):
-            values[k, column] = tents[k]
-    return values
-
-
 @pytest.mark.parametrize(("seed", "n", "levels"), [(0, 1, 3), (1, 12, 4), (2, 60, 8), (3, 5, 7)])
 def test_landscape_matches_definition(seed: int, n: int, levels: int) -> None:
     # Bubenik 2015: brute force from the definition, levels beyond the number of pairs are 0.
@@ -211,7 +202,8 @@ def test_landscape_matches_definition(seed: int, n: int, levels: int) -> None:
     grid = sample_grid((-0.2, 2.0), 301)
     values = landscape(diagram, levels=levels, grid=grid)
     assert values.shape == (levels, 301)
-    np.testing.assert_allclose(values, brute_landscape(diagram, levels, grid), rtol=0, atol=1e-12)
+    expected = landscape_by_definition(diagram, levels, grid)
+    np.testing.assert_allclose(values, expected, rtol=0, atol=1e-12)
 
 
 @pytest.mark.parametrize("seed", [4, 5])

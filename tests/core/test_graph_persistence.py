@@ -1,12 +1,11 @@
 """Persistence of filtered graphs against gudhi, networkx, Euler's formula and worked examples."""
 
-import gudhi
 import networkx as nx
 import numpy as np
 import pytest
 
+from tests.support.references import gudhi_graph_diagrams
 from workers.core import _graph
-from workers.core.diagrams import sort_pairs
 from workers.core.errors import InvalidArrayError, ParameterError
 from workers.core.graph_persistence import graph_diagrams
 

@@ -6,7 +6,6 @@ pictures (pixels of the H0 and H1 colours in the screenshot, which is kept as a 
 import io
 import shutil
 import subprocess
-from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
@@ -14,8 +13,6 @@ import pytest
 from PIL import Image
 
 from lacuna_client import Client
-from tests.support.redis import E2E_DB, with_database
-from tests.support.stack import running_stack
 from tests.support.synthetic import noisy_circle
 from workers.pictures.drawing import COLOURS
 

@@ -5,7 +5,6 @@ codes 0 (success), 1 (a job failed) and 2 (usage)."""
 import csv
 import json
 import subprocess
-from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
@@ -13,19 +12,12 @@ import pytest
 
 from lacuna_client import Client, LacunaError
 from tests.support.ports import free_port
-from tests.support.redis import E2E_DB, with_database
-from tests.support.stack import LACUNA, running_stack
+from tests.support.stack import LACUNA
 
 pytestmark = pytest.mark.e2e
 
 BETTI = {"type": "betti_curve", "dim": 1, "t_range": [0.0, 60.0], "samples": 16}
 SUMMARY = {"type": "summary", "dim": 0}
-
-
-@pytest.fixture(scope="module")
-def base(redis_server: str) -> Iterator[str]:
-    with running_stack(with_database(redis_server, E2E_DB)) as url:
-        yield url
 
 
 @pytest.fixture(scope="module")

@@ -19,9 +19,7 @@ import requests
 from lacuna_client import Client, LacunaError
 from tests.support.api import pairs_array
 from tests.support.ports import free_port
-from tests.support.redis import E2E_DB, with_database
 from tests.support.references import gudhi_diagrams
-from tests.support.stack import running_stack
 from tests.support.synthetic import HEXAGON, noisy_circle, ring_mask, smooth_field
 
 pytestmark = pytest.mark.e2e
@@ -35,12 +33,6 @@ PERSISTENCE_IMAGE = {
     "sigma": 0.1,
     "weight": {"type": "power", "exponent": 1.0},
 }
-
-
-@pytest.fixture(scope="module")
-def base(redis_server: str) -> Iterator[str]:
-    with running_stack(with_database(redis_server, E2E_DB)) as url:
-        yield url
 
 
 @pytest.fixture

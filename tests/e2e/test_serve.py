@@ -16,15 +16,16 @@ import tifffile
 from redis import Redis
 
 from tests.support.api import pairs_array
+from tests.support.bodies import rips_job
 from tests.support.ports import free_port
 from tests.support.redis import E2E_DB, with_database
 from tests.support.references import gudhi_diagrams
 from tests.support.stack import LACUNA, stop, wait_ready
-from tests.support.synthetic import HEXAGON, smooth_field
+from tests.support.synthetic import smooth_field
 
 pytestmark = pytest.mark.e2e
 
-JOB = {"input": {"type": "points", "points": HEXAGON}, "filtration": {"type": "rips", "max_dim": 2}}
+JOB = rips_job(max_dim=2)  # the regular hexagon
 
 
 def test_embedded_stack_answers_and_stops_cleanly() -> None:

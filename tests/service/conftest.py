@@ -11,7 +11,8 @@ from flask.testing import FlaskClient
 from service.app import create_app
 from service.settings import Settings
 from tests.support.api import fresh_queue
-from tests.support.worker_process import start_worker, stop_worker
+from tests.support.redis import SERVED_DB, with_database
+from tests.support.worker_process import served_on, start_worker, stop_worker
 
 
 @pytest.fixture
@@ -39,3 +40,17 @@ def worker(settings: Settings) -> Iterator[subprocess.Popen[bytes]]:
     process = start_worker(settings.redis_url, settings.queue)
     yield process
     stop_worker(process)
+
+
+@pytest.fixture(scope="module")
+def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
+    """One app and one real worker for a whole module, on SERVED_DB (flushed when a module
+    starts, not per test, so the worker keeps its registration)."""
+    with served_on(with_database(redis_server, SERVED_DB)) as served:
+        yield served
+
+
+@pytest.fixture
+def served_client(served: tuple[FlaskClient, Settings]) -> FlaskClient:
+    """The client of ``served``: jobs it submits run on the module's worker."""
+    return served[0]

@@ -2,7 +2,7 @@
 checked against gudhi and scipy, distances between finished jobs, and the 202 path with
 progress.
 
-Requests go through ``call`` (from test_errors), so no answer may be a 500.
+Requests go through ``call`` (tests/support/api.py), so no answer may be a 500.
 """
 
 import io
@@ -24,22 +24,24 @@ from werkzeug.test import TestResponse
 
 from service.settings import Settings
 from tests.support.api import (
+    JOBS,
+    WAIT,
     app_with,
     call,
     fresh_queue,
     pairs_array,
     post,
     refused,
+    result_of,
     said,
     stored_jobs,
 )
+from tests.support.bodies import rips_job
 from tests.support.synthetic import noisy_circle
 from tests.support.worker_process import start_worker, stop_worker
 
 DISTANCES = "/v1/distances"
-JOBS = "/v1/jobs"
 NPY = "application/x-npy"
-WAIT = {"Prefer": "wait=20"}
 
 A = [[0.0, 1.0], [0.5, 2.0]]
 B = [[0.0, 1.2], [0.2, 0.9]]
@@ -94,18 +96,7 @@ def wait_for(client: FlaskClient, job_id: str, states: set[str], seconds: float 
 
 
 def points_job(points: Any, max_dim: int = 1, features: list[Any] | None = None) -> dict:
-    return {
-        "input": {"type": "points", "points": points},
-        "filtration": {"type": "rips", "max_dim": max_dim},
-        "features": features or [],
-    }
-
-
-def finished_job(client: FlaskClient, body: dict[str, Any]) -> dict[str, Any]:
-    response = post(client, JOBS, body, headers=WAIT)
-    assert response.status_code == 200, response.get_data(as_text=True)
-    result: dict[str, Any] = response.get_json()
-    return result
+    return rips_job(points, max_dim=max_dim, features=features or [])
 
 
 # --- 422: one case per kind of invalid request ----------------------------------------------
@@ -297,7 +288,7 @@ def test_failed_job_is_422(redis_url: str) -> None:
 
 
 def _job_without_dim_1(client: FlaskClient) -> tuple[dict[str, Any], list[str], str]:
-    job = finished_job(client, points_job(noisy_circle(10, seed=1).tolist(), max_dim=0))
+    job = result_of(client, points_job(noisy_circle(10, seed=1).tolist(), max_dim=0))
     return (
         {"metric": "bottleneck", "dim": 1, "job_ids": [job["job_id"]]},
         ["/job_ids/0"],
@@ -316,8 +307,8 @@ def _distance_job_for_vectors(client: FlaskClient) -> tuple[dict[str, Any], list
 
 def _jobs_of_two_layouts(client: FlaskClient) -> tuple[dict[str, Any], list[str], str]:
     points = noisy_circle(10, seed=2).tolist()
-    first = finished_job(client, points_job(points, features=[BETTI, SUMMARY]))
-    second = finished_job(client, points_job(points, features=[SUMMARY, BETTI]))
+    first = result_of(client, points_job(points, features=[BETTI, SUMMARY]))
+    second = result_of(client, points_job(points, features=[SUMMARY, BETTI]))
     body = {"metric": "cosine", "job_ids": [first["job_id"], second["job_id"]]}
     return body, ["/job_ids/1"], "only vectors of one layout compare"
 
@@ -505,7 +496,7 @@ def test_vector_metrics_match_scipy(client: FlaskClient, worker: subprocess.Pope
 
 def test_distances_between_jobs(client: FlaskClient, worker: subprocess.Popen[bytes]) -> None:
     jobs = [
-        finished_job(
+        result_of(
             client, points_job(noisy_circle(30, seed=s).tolist(), features=[BETTI, SUMMARY])
         )
         for s in (21, 22, 23)

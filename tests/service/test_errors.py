@@ -20,19 +20,17 @@ from werkzeug.test import TestResponse
 
 from service.settings import Settings
 from tests.support.api import JOBS, app_with, call, fresh_queue, pointers_of, post, problem_of, said
+from tests.support.bodies import rips_job
 from tests.support.ports import free_port
 
 # --- helpers ---------------------------------------------------------------------------------
 
 
 def job_body(points: list[Any] | None = None, **filtration: Any) -> dict[str, Any]:
-    """A valid request, changed only where a test says so."""
+    """A valid request (the unit square's corners), changed only where a test says so."""
     if points is None:
         points = [[0.0, 0.0], [1.0, 0.0], [0.0, 1.0], [1.0, 1.0]]
-    return {
-        "input": {"type": "points", "points": points, "units": "um"},
-        "filtration": {"type": "rips", "max_dim": 1, "max_edge": None, **filtration},
-    }
+    return rips_job(points, units="um", **({"max_dim": 1, "max_edge": None} | filtration))
 
 
 def post_json(client: FlaskClient, body: Any, **kwargs: Any) -> TestResponse:

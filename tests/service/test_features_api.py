@@ -1,7 +1,7 @@
 """Feature vectors over HTTP: refused specs (422 with exact pointers), registered specs, and
 the vectors a real worker returns, checked against their published definitions and persim.
 
-Requests go through ``call`` (from test_errors), so no answer may be a 500.
+Requests go through ``call`` (tests/support/api.py), so no answer may be a 500.
 """
 
 import hashlib
@@ -18,6 +18,8 @@ from flask.testing import FlaskClient
 from pydantic import TypeAdapter
 
 from tests.support.api import (
+    JOBS,
+    WAIT,
     app_with,
     call,
     fresh_queue,
@@ -26,19 +28,20 @@ from tests.support.api import (
     post,
     problem_of,
     refused,
+    result_of,
     said,
     stored_jobs,
 )
+from tests.support.bodies import rips_job
+from tests.support.references import landscape_by_definition
 from tests.support.synthetic import noisy_circle
 from workers.jobs.features import feature_values
 from workers.spec import FeatureSpec
 from workers.spec.arrays import canonical_sha256
 from workers.spec.features import FEATURE_SPEC_VERSION, spec_id_of
 
-JOBS = "/v1/jobs"
 SPECS = "/v1/feature-specs"
 NPY = "application/x-npy"
-WAIT = {"Prefer": "wait=20"}
 
 IMAGE: dict[str, Any] = {
     "type": "persistence_image",
@@ -76,11 +79,7 @@ _SPEC = TypeAdapter(FeatureSpec)
 def points_body(features: list[Any], points: Any = None, **filtration: Any) -> dict[str, Any]:
     if points is None:
         points = noisy_circle(40, seed=1).tolist()
-    return {
-        "input": {"type": "points", "points": points},
-        "filtration": {"type": "rips", "max_dim": 1, **filtration},
-        "features": features,
-    }
+    return rips_job(points, features=features, **({"max_dim": 1} | filtration))
 
 
 def diagrams_body(diagrams: list[Any], features: list[Any] | None = None) -> dict[str, Any]:
@@ -94,14 +93,6 @@ def changed(spec: dict[str, Any], **changes: Any) -> dict[str, Any]:
 def diagram_of(result: dict[str, Any], dim: int) -> np.ndarray:
     (found,) = [d["pairs"] for d in result["diagrams"] if d["dim"] == dim]
     return pairs_array(found)
-
-
-def job(client: FlaskClient, body: dict[str, Any]) -> dict[str, Any]:
-    """Submit and wait for the result (a worker must be running)."""
-    response = post(client, JOBS, body, headers=WAIT)
-    assert response.status_code == 200, response.get_data(as_text=True)
-    result: dict[str, Any] = response.get_json()
-    return result
 
 
 # --- 422: feature specs and inputs, one case each ---------------------------------------------
@@ -424,17 +415,6 @@ def _betti_by_definition(pairs: np.ndarray, grid: np.ndarray) -> list[float]:
     return [float(np.sum((pairs[:, 0] <= t) & (t < pairs[:, 1]))) for t in grid]
 
 
-def _landscape_by_definition(pairs: np.ndarray, levels: int, grid: np.ndarray) -> np.ndarray:
-    # Bubenik 2015 (from memory): lambda_k(t) is the k-th largest of the tents
-    # max(0, min(t - b, d - t)).
-    values = np.zeros((levels, grid.size))
-    for column, t in enumerate(grid):
-        tents = sorted((max(0.0, min(t - b, d - t)) for b, d in pairs), reverse=True)
-        for level, tent in enumerate(tents[:levels]):
-            values[level, column] = tent
-    return values
-
-
 def _summary_by_definition(pairs: np.ndarray, order: float, quantiles: list[float]) -> list:
     lives = pairs[:, 1] - pairs[:, 0]
     lives = lives[lives > 0]
@@ -455,7 +435,7 @@ def _summary_by_definition(pairs: np.ndarray, order: float, quantiles: list[floa
 def test_all_four_feature_types_on_a_point_set(
     client: FlaskClient, worker: subprocess.Popen[bytes]
 ) -> None:
-    result = job(client, points_body(ALL_FOUR))
+    result = result_of(client, points_body(ALL_FOUR))
     models = [_SPEC.validate_python(spec) for spec in ALL_FOUR]
     vectors = result["vectors"]
     assert [v["type"] for v in vectors] == [s["type"] for s in ALL_FOUR]  # request order
@@ -502,7 +482,7 @@ def test_all_four_feature_types_on_a_point_set(
     assert np.asarray(vectors[0]["values"]).reshape(4, 8) == pytest.approx(image, abs=1e-12)
     grid = np.linspace(0.0, 2.0, 41)
     assert np.asarray(vectors[1]["values"]).reshape(2, 41) == pytest.approx(
-        _landscape_by_definition(h1, 2, grid), abs=1e-12
+        landscape_by_definition(h1, 2, grid), abs=1e-12
     )
     capped = np.where(np.isinf(h0), 2.5, h0)  # infinite "cap" at 2.5
     betti = vectors[2]["values"]
@@ -513,12 +493,12 @@ def test_all_four_feature_types_on_a_point_set(
     )
 
     # Same specs on other data: same layout, other values.
-    other = job(client, points_body(ALL_FOUR, noisy_circle(40, seed=2).tolist()))
+    other = result_of(client, points_body(ALL_FOUR, noisy_circle(40, seed=2).tolist()))
     assert other["layout_id"] == result["layout_id"]
     assert other["layout"] == result["layout"]
     assert other["vectors"][1]["values"] != vectors[1]["values"]
     # Other order, other layout.
-    swapped = job(client, points_body([LANDSCAPE, IMAGE, BETTI, SUMMARY]))
+    swapped = result_of(client, points_body([LANDSCAPE, IMAGE, BETTI, SUMMARY]))
     assert swapped["layout_id"] != result["layout_id"]
     assert swapped["vectors"][0]["values"] == vectors[1]["values"]
 
@@ -546,8 +526,8 @@ def test_registered_spec_by_id_gives_the_same_vector(
 ) -> None:
     spec_id = post(client, SPECS, LANDSCAPE).get_json()["spec_id"]
     points = noisy_circle(30, seed=5).tolist()
-    by_id = job(client, points_body([{"spec_id": spec_id}, SUMMARY], points))
-    in_full = job(client, points_body([LANDSCAPE, SUMMARY], points))
+    by_id = result_of(client, points_body([{"spec_id": spec_id}, SUMMARY], points))
+    in_full = result_of(client, points_body([LANDSCAPE, SUMMARY], points))
     assert by_id["vectors"][0]["spec_id"] == spec_id
     assert by_id["vectors"][0]["type"] == "landscape"
     assert by_id["vectors"] == in_full["vectors"]
@@ -555,7 +535,7 @@ def test_registered_spec_by_id_gives_the_same_vector(
     # The same computation: the request is recorded with the spec, not the reference.
     assert by_id["provenance"]["request_sha256"] == in_full["provenance"]["request_sha256"]
     # A full spec carrying its correct id is accepted as well.
-    carried = job(client, points_body([changed(LANDSCAPE, spec_id=spec_id), SUMMARY], points))
+    carried = result_of(client, points_body([changed(LANDSCAPE, spec_id=spec_id), SUMMARY], points))
     assert carried["vectors"] == in_full["vectors"]
 
 
@@ -568,7 +548,7 @@ def test_given_diagrams_are_normalised_and_vectorised(
     ]
     body = diagrams_body(diagrams, [changed(BETTI, dim=1, infinite="drop", cap=None), SUMMARY])
     body["input"]["units"] = "px"
-    result = job(client, body)
+    result = result_of(client, body)
     assert result["value_convention"] is None  # the client's values, the client's convention
     assert result["units"] == "px"
     # Sorted by dimension, then (birth, death) with null deaths last; zero-length pairs gone.
@@ -590,7 +570,7 @@ def test_an_empty_given_diagram_is_kept_in_the_result(
     # The client gave dimension 0 (empty) and 1; the result gives back both, so that, for
     # instance, a distance between jobs in dimension 0 finds the diagram.
     body = diagrams_body([{"dim": 0, "pairs": []}, {"dim": 1, "pairs": [[0.0, 1.0]]}])
-    result = job(client, body)
+    result = result_of(client, body)
     assert result["diagrams"] == [
         {"dim": 0, "pairs": []},
         {"dim": 1, "pairs": [[0.0, 1.0]]},
@@ -600,7 +580,7 @@ def test_an_empty_given_diagram_is_kept_in_the_result(
 def test_npy_result_equals_the_json_vectors(
     client: FlaskClient, worker: subprocess.Popen[bytes]
 ) -> None:
-    result = job(client, points_body([BETTI, SUMMARY, IMAGE]))
+    result = result_of(client, points_body([BETTI, SUMMARY, IMAGE]))
     location = f"/v1/jobs/{result['job_id']}/result"
     response = call(client, "GET", location, headers={"Accept": NPY})
     assert response.status_code == 200
@@ -652,7 +632,7 @@ def test_asking_npy_of_a_job_without_features_is_406_before_queueing(
 def test_npy_of_a_job_without_vectors_is_406(
     client: FlaskClient, worker: subprocess.Popen[bytes]
 ) -> None:
-    result = job(client, diagrams_body([{"dim": 1, "pairs": [[0.0, 1.0]]}]))
+    result = result_of(client, diagrams_body([{"dim": 1, "pairs": [[0.0, 1.0]]}]))
     assert result["vectors"] == [] and result["vector_length"] == 0
     assert result["layout"] == [] and result["layout_id"] is None
     location = f"/v1/jobs/{result['job_id']}/result"

@@ -2,46 +2,36 @@
 descriptors equal networkx's counts, skeletons of masks have the expected shape, and every bad
 input is a 422 naming its field, never a 500.
 
-Requests go through ``call`` (from test_errors), so no answer may be a 500.
+Requests go through ``call`` (tests/support/api.py), so no answer may be a 500.
 """
 
 import io
-from collections.abc import Iterator
 from typing import Any
 
-import gudhi
 import networkx as nx
 import numpy as np
 import pytest
 from flask.testing import FlaskClient
 
-from service.settings import Settings
 from tests.support.api import (
+    JOBS,
+    WAIT,
     call,
     pairs_array,
     post,
     problem_of,
     refused,
+    result_of,
     said,
 )
-from tests.support.redis import with_database
+from tests.support.references import gudhi_graph_diagrams
 from tests.support.synthetic import ring_mask
-from tests.support.worker_process import served_on
-
-JOBS = "/v1/jobs"
-WAIT = {"Prefer": "wait=30"}
-GRAPH_DB = 11  # not flushed per test: the module's worker keeps its registration
-
-
-@pytest.fixture(scope="module")
-def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
-    with served_on(with_database(redis_server, GRAPH_DB)) as served:
-        yield served
 
 
 @pytest.fixture
-def client(served: tuple[FlaskClient, Settings]) -> FlaskClient:
-    return served[0]
+def client(served_client: FlaskClient) -> FlaskClient:
+    """Every test of this module may run jobs: the module's app and worker (conftest)."""
+    return served_client
 
 
 def random_graph(seed: int, n: int = 60, radius: float = 0.22) -> tuple[np.ndarray, np.ndarray]:
@@ -58,32 +48,6 @@ def graph_body(points: np.ndarray, edges: np.ndarray, **rest: Any) -> dict[str, 
         "input": {"type": "graph", "nodes": points.tolist(), "edges": edges.tolist()},
         **rest,
     }
-
-
-def result_of(client: FlaskClient, body: dict[str, Any]) -> dict[str, Any]:
-    response = post(client, JOBS, body, headers=WAIT)
-    assert response.status_code == 200, response.get_data(as_text=True)
-    answer: dict[str, Any] = response.get_json()
-    return answer
-
-
-def gudhi_graph_diagrams(values: np.ndarray, edges: np.ndarray) -> list[np.ndarray]:
-    """H0 and H1 of the sublevel filtration of a graph from a gudhi SimplexTree holding the
-    same vertices and edges (reference library): an edge enters with its later end."""
-    tree = gudhi.SimplexTree()
-    for node, value in enumerate(values):
-        if np.isfinite(value):
-            tree.insert([node], filtration=float(value))
-    for u, v in edges:
-        if np.isfinite(values[u]) and np.isfinite(values[v]):
-            tree.insert([int(u), int(v)], filtration=float(max(values[u], values[v])))
-    tree.persistence(persistence_dim_max=True)
-    found = []
-    for dim in (0, 1):
-        pairs = tree.persistence_intervals_in_dimension(dim).reshape(-1, 2)
-        pairs = pairs[pairs[:, 1] > pairs[:, 0]]
-        found.append(pairs[np.lexsort((pairs[:, 1], pairs[:, 0]))])
-    return found
 
 
 def diagrams_of(result: dict[str, Any]) -> list[np.ndarray]:

@@ -16,20 +16,14 @@ import pytest
 from flask.testing import FlaskClient
 
 from service.queue import IDEMPOTENCY_PREFIX
-from tests.support.api import post, problem_of, stored_jobs
-from tests.support.synthetic import HEXAGON
+from tests.support.api import JOBS, post, problem_of, stored_jobs
+from tests.support.bodies import rips_job
 from workers.spec.arrays import to_npy_bytes
 from workers.spec.problems import PROBLEM_TYPE
 
-JOBS = "/v1/jobs"
-
-
-def body(points: Any = HEXAGON) -> dict[str, Any]:
-    return {"input": {"type": "points", "points": points}, "filtration": {"type": "rips"}}
-
 
 def submit(client: FlaskClient, key: str, payload: dict[str, Any] | None = None) -> str:
-    answer = post(client, JOBS, payload or body(), headers={"Idempotency-Key": key})
+    answer = post(client, JOBS, payload or rips_job(), headers={"Idempotency-Key": key})
     assert answer.status_code == 202, answer.get_data(as_text=True)
     job_id: str = answer.get_json()["job_id"]
     assert answer.headers["Location"] == f"/v1/jobs/{job_id}"
@@ -45,14 +39,14 @@ def test_the_same_key_and_body_answer_the_same_job(client: FlaskClient) -> None:
 
 
 def test_without_a_key_every_submission_is_a_new_job(client: FlaskClient) -> None:
-    ids = {post(client, JOBS, body()).get_json()["job_id"] for _ in range(3)}
+    ids = {post(client, JOBS, rips_job()).get_json()["job_id"] for _ in range(3)}
     assert len(ids) == 3 and stored_jobs(client) == 3
 
 
 def test_the_same_key_with_another_body_is_422(client: FlaskClient) -> None:
     key = str(uuid.uuid4())
     first = submit(client, key)
-    other = body([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
+    other = rips_job([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
     problem = problem_of(post(client, JOBS, other, headers={"Idempotency-Key": key}), 422)
     assert problem["type"] == PROBLEM_TYPE + "idempotency-key-reused"
     assert "Idempotency-Key" in problem["detail"] and first in problem["detail"]
@@ -68,7 +62,7 @@ def test_equal_requests_spelled_differently_are_the_same_request(client: FlaskCl
     # The request hash is of the validated request, so key order and spacing do not count.
     key = str(uuid.uuid4())
     first = submit(client, key)
-    spelled = json.dumps({"filtration": {"type": "rips"}, **body()}, indent=3)
+    spelled = json.dumps({"filtration": {"type": "rips"}, **rips_job()}, indent=3)
     answer = client.post(
         JOBS, data=spelled, content_type="application/json", headers={"Idempotency-Key": key}
     )
@@ -124,14 +118,14 @@ def test_a_key_whose_job_expired_starts_over(client: FlaskClient) -> None:
 
 def test_a_refused_request_does_not_use_up_the_key(client: FlaskClient) -> None:
     key = str(uuid.uuid4())
-    bad = post(client, JOBS, body([[0.0, "x"]]), headers={"Idempotency-Key": key})
+    bad = post(client, JOBS, rips_job([[0.0, "x"]]), headers={"Idempotency-Key": key})
     problem_of(bad, 422)
     assert submit(client, key)  # the key is still free for a valid request
 
 
 @pytest.mark.parametrize("key", ["", "a b", "x" * 256, '"unbalanced', "tab\there", "é"])
 def test_an_unusable_key_is_400(client: FlaskClient, key: str) -> None:
-    answer = post(client, JOBS, body(), headers={"Idempotency-Key": key})
+    answer = post(client, JOBS, rips_job(), headers={"Idempotency-Key": key})
     problem = problem_of(answer, 400)
     assert problem["type"] == PROBLEM_TYPE + "idempotency-key-invalid"
     assert "Idempotency-Key" in problem["detail"]

@@ -2,7 +2,7 @@
 the same diagrams (checked against gudhi), limits and decompression bombs are refused before
 allocating, and every bad input is a 422 naming its field, never a 500.
 
-Requests go through ``call`` (from test_errors), so no answer may be a 500.
+Requests go through ``call`` (tests/support/api.py), so no answer may be a 500.
 """
 
 import io
@@ -11,7 +11,6 @@ import math
 import struct
 import tracemalloc
 import zlib
-from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
@@ -25,6 +24,8 @@ from werkzeug.test import TestResponse
 
 from service.settings import Settings
 from tests.support.api import (
+    JOBS,
+    WAIT,
     app_with,
     call,
     fresh_queue,
@@ -35,26 +36,10 @@ from tests.support.api import (
     said,
     stored_jobs,
 )
-from tests.support.redis import with_database
+from tests.support.bodies import rips_job
 from tests.support.references import gudhi_diagrams
 from tests.support.synthetic import ring_mask, smooth_field
-from tests.support.worker_process import served_on
 from workers.spec.arrays import to_npy_bytes as npy
-
-JOBS = "/v1/jobs"
-WAIT = {"Prefer": "wait=30"}
-IMAGE_DB = 12  # not flushed per test: the module's worker keeps its registration
-
-
-@pytest.fixture(scope="module")
-def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
-    with served_on(with_database(redis_server, IMAGE_DB)) as served:
-        yield served
-
-
-@pytest.fixture
-def served_client(served: tuple[FlaskClient, Settings]) -> FlaskClient:
-    return served[0]
 
 
 def upload(
@@ -840,10 +825,7 @@ def test_result_over_the_pair_limit_fails_with_a_problem(
     assert "above the limit of 50 per result" in problem["detail"]
     assert [e["pointer"] for e in problem["errors"]] == ["/filtration"]
     # The cap holds for every job: 100 random points have more than 50 pairs in H0 and H1.
-    points = {
-        "input": {"type": "points", "points": np.random.default_rng(9).random((100, 2)).tolist()},
-        "filtration": {"type": "rips", "max_dim": 1},
-    }
+    points = rips_job(np.random.default_rng(9).random((100, 2)).tolist(), max_dim=1)
     failed = post(client, JOBS, points, headers=WAIT).get_json()
     assert failed["status"] == "failed"
     assert "above the limit of 50 per result" in failed["problem"]["detail"]

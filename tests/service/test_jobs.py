@@ -14,25 +14,18 @@ from rq.serializers import JSONSerializer
 
 from service.app import create_app
 from service.settings import Settings
+from tests.support.bodies import rips_job
 from tests.support.processes import children_of, process_state
-from tests.support.synthetic import HEXAGON
 from tests.support.worker_process import start_worker, stop_worker
 from workers.jobs import execute
 from workers.spec import JobPayload
-
-
-def job_body(points: Any = HEXAGON, **filtration: Any) -> dict[str, Any]:
-    return {
-        "input": {"type": "points", "points": points},
-        "filtration": {"type": "rips", "max_dim": 1} | filtration,
-    }
 
 
 def heavy_body() -> dict[str, Any]:
     # H2 of 2000 random points in 3D: tens of seconds (the edge collapse of ~2M edges), so
     # it runs past the limits below; the test checks that the native loop is really stopped.
     points = np.random.default_rng(0).uniform(size=(2000, 3)).tolist()
-    return job_body(points, max_dim=2)
+    return rips_job(points, max_dim=2)
 
 
 def wait_for(client: FlaskClient, job_id: str, states: set[str], seconds: float = 20) -> dict:
@@ -45,7 +38,7 @@ def wait_for(client: FlaskClient, job_id: str, states: set[str], seconds: float 
 
 
 def test_submit_poll_fetch(client: FlaskClient, worker: subprocess.Popen[bytes]) -> None:
-    answer = client.post("/v1/jobs", json=job_body())
+    answer = client.post("/v1/jobs", json=rips_job())
     assert answer.status_code == 202
     job_id = answer.get_json()["job_id"]
     assert answer.headers["Location"] == f"/v1/jobs/{job_id}"
@@ -64,9 +57,7 @@ def test_submit_poll_fetch(client: FlaskClient, worker: subprocess.Popen[bytes])
 
 
 def test_prefer_wait_answers_inline(client: FlaskClient, worker: subprocess.Popen[bytes]) -> None:
-    body = job_body()
-    body["input"]["units"] = "um"
-    answer = client.post("/v1/jobs", json=body, headers={"Prefer": "wait=20"})
+    answer = client.post("/v1/jobs", json=rips_job(units="um"), headers={"Prefer": "wait=20"})
     assert answer.status_code == 200
     result = answer.get_json()
     assert result["units"] == "um"
@@ -78,7 +69,7 @@ def test_prefer_wait_on_result_and_status(
     client: FlaskClient, worker: subprocess.Popen[bytes]
 ) -> None:
     # RFC 7240 wait applies to any request: a client can long-poll instead of polling.
-    location = client.post("/v1/jobs", json=job_body()).headers["Location"]
+    location = client.post("/v1/jobs", json=rips_job()).headers["Location"]
     result = client.get(location + "/result", headers={"Prefer": "wait=20"})
     assert result.status_code == 200
     assert len(result.get_json()["diagrams"]) == 2
@@ -90,7 +81,7 @@ def test_prefer_wait_on_result_and_status(
 
 def test_prefer_wait_times_out_with_202(client: FlaskClient) -> None:
     started = time.monotonic()
-    answer = client.post("/v1/jobs", json=job_body(), headers={"Prefer": "wait=1"})
+    answer = client.post("/v1/jobs", json=rips_job(), headers={"Prefer": "wait=1"})
     assert answer.status_code == 202  # no worker: the job is still queued after 1 s
     assert answer.get_json()["status"] == "queued"
     assert 0.9 <= time.monotonic() - started < 5
@@ -100,7 +91,7 @@ def test_worker_result_equals_inline(
     client: FlaskClient, worker: subprocess.Popen[bytes], settings: Settings
 ) -> None:
     points = np.random.default_rng(3).normal(size=(150, 3))
-    body = job_body(points.tolist(), subsample={"method": "maxmin", "size": 80, "seed": 4})
+    body = rips_job(points.tolist(), subsample={"method": "maxmin", "size": 80, "seed": 4})
     result = client.post("/v1/jobs", json=body, headers={"Prefer": "wait=20"}).get_json()
     queue = client.application.extensions["lacuna"].queue
     job = Job.fetch(result["job_id"], connection=queue.redis, serializer=JSONSerializer)
@@ -112,7 +103,7 @@ def test_worker_result_equals_inline(
 
 
 def test_cancel_queued_job(client: FlaskClient, settings: Settings) -> None:
-    job_id = client.post("/v1/jobs", json=job_body()).get_json()["job_id"]
+    job_id = client.post("/v1/jobs", json=rips_job()).get_json()["job_id"]
     answer = client.delete(f"/v1/jobs/{job_id}")
     assert answer.status_code == 200
     assert answer.get_json()["status"] == "cancelled"
@@ -137,7 +128,7 @@ def test_cancel_running_job_stops_it(client: FlaskClient, worker: subprocess.Pop
     assert status["status"] == "cancelled"
     assert time.monotonic() - asked < 3
     # The same worker takes the next job at once: its compute process was replaced.
-    follow = client.post("/v1/jobs", json=job_body(), headers={"Prefer": "wait=10"})
+    follow = client.post("/v1/jobs", json=rips_job(), headers={"Prefer": "wait=10"})
     assert follow.status_code == 200
 
 
@@ -156,7 +147,7 @@ def test_time_limit_stops_native_code(redis_url: str) -> None:
         assert "time limit" in status["problem"]["detail"]
         assert time.monotonic() - started < 6
         # 200 points: above the size that runs inline, so the follow-up needs a compute child.
-        follow_up = job_body(np.random.default_rng(1).uniform(size=(200, 2)).tolist())
+        follow_up = rips_job(np.random.default_rng(1).uniform(size=(200, 2)).tolist())
         follow = client.post("/v1/jobs", json=follow_up, headers={"Prefer": "wait=10"})
         assert follow.status_code == 200
         # The overrunning child was killed and reaped: the worker has one compute child,

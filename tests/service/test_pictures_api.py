@@ -9,7 +9,6 @@ import base64
 import io
 import re
 import xml.etree.ElementTree as ElementTree
-from collections.abc import Iterator
 from html.parser import HTMLParser
 from typing import Any
 
@@ -18,14 +17,10 @@ from flask.testing import FlaskClient
 from PIL import Image
 
 from service.settings import Settings
-from tests.support.api import app_with, call, fresh_queue, post, problem_of
-from tests.support.redis import with_database
+from tests.support.api import JOBS, WAIT, app_with, call, fresh_queue, post, problem_of, result_of
+from tests.support.bodies import rips_job
 from tests.support.synthetic import noisy_circle
-from tests.support.worker_process import served_on
 
-JOBS = "/v1/jobs"
-WAIT = {"Prefer": "wait=30"}
-PICTURE_DB = 11  # shared with test_graphs_api, one module after the other
 IMAGE_FEATURE = {
     "type": "persistence_image",
     "dim": 1,
@@ -38,12 +33,6 @@ IMAGE_FEATURE = {
 
 
 @pytest.fixture(scope="module")
-def served(redis_server: str) -> Iterator[tuple[FlaskClient, Settings]]:
-    with served_on(with_database(redis_server, PICTURE_DB)) as served:
-        yield served
-
-
-@pytest.fixture(scope="module")
 def client(served: tuple[FlaskClient, Settings]) -> FlaskClient:
     return served[0]
 
@@ -51,14 +40,8 @@ def client(served: tuple[FlaskClient, Settings]) -> FlaskClient:
 @pytest.fixture(scope="module")
 def circle_job(client: FlaskClient) -> tuple[str, dict[str, Any]]:
     """A noisy circle's H0 and H1 with a persistence image of H1: its id and result."""
-    body = {
-        "input": {"type": "points", "points": noisy_circle(40, seed=2).tolist(), "units": "um"},
-        "filtration": {"type": "rips", "max_dim": 1},
-        "features": [IMAGE_FEATURE],
-    }
-    answer = post(client, JOBS, body, headers=WAIT)
-    assert answer.status_code == 200, answer.get_data(as_text=True)
-    result: dict[str, Any] = answer.get_json()
+    points = noisy_circle(40, seed=2).tolist()
+    result = result_of(client, rips_job(points, units="um", max_dim=1, features=[IMAGE_FEATURE]))
     return result["job_id"], result
 
 
@@ -237,10 +220,7 @@ def test_page_of_a_failed_job_shows_its_problem(served: tuple[FlaskClient, Setti
     _, settings = served
     strict = app_with(redis_url=settings.redis_url, queue=settings.queue, max_result_pairs=1)
     client = strict.test_client()
-    body = {
-        "input": {"type": "points", "points": noisy_circle(20, seed=1).tolist()},
-        "filtration": {"type": "rips", "max_dim": 1},
-    }
+    body = rips_job(noisy_circle(20, seed=1).tolist(), max_dim=1)
     answer = post(client, JOBS, body, headers=WAIT)
     assert answer.get_json()["status"] == "failed"
     page = call(client, "GET", answer.headers["Location"], headers={"Accept": "text/html"})

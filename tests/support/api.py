@@ -21,6 +21,8 @@ from tests.support.waiting import wait_until
 
 PROBLEM_JSON = "application/problem+json"
 JOBS = "/v1/jobs"
+WAIT = {"Prefer": "wait=30"}
+"""Asks the API to answer a job inline once it ends (RFC 7240), for up to 30 s."""
 
 
 def fresh_queue() -> str:
@@ -108,3 +110,12 @@ def pairs_array(pairs: list[list[float | None]]) -> np.ndarray:
     return np.array(
         [[b, math.inf if d is None else d] for b, d in pairs], dtype=np.float64
     ).reshape(-1, 2)
+
+
+def result_of(client: FlaskClient, body: dict[str, Any], path: str = JOBS) -> dict[str, Any]:
+    """POST ``body`` asking to wait for the answer (RFC 7240), then the 200 answer's JSON: the
+    job succeeded within the wait (a worker must be running)."""
+    response = post(client, path, body, headers=WAIT)
+    assert response.status_code == 200, response.get_data(as_text=True)
+    result: dict[str, Any] = response.get_json()
+    return result

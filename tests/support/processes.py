@@ -1,5 +1,6 @@
 """What /proc says about processes (Linux): who is whose child, and in which state."""
 
+import subprocess
 from pathlib import Path
 
 
@@ -47,3 +48,13 @@ def process_state(pid: int) -> str:
 def running(pid: int) -> bool:
     """True while ``pid`` exists and is not a zombie."""
     return process_state(pid) not in {"Z", "gone"}
+
+
+def terminate(process: subprocess.Popen[bytes], seconds: float = 15) -> None:
+    """SIGTERM ``process`` and reap it; SIGKILL it if it has not ended within ``seconds``."""
+    process.terminate()
+    try:
+        process.wait(seconds)
+    except subprocess.TimeoutExpired:
+        process.kill()
+        process.wait()

@@ -18,6 +18,7 @@ from redis import Redis
 from redis.exceptions import RedisError
 
 from tests.support.ports import free_port
+from tests.support.processes import terminate
 
 SHARED_URL_VARIABLE = "LACUNA_TEST_REDIS_URL"
 """The one way to point the suite at a Redis it did not start."""
@@ -27,6 +28,10 @@ TEST_DB = 13
 
 E2E_DB = 14
 """Database of the end-to-end tests (real `lacuna serve` processes)."""
+
+SERVED_DB = 12
+"""Database of the service modules that share one app and one worker (the ``served``
+fixture): flushed when such a module starts, not per test."""
 
 
 class RedisUnavailable(RuntimeError):
@@ -68,12 +73,7 @@ def own_redis_server() -> Iterator[str]:
             time.sleep(0.05)
         yield url
     finally:
-        process.terminate()
-        try:
-            process.wait(10)
-        except subprocess.TimeoutExpired:
-            process.kill()
-            process.wait()
+        terminate(process, 10)
         shutil.rmtree(folder, ignore_errors=True)
 
 

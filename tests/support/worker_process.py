@@ -14,6 +14,7 @@ from rq.serializers import JSONSerializer
 from service.app import create_app
 from service.settings import Settings
 from tests.support.api import fresh_queue
+from tests.support.processes import terminate
 from tests.support.waiting import wait_until
 
 
@@ -51,12 +52,8 @@ def start_worker(redis_url: str, queue: str) -> subprocess.Popen[bytes]:
 
 
 def stop_worker(process: subprocess.Popen[bytes]) -> None:
-    process.terminate()
-    try:
-        process.wait(15)
-    except subprocess.TimeoutExpired:
-        process.kill()
-        process.wait()
+    """SIGTERM the worker and reap it (SIGKILL after 15 s)."""
+    terminate(process)
 
 
 @contextmanager
