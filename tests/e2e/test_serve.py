@@ -6,7 +6,6 @@ import math
 import os
 import signal
 import subprocess
-import time
 import uuid
 
 import numpy as np
@@ -20,8 +19,9 @@ from tests.support.bodies import rips_job
 from tests.support.ports import free_port
 from tests.support.redis import E2E_DB, with_database
 from tests.support.references import gudhi_diagrams
-from tests.support.stack import LACUNA, stop, wait_ready
+from tests.support.stack import LACUNA, answers, stop, wait_ready
 from tests.support.synthetic import smooth_field
+from tests.support.waiting import wait_until
 
 pytestmark = pytest.mark.e2e
 
@@ -110,15 +110,8 @@ def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:
     worker = None
     base = f"http://127.0.0.1:{port}"
     try:
-        deadline = time.monotonic() + 30
-        while True:  # up, but not ready: no worker yet
-            try:
-                if requests.get(base + "/healthz", timeout=1).status_code == 200:
-                    break
-            except requests.RequestException:
-                assert time.monotonic() < deadline
-                time.sleep(0.1)
-        assert requests.get(base + "/readyz").status_code == 503
+        wait_until(lambda: answers(base + "/healthz"), 60, f"{base}/healthz answering 200")
+        assert requests.get(base + "/readyz").status_code == 503  # up, but no worker yet
         # A chunked body (no Content-Length) above the limit is refused, not cut at the limit
         # and parsed from its first bytes (gunicorn hands it over read up to the limit).
         big = json.dumps({**JOB, "padding": "x" * 6000}).encode()
@@ -134,10 +127,13 @@ def test_shared_redis_api_and_separate_worker(redis_server: str) -> None:
         worker = subprocess.Popen([LACUNA, "worker", "--redis", url], env=env)
         wait_ready(base)
         job_url = base + submitted.headers["Location"]
-        deadline = time.monotonic() + 30
-        while requests.get(job_url).json()["status"] != "succeeded":
-            assert time.monotonic() < deadline
-            time.sleep(0.1)
+        wait_until(
+            lambda: requests.get(job_url).json()["status"] in {"succeeded", "failed"},
+            60,
+            f"{job_url} ended",
+            interval=0.1,
+        )
+        assert requests.get(job_url).json()["status"] == "succeeded"
         assert len(requests.get(job_url + "/result").json()["diagrams"]) == 3
         assert stop(worker, signal.SIGTERM) == set()
         assert stop(api, signal.SIGTERM) == set()

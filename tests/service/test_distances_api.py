@@ -34,6 +34,7 @@ from tests.support.api import (
     refused,
     result_of,
     said,
+    status_once,
     stored_jobs,
 )
 from tests.support.bodies import rips_job
@@ -84,15 +85,6 @@ def answered(response: TestResponse) -> dict[str, Any]:
     answer: dict[str, Any] = response.get_json()
     assert response.headers["Location"] == f"/v1/jobs/{answer['job_id']}"
     return answer
-
-
-def wait_for(client: FlaskClient, job_id: str, states: set[str], seconds: float = 30) -> dict:
-    deadline = time.monotonic() + seconds
-    while True:
-        status: dict[str, Any] = call(client, "GET", f"/v1/jobs/{job_id}").get_json()
-        if status["status"] in states or time.monotonic() > deadline:
-            return status
-        time.sleep(0.05)
 
 
 def points_job(points: Any, max_dim: int = 1, features: list[Any] | None = None) -> dict:
@@ -277,7 +269,7 @@ def test_failed_job_is_422(redis_url: str) -> None:
     try:
         heavy = np.random.default_rng(0).uniform(size=(2000, 3)).tolist()  # H2: tens of s
         job_id = post(client, JOBS, points_job(heavy, max_dim=2)).get_json()["job_id"]
-        assert wait_for(client, job_id, {"failed", "succeeded"})["status"] == "failed"
+        assert status_once(client, job_id, {"failed", "succeeded"})["status"] == "failed"
         before = stored_jobs(client)
         body = {"metric": "wasserstein", "dim": 0, "job_ids": [job_id]}
         problem = refused(post(client, DISTANCES, body), ["/job_ids/0"], "failed")
@@ -496,9 +488,7 @@ def test_vector_metrics_match_scipy(client: FlaskClient, worker: subprocess.Pope
 
 def test_distances_between_jobs(client: FlaskClient, worker: subprocess.Popen[bytes]) -> None:
     jobs = [
-        result_of(
-            client, points_job(noisy_circle(30, seed=s).tolist(), features=[BETTI, SUMMARY])
-        )
+        result_of(client, points_job(noisy_circle(30, seed=s).tolist(), features=[BETTI, SUMMARY]))
         for s in (21, 22, 23)
     ]
     ids = [job["job_id"] for job in jobs]
@@ -587,7 +577,7 @@ def test_large_request_answers_202_and_reports_progress(few_inline: FlaskClient)
     response = post(few_inline, DISTANCES, two, headers={"Prefer": "wait=0"})
     assert response.status_code == 202
     job_id = response.get_json()["job_id"]
-    assert wait_for(few_inline, job_id, {"succeeded", "failed"})["status"] == "succeeded"
+    assert status_once(few_inline, job_id, {"succeeded", "failed"})["status"] == "succeeded"
 
 
 # --- capabilities ----------------------------------------------------------------------------

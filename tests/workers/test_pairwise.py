@@ -7,6 +7,7 @@ import numpy as np
 import pytest
 
 from tests.support.processes import descendants, running
+from tests.support.waiting import wait_until
 from workers.compute import ComputeProcess, JobAborted
 from workers.core.diagram_distances import DiagramMetric, diagram_distance
 from workers.jobs import execute_bytes
@@ -124,9 +125,10 @@ def test_progress_reaches_the_worker_and_a_kill_stops_the_forked_processes() -> 
         assert progress[0] == (0, 7140)
         assert any(0 < done < 7140 for done, _ in progress)
         # The compute child and the processes it forked are all gone.
-        deadline = time.monotonic() + 5
-        while descendants(os.getpid()) - before and time.monotonic() < deadline:
-            time.sleep(0.05)
-        assert not [pid for pid in descendants(os.getpid()) - before if running(pid)]
+        wait_until(
+            lambda: not [pid for pid in descendants(os.getpid()) - before if running(pid)],
+            30,
+            "the compute child and the processes it forked ended",
+        )
     finally:
         compute.close()
