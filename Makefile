@@ -34,6 +34,7 @@ serve: install
 
 lint: install-dev
 	$(BIN)/ruff check lacuna_client service workers tests
+	$(BIN)/ruff format --check lacuna_client service workers tests
 	$(BIN)/mypy
 
 # Headless Chromium for the job page test, from Debian's packages where apt-get is there and

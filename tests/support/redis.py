@@ -60,8 +60,19 @@ def own_redis_server() -> Iterator[str]:
     port = free_port()
     folder = tempfile.mkdtemp(prefix="lacuna-test-redis-")
     process = subprocess.Popen(
-        [redis_binary(), "--port", str(port), "--bind", "127.0.0.1", "--save", "",
-         "--appendonly", "no", "--dir", folder],
+        [
+            redis_binary(),
+            "--port",
+            str(port),
+            "--bind",
+            "127.0.0.1",
+            "--save",
+            "",
+            "--appendonly",
+            "no",
+            "--dir",
+            folder,
+        ],
         stdout=subprocess.DEVNULL,
     )
     url = f"redis://127.0.0.1:{port}/0"

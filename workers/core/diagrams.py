@@ -76,4 +76,3 @@ def split_essential(pairs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     pairs = np.asarray(pairs, dtype=np.float64).reshape(-1, 2)
     essential = np.isinf(pairs[:, 1])
     return pairs[~essential], pairs[essential, 0]
-

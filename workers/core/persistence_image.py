@@ -137,9 +137,12 @@ def persistence_images(
         _cdf_steps(block[:, 0], birth_edges, sigma, along_birth)
         _cdf_steps(persistence, persistence_edges, sigma, along_persistence)
         # 0.25: each axis's erf differences are twice the Gaussian mass (see _cdf_steps).
-        along_birth *= 0.25 * point_weights(
-            persistence, weight, max_persistence=max_persistence, exponent=exponent
-        )[:, None]
+        along_birth *= (
+            0.25
+            * point_weights(
+                persistence, weight, max_persistence=max_persistence, exponent=exponent
+            )[:, None]
+        )
         # Each diagram whose points fall in this block adds its share: A^T @ B.
         first = int(np.searchsorted(offsets, start, side="right")) - 1
         stop = start + len(block)

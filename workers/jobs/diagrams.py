@@ -31,6 +31,5 @@ def runs_inline(payload: JobPayload) -> bool:
         return False
     values = sum(vector_length(spec) for spec in task.features)
     return (
-        payload.input.shape[0] <= defaults.INLINE_MAX_PAIRS
-        and values <= defaults.INLINE_MAX_VALUES
+        payload.input.shape[0] <= defaults.INLINE_MAX_PAIRS and values <= defaults.INLINE_MAX_VALUES
     )

@@ -173,4 +173,3 @@ def _serve_chunks(
     finally:
         sender.close()
         os._exit(code)
-

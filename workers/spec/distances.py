@@ -46,7 +46,7 @@ DiagramItem = Annotated[
     Discriminator(
         _diagram_kind,
         custom_error_type="diagram_item",
-        custom_error_message='a diagram is a list of [birth, death] pairs or an object '
+        custom_error_message="a diagram is a list of [birth, death] pairs or an object "
         '{"dim": k, "pairs": [...]}',
     ),
 ]
@@ -84,8 +84,9 @@ class DistanceRequest(BaseModel):
     ] = None
     dim: Annotated[
         Dimension | None,
-        Field(description="Homology dimension compared; required with job_ids and a diagram "
-        "metric."),
+        Field(
+            description="Homology dimension compared; required with job_ids and a diagram metric."
+        ),
     ] = None
     diagrams: Annotated[list[DiagramItem] | None, Field(min_length=1)] = None
     vectors: Annotated[

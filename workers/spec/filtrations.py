@@ -61,8 +61,11 @@ ArrayMaxDim = Annotated[
 
 Vector = Annotated[
     list[Coordinate],
-    Field(min_length=2, max_length=3, description="One number per array axis, in array-axis "
-          "order (the order of `spacing`)."),
+    Field(
+        min_length=2,
+        max_length=3,
+        description="One number per array axis, in array-axis order (the order of `spacing`).",
+    ),
 ]
 
 
@@ -173,8 +176,13 @@ class RadialFiltration(BaseModel):
 
 GraphMaxDim = Annotated[
     int | None,
-    Field(strict=True, ge=0, le=1, description="Highest homology dimension, 0 or 1 (a graph "
-          "has no higher classes). Default: 1."),
+    Field(
+        strict=True,
+        ge=0,
+        le=1,
+        description="Highest homology dimension, 0 or 1 (a graph "
+        "has no higher classes). Default: 1.",
+    ),
 ]
 
 

@@ -62,9 +62,7 @@ def _nesting(values: Any) -> str:
 
 
 PixelValues = Annotated[
-    Annotated[
-        list[Annotated[list[Pixel], Field(min_length=1)]], Field(min_length=1), Tag("rows")
-    ]
+    Annotated[list[Annotated[list[Pixel], Field(min_length=1)]], Field(min_length=1), Tag("rows")]
     | Annotated[
         list[Annotated[list[Annotated[list[Pixel], Field(min_length=1)]], Field(min_length=1)]],
         Field(min_length=1),
@@ -132,7 +130,7 @@ class MaskInput(BaseModel):
             "pixels become nodes at their physical centres, touching pixels are joined by "
             "edges, adjacent junction pixels merge into one branch point, and each node's "
             "radius is the distance to the background. The job then takes graph filtrations "
-            'and outputs, like a "graph" input.'
+            'and outputs, like a "graph" input.',
         ),
     ] = False
 

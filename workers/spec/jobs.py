@@ -127,16 +127,20 @@ class PersistenceTask(BaseModel):
     filtration: Filtration | None
     given_dims: Annotated[
         list[int],
-        Field(description="Dimensions of the given diagrams, empty ones included (input "
-        "type diagrams)."),
+        Field(
+            description="Dimensions of the given diagrams, empty ones included (input "
+            "type diagrams)."
+        ),
     ] = []
     features: Annotated[
         list[FeatureSpec], Field(description="Resolved specs, each with its spec_id set.")
     ] = []
     spacing: Annotated[
         list[float] | None,
-        Field(description="Pixel size per axis (image and mask inputs), or the scale of each "
-              "coordinate axis (graph inputs)."),
+        Field(
+            description="Pixel size per axis (image and mask inputs), or the scale of each "
+            "coordinate axis (graph inputs)."
+        ),
     ] = None
     output: list[OutputKind] = ["diagrams"]
     descriptors: DescriptorOptions | None = None

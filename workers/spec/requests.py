@@ -53,7 +53,7 @@ class JobRequest(BaseModel):
             max_length=3,
             description='What the result holds: "diagrams" (the persistence diagrams and '
             'feature vectors), "descriptors" (network descriptors) and "graph" (the nodes '
-            'and edges the job worked on); the last two for graph inputs and skeletonized '
+            "and edges the job worked on); the last two for graph inputs and skeletonized "
             "masks. A graph job that asks only for descriptors or the graph needs no "
             "filtration.",
         ),
@@ -84,6 +84,7 @@ class JobRequest(BaseModel):
         """This request with the features at the given positions replaced by full specs."""
         features = [resolved.get(index, item) for index, item in enumerate(self.features)]
         return self.model_copy(update={"features": features})
+
 
 def length_error(spec: FeatureSpec, where: str, limits: Limits) -> FieldError | None:
     """A FieldError at the field that sets the length of ``spec`` when it is over the limit."""
@@ -176,5 +177,3 @@ def feature_errors(
             )
         )
     return errors
-
-

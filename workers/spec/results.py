@@ -58,8 +58,10 @@ class Diagram(BaseModel):
 
 DirectionIndex = Annotated[
     int | None,
-    Field(description="Position of the direction in the request's `directions` (null "
-          "without directions)."),
+    Field(
+        description="Position of the direction in the request's `directions` (null "
+        "without directions)."
+    ),
 ]
 
 
@@ -186,8 +188,10 @@ class JobResult(BaseModel):
     ]
     per_direction: Annotated[
         list[DirectionDiagrams] | None,
-        Field(description="One diagram set per direction, in request order (filtrations "
-              "with `directions`)."),
+        Field(
+            description="One diagram set per direction, in request order (filtrations "
+            "with `directions`)."
+        ),
     ] = None
     vectors: Annotated[
         list[FeatureVector], Field(description="One per requested feature, in request order.")
@@ -217,12 +221,16 @@ class JobResult(BaseModel):
     ] = None
     unreached_nodes: Annotated[
         int | None,
-        Field(description="Nodes a geodesic filtration never reaches (no path from a seed): "
-              "they and their edges are in no diagram."),
+        Field(
+            description="Nodes a geodesic filtration never reaches (no path from a seed): "
+            "they and their edges are in no diagram."
+        ),
     ] = None
     warnings: Annotated[
         list[FieldError],
-        Field(description="What the job changed in its input, e.g. self-loops or repeated "
-              "edges it dropped, each at the field it concerns."),
+        Field(
+            description="What the job changed in its input, e.g. self-loops or repeated "
+            "edges it dropped, each at the field it concerns."
+        ),
     ] = []
     provenance: Provenance

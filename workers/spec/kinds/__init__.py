@@ -32,8 +32,7 @@ __all__ = [
 ]
 
 KINDS: dict[str, InputKind[Any]] = {
-    kind.type: kind
-    for kind in (PointsKind(), DiagramsKind(), ImageKind(), MaskKind(), GraphKind())
+    kind.type: kind for kind in (PointsKind(), DiagramsKind(), ImageKind(), MaskKind(), GraphKind())
 }
 """Every input kind by its ``type`` (the tag of the input in a request, and the stored type
 of its array)."""

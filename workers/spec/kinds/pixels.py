@@ -40,6 +40,7 @@ __all__ = [
 UPLOAD_POINTER = "/data"
 """Pointer naming the uploaded file part of a multipart request."""
 
+
 def array_of_values(values: list[Any]) -> np.ndarray | FieldError:
     """The nested lists of ``values`` as a float64 array, or a FieldError at the first row whose
     length differs from the first row's (pydantic has checked depth and numbers)."""

@@ -27,8 +27,7 @@ class PointsKind(InputKind[PointsInput]):
                 [
                     FieldError(
                         pointer="/filtration/type",
-                        message=f'a point set takes the "rips" filtration, not '
-                        f'"{filtration.type}"',
+                        message=f'a point set takes the "rips" filtration, not "{filtration.type}"',
                     )
                 ],
                 None,
@@ -73,8 +72,7 @@ def _point_errors(
         errors.append(
             FieldError(
                 pointer="/input/points",
-                message=f"{n} points is above the limit of {limits.max_input_points} "
-                "per request",
+                message=f"{n} points is above the limit of {limits.max_input_points} per request",
             )
         )
     elif subsample is None and n > limits.max_points:
