@@ -11,6 +11,7 @@ import ripser
 from PIL import Image
 
 from tests.support.synthetic import noisy_circle
+from workers.core.errors import ParameterError
 from workers.pictures.drawing import (
     COLOURS,
     MAX_MARKED,
@@ -18,7 +19,6 @@ from workers.pictures.drawing import (
     diagram_plot,
     persistence_image_plot,
 )
-from workers.core.errors import ParameterError
 
 SVG = "{http://www.w3.org/2000/svg}"
 
