@@ -14,7 +14,10 @@ from lacuna_client import Client, LacunaError
 from tests.support.ports import free_port
 from tests.support.stack import LACUNA
 
-pytestmark = pytest.mark.e2e
+# Slow as a module: one stack and 50 demo files for all its tests (about 40 s), two of
+# which take over 10 s on their own (every demo data set; the client's retries against
+# a refused port).
+pytestmark = [pytest.mark.e2e, pytest.mark.slow]
 
 BETTI = {"type": "betti_curve", "dim": 1, "t_range": [0.0, 60.0], "samples": 16}
 SUMMARY = {"type": "summary", "dim": 0}

@@ -23,7 +23,8 @@ from tests.support.stack import LACUNA, answers, stop, wait_ready
 from tests.support.synthetic import smooth_field
 from tests.support.waiting import wait_until
 
-pytestmark = pytest.mark.e2e
+# Slow as a module: each test starts and stops its own stack (about 10 s together).
+pytestmark = [pytest.mark.e2e, pytest.mark.slow]
 
 JOB = rips_job(max_dim=2)  # the regular hexagon
 
