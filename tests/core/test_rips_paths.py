@@ -91,6 +91,7 @@ def test_longest_neighbourhood_edge_by_brute_force(seed: int, dim: int) -> None:
     )
 
 
+@pytest.mark.slow  # ripser on 800 points: 7 to 10 s on 2 cores
 def test_loop_death_bound_holds() -> None:
     # The bound from the 2e-interleaving of a subsample (Chazal, de Silva, Oudot 2014) must
     # be at least the true largest H1 death (reference: ripser), and here well below the
