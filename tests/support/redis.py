@@ -2,7 +2,7 @@
 
 The suite never talks to a Redis it did not start (on a lab server 127.0.0.1:6379 is somebody
 else's queue), unless ``LACUNA_TEST_REDIS_URL`` names one explicitly; then it uses databases
-13 and 14 of that server only, and flushes them.
+12, 13 and 14 of that server only (SERVED_DB, TEST_DB, E2E_DB), and flushes them.
 """
 
 import os
