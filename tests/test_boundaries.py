@@ -119,8 +119,11 @@ def test_the_contract_loads_no_computation() -> None:
             "rq",
         ],
         "import workers.spec, workers.spec.kinds, workers.spec.failures\n"
+        "from workers.spec.jobs import PersistenceTask\n"
         "from workers.spec.kinds import KINDS\n"
-        "assert all(kind.worker is not None for kind in KINDS.values())\n",
+        "task = PersistenceTask(type='persistence', filtration=None)\n"
+        "named = [kind.worker(task) for kind in KINDS.values()]\n"
+        "assert all(name.startswith('workers.jobs.') for name in named), named\n",
     )
 
 
