@@ -71,6 +71,10 @@ class JobRequest(BaseModel):
             if isinstance(item, SpecReference)
         ]
 
+    def filtration_name(self) -> str:
+        """The filtration's type, or "none", for descriptions of the job."""
+        return self.filtration.type if self.filtration else "none"
+
     def specs(self) -> list[FeatureSpec]:
         """The feature specs, each with its spec_id set (references must be resolved)."""
         specs: list[FeatureSpec] = []

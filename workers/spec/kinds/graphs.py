@@ -373,7 +373,7 @@ class GraphKind(InputKind[GraphInput]):
     def stored(self, request: JobRequest, data: InputData | None, uploaded: bool) -> Stored:
         if not isinstance(data, GraphArrays):
             raise TypeError("a graph job needs its checked arrays")
-        name = request.filtration.type if request.filtration else "none"
+        name = request.filtration_name()
         return Stored(
             graph_rows(data),
             "graph",

@@ -334,7 +334,7 @@ class _PixelKind(InputKind[ArrayInput]):
         given = self.given(request)
         if not isinstance(data, np.ndarray):
             raise TypeError(f"an {self.type} job needs its checked array")
-        name = request.filtration.type if request.filtration else "none"
+        name = request.filtration_name()
         return Stored(
             data,
             given.type,

@@ -37,7 +37,7 @@ class PointsKind(InputKind[PointsInput]):
 
     def stored(self, request: JobRequest, data: InputData | None, uploaded: bool) -> Stored:
         array = np.asarray(self.given(request).points, dtype=np.float64)
-        name = request.filtration.type if request.filtration else "none"
+        name = request.filtration_name()
         return Stored(array, "points", {}, f"{name} on {array.shape[0]} x {array.shape[1]}")
 
     def worker(self, task: PersistenceTask) -> str:
