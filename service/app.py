@@ -6,7 +6,7 @@ from flask import Flask
 from flask.json.provider import DefaultJSONProvider
 from redis import Redis
 
-from service import problems
+from service import metrics, problems, request_ids
 from service.extension import ServiceState, capabilities_of, limits_of
 from service.feature_specs import FeatureSpecStore
 from service.openapi import openapi_document
@@ -49,6 +49,8 @@ def create_app(settings: Settings | None = None) -> Flask:
         capabilities=capabilities_of(limits),
         openapi=openapi_document(),
     )
+    request_ids.register(app)
+    metrics.register(app)
     problems.register(app)
     app.register_blueprint(v1)
     app.register_blueprint(health)

@@ -411,6 +411,21 @@ def _paths() -> dict[str, Any]:
                 "responses": {"200": {"description": "Ready."}, "503": _problem("Not ready.")},
             }
         },
+        "/metrics": {
+            "get": {
+                "summary": "Metrics for operators, in the Prometheus text format",
+                "description": "HTTP answers by route and status, the queue's depth, jobs by "
+                "state, job durations and failures by reason. Meant for a monitoring system "
+                "on the operators' network; it asks for no API key.",
+                "operationId": "getMetrics",
+                "responses": {
+                    "200": {
+                        "description": "The Prometheus text exposition format 0.0.4.",
+                        "content": {"text/plain": {"schema": {"type": "string"}}},
+                    }
+                },
+            }
+        },
     }
 
 

@@ -1,7 +1,6 @@
 """The one place where errors become RFC 9457 ``application/problem+json`` answers."""
 
 import logging
-import uuid
 from typing import Any, get_args, get_origin
 
 from flask import Flask, Response, current_app, request
@@ -22,6 +21,7 @@ from service.errors import (
     RequestInvalid,
     ServiceError,
 )
+from service.request_ids import current_request_id
 from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
 from workers.spec.features import FeatureSpecBody
 from workers.spec.plots import PlotQuery
@@ -52,6 +52,7 @@ _REQUEST_MODELS: dict[str, type[BaseModel]] = {
 
 
 def _respond(problem: Problem, headers: dict[str, str] | None = None) -> Response:
+    problem.request_id = current_request_id()
     body = current_app.json.dumps(problem.model_dump(mode="json", exclude_none=True))
     response = Response(body, status=problem.status, mimetype="application/problem+json")
     response.headers.update(headers or {})
@@ -182,7 +183,7 @@ def register(app: Flask) -> None:
 
     @app.errorhandler(500)
     def _internal(error: HTTPException) -> Response:
-        request_id = uuid.uuid4().hex
+        request_id = current_request_id()
         cause = getattr(error, "original_exception", None) or error
         log.error("unhandled error, request id %s", request_id, exc_info=cause)
         problem = problem_of_kind(

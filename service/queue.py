@@ -6,6 +6,7 @@ not how jobs are stored.
 """
 
 import functools
+import logging
 import time
 import uuid
 from datetime import UTC, datetime
@@ -13,7 +14,7 @@ from typing import Any
 
 from redis import Redis
 from redis.exceptions import RedisError
-from rq import Queue, Worker
+from rq import Callback, Queue, Worker
 from rq.exceptions import NoSuchJobError
 from rq.job import Job
 from rq.job import JobStatus as RQStatus
@@ -28,15 +29,19 @@ from service.errors import (
     NotReady,
     RequestInvalid,
 )
+from service.request_ids import current_request_id
 from service.settings import Settings
 from service.submissions import Submission, stored_input
 from workers.spec import SCHEMA_VERSION, FieldError, JobPayload, JobState, JobStatus, Progress
 from workers.spec.arrays import array_sha256, canonical_sha256, to_npy_bytes
 from workers.spec.failures import worker_lost
 from workers.spec.jobs import JOB_FUNCTION, cancel_key, input_key
+from workers.spec.metrics import FAILURE_CALLBACK, SUCCESS_CALLBACK
 from workers.spec.problems import CANCELLED_TYPE
 
 __all__ = ["Job", "JobQueue"]  # Job: the handle routes get from and give back to JobQueue
+
+log = logging.getLogger(__name__)
 
 IDEMPOTENCY_PREFIX = "lacuna:idempotency:"
 """Redis key prefix of Idempotency-Key records: ``<prefix><owner>:<key>`` -> job id and the
@@ -134,6 +139,7 @@ class JobQueue:
     def _enqueue(
         self, submission: Submission, owner: str, job_id: str, input_sha: str, request_sha: str
     ) -> Job:
+        request_id = current_request_id()
         payload = JobPayload(
             schema_version=SCHEMA_VERSION,
             input=stored_input(submission, input_sha),
@@ -141,6 +147,7 @@ class JobQueue:
             request_sha256=request_sha,
             time_limit_s=self.settings.job_time_limit_s,
             max_result_pairs=self.settings.max_result_pairs,
+            request_id=request_id,
         )
         keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)
         # One MULTI/EXEC for the job and its input: no worker can see one without the other.
@@ -154,11 +161,15 @@ class JobQueue:
                 result_ttl=self.settings.result_ttl_s,
                 failure_ttl=self.settings.result_ttl_s,
                 ttl=self.settings.queued_ttl_s,
-                meta={"owner": owner},
+                meta={"owner": owner, "request_id": request_id},
+                # Run on the worker, by name: durations and failures counted where jobs end.
+                on_success=Callback(SUCCESS_CALLBACK),
+                on_failure=Callback(FAILURE_CALLBACK),
                 pipeline=pipe,  # RQ opens the transaction; the input joins it
             )
             pipe.set(input_key(job_id), to_npy_bytes(submission.array), ex=keep)
             pipe.execute()
+        log.info("queued job %s", job_id, extra={"job_id": job_id})
         return job
 
     def find(self, job_id: str, owner: str) -> Job:

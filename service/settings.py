@@ -1,5 +1,7 @@
 """Settings of the API process: one typed object, read from ``LACUNA_*`` environment variables."""
 
+from typing import Literal
+
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
@@ -110,4 +112,11 @@ class Settings(BaseSettings):
     )
     local_workers: int = Field(
         2, ge=0, description="Job workers `lacuna serve` starts on its own machine (0: API only)."
+    )
+
+    # Observability (logs; /metrics has no settings of its own)
+    log_format: Literal["json", "text"] = Field(
+        "json",
+        description="Log lines of the API under gunicorn, on stderr: one JSON object per line "
+        "(for a log collector; gunicorn's access log too), or gunicorn's own text.",
     )

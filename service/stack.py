@@ -152,6 +152,8 @@ def run_stack(options: StackOptions) -> int:
                     [sys.executable, "-m", "workers"], env=env, preexec_fn=_child_setup
                 )
             )
+        metrics_dir = folder / "metrics"  # fresh for each start, removed with folder
+        metrics_dir.mkdir()
         children.http = subprocess.Popen(
             [
                 sys.executable,
@@ -171,8 +173,10 @@ def run_stack(options: StackOptions) -> int:
                 "--graceful-timeout",
                 str(int(GRACE_S)),
                 "--no-control-socket",
+                "--config",
+                "python:service.gunicorn_config",
             ],
-            env=env,
+            env=dict(env, PROMETHEUS_MULTIPROC_DIR=str(metrics_dir)),
             preexec_fn=_child_setup,
         )
         base = f"http://{options.host}:{options.port}"

@@ -1,5 +1,7 @@
 """Settings of a worker process, read from ``LACUNA_*`` environment variables."""
 
+from typing import Literal
+
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
@@ -15,3 +17,10 @@ class WorkerSettings(BaseSettings):
 
     redis_url: str = Field(DEFAULT_REDIS_URL, description="Redis holding the job queue.")
     queue: str = Field(DEFAULT_QUEUE, description="Name of the RQ queue to take jobs from.")
+
+    # Observability (logs)
+    log_format: Literal["json", "text"] = Field(
+        "json",
+        description="Log lines on stderr: one JSON object per line (for a log collector), or "
+        "text (for a person at a terminal).",
+    )

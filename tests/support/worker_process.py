@@ -5,6 +5,7 @@ import subprocess
 import sys
 from collections.abc import Iterator
 from contextlib import contextmanager
+from typing import IO
 
 from flask.testing import FlaskClient
 from redis import Redis
@@ -18,8 +19,11 @@ from tests.support.processes import terminate
 from tests.support.waiting import wait_until
 
 
-def start_worker(redis_url: str, queue: str) -> subprocess.Popen[bytes]:
-    """A real ``python -m workers`` process; returns once it is registered on ``queue``."""
+def start_worker(
+    redis_url: str, queue: str, *, log_level: str = "WARNING", stderr: IO[bytes] | None = None
+) -> subprocess.Popen[bytes]:
+    """A real ``python -m workers`` process; returns once it is registered on ``queue``.
+    Its log lines go to ``stderr`` (a file) if given."""
     process = subprocess.Popen(
         [
             sys.executable,
@@ -30,9 +34,10 @@ def start_worker(redis_url: str, queue: str) -> subprocess.Popen[bytes]:
             "--queue",
             queue,
             "--log-level",
-            "WARNING",
+            log_level,
         ],
         env=dict(os.environ),
+        stderr=stderr,
     )
     connection = Redis.from_url(redis_url)
     listened = Queue(queue, connection=connection, serializer=JSONSerializer)

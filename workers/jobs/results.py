@@ -66,12 +66,14 @@ class KindWorker(Protocol):
 
 
 def provenance(payload: JobPayload, started: float, **extra: Any) -> dict[str, Any]:
-    """The provenance fields of every result: input and request hashes, versions, time."""
+    """The provenance fields of every result: input and request hashes, versions, time, and
+    the id of the request that queued the job."""
     return {
         "input_sha256": payload.input.sha256,
         "request_sha256": payload.request_sha256,
         "versions": package_versions(),
         "elapsed_s": time.perf_counter() - started,
+        "request_id": payload.request_id,
         **extra,
     }
 

@@ -182,3 +182,6 @@ class JobPayload(BaseModel):
     request_sha256: str
     time_limit_s: Annotated[float, Field(gt=0)]
     max_result_pairs: Annotated[int, Field(ge=1)] = DEFAULT_MAX_RESULT_PAIRS
+    request_id: Annotated[
+        str | None, Field(description="X-Request-Id of the request that queued the job.")
+    ] = None

@@ -58,6 +58,10 @@ class Problem(BaseModel):
     detail: str | None = None
     instance: str | None = None
     errors: list[FieldError] | None = None
+    request_id: Annotated[
+        str | None,
+        Field(description="The answer's X-Request-Id (API answers): quote it when asking."),
+    ] = None
 
 
 def problem_of_kind(kind: str, detail: str, **extra: Any) -> Problem:

@@ -126,6 +126,10 @@ class Provenance(BaseModel):
     ]
     versions: dict[str, str]
     elapsed_s: Annotated[float, Field(description="Wall time of the computation itself.")]
+    request_id: Annotated[
+        str | None,
+        Field(description="X-Request-Id of the request that queued the job, for its logs."),
+    ] = None
     subsample_indices: Annotated[
         list[int] | None, Field(description="Rows of the input kept by subsample, in order.")
     ] = None
