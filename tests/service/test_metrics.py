@@ -1,11 +1,14 @@
 """/metrics: the Prometheus text format, read back with prometheus_client's own parser (the
 reference implementation of the format), and counts that move as real jobs end."""
 
+import os
+import signal
 import subprocess
 import uuid
 from pathlib import Path
 
 import numpy as np
+import pytest
 import requests
 from flask.testing import FlaskClient
 from prometheus_client.parser import text_string_to_metric_families
@@ -13,10 +16,15 @@ from redis import Redis
 from rq import Queue
 from rq.serializers import JSONSerializer
 
+from service.metrics import MULTIPROCESS_VARIABLE
 from service.settings import Settings
-from tests.support.api import app_with, call, fresh_queue, post, status_once
+from tests.support.api import WAIT, app_with, call, fresh_queue, post, status_once
 from tests.support.bodies import rips_job
 from tests.support.gunicorn import running_gunicorn
+from tests.support.ports import free_port
+from tests.support.processes import descendants
+from tests.support.redis import E2E_DB, with_database
+from tests.support.stack import LACUNA, stop, wait_ready
 from tests.support.waiting import wait_until
 from tests.support.worker_process import start_worker, stop_worker
 from workers import metrics as worker_metrics
@@ -185,3 +193,44 @@ def test_gunicorn_processes_add_up(redis_url: str, tmp_path: Path) -> None:
             scraped = requests.get(base + "/metrics", timeout=10)
             assert scraped.status_code == 200
             assert value(parse(scraped.text), "lacuna_http_responses_total", **capabilities) == sent
+
+
+@pytest.mark.e2e
+@pytest.mark.slow  # about 11 s: a whole stack starts and stops
+def test_lacuna_serve_counts_in_a_private_folder_it_removes(redis_server: str) -> None:
+    # `lacuna serve` runs gunicorn in multiprocess mode on a folder of its own: seen in
+    # gunicorn's environment while it runs, gone once the stack has stopped.
+    url = with_database(redis_server, E2E_DB)
+    Redis.from_url(url).flushdb()
+    port = free_port()
+    env = dict(os.environ, LACUNA_QUEUE=fresh_queue())
+    command = [LACUNA, "serve", "--redis", url, "--port", str(port), "--local-workers", "1"]
+    process = subprocess.Popen(command, env=env, stdout=subprocess.DEVNULL)
+    base = f"http://127.0.0.1:{port}"
+    try:
+        wait_ready(base, workers=1)
+        folders = {_environment(pid).get(MULTIPROCESS_VARIABLE) for pid in descendants(process.pid)}
+        folders.discard(None)
+        assert len(folders) == 1, folders  # gunicorn's master and worker share one
+        folder = Path(str(folders.pop()))
+        assert folder.is_dir()
+        answer = requests.post(base + "/v1/jobs", json=rips_job(), headers=WAIT, timeout=60)
+        assert answer.status_code == 200, answer.text
+        samples = parse(requests.get(base + "/metrics", timeout=10).text)
+        labels = {"task": "persistence", "input": "points", "outcome": "succeeded"}
+        assert value(samples, "lacuna_job_duration_seconds_count", **labels) == 1
+        posted = {"method": "POST", "route": "/v1/jobs", "status": "200"}
+        assert value(samples, "lacuna_http_responses_total", **posted) == 1
+        assert list(folder.glob("counter_*.db"))  # counted in the folder, not in memory
+    finally:
+        stop(process, signal.SIGTERM)
+    assert not folder.exists()
+
+
+def _environment(pid: int) -> dict[str, str]:
+    try:
+        raw = Path(f"/proc/{pid}/environ").read_bytes()
+    except OSError:  # ended meanwhile
+        return {}
+    pairs = (item.split(b"=", 1) for item in raw.split(b"\0") if b"=" in item)
+    return {key.decode(): value.decode(errors="replace") for key, value in pairs}
