@@ -51,12 +51,13 @@ def running_gunicorn(
         )
         base = f"http://127.0.0.1:{port}"
         try:
-            wait_until(
-                lambda: process.poll() is None and answers(base + "/healthz") is not None,
-                60,
-                lambda: f"gunicorn answering at {base}: {log.read_text()[-2000:]}",
-                interval=0.1,
-            )
+
+            def up() -> bool:
+                if process.poll() is not None:
+                    raise RuntimeError(f"gunicorn exited at start: {log.read_text()[-2000:]}")
+                return answers(base + "/healthz") is not None
+
+            wait_until(up, 60, f"gunicorn answering at {base}", interval=0.1)
             yield base, log
         finally:
             terminate(process)
