@@ -67,8 +67,11 @@ def _record(job: Job, connection: Redis, reason: str | None) -> None:
             if reason is not None:
                 pipe.hincrby(failures_key(queue), reason, 1)
             if outcome is JobState.cancelled:
-                forget_at = time.time() + (job.failure_ttl or DEFAULT_FAILURE_TTL)
-                pipe.zadd(cancelled_key(queue), {job.id: forget_at})
+                now = time.time()
+                pipe.zremrangebyscore(cancelled_key(queue), "-inf", now)  # bounded unscraped
+                pipe.zadd(
+                    cancelled_key(queue), {job.id: now + (job.failure_ttl or DEFAULT_FAILURE_TTL)}
+                )
             pipe.execute()
     except RedisError as error:
         log.warning("the end of job %s was not counted: %r", job.id, error)
