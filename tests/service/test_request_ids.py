@@ -149,3 +149,21 @@ def test_a_traceback_stays_on_one_line() -> None:
     assert parsed["message"] == "failed here" and parsed["job_id"] == "j-1"
     assert "request_id" not in parsed  # unknown: left out, not null
     assert "ValueError: first\nsecond" in parsed["exception"]
+
+
+def test_text_logs_when_asked(
+    settings: Settings, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # LACUNA_LOG_FORMAT=text: lines for a person at a terminal, not JSON.
+    monkeypatch.setenv("LACUNA_LOG_FORMAT", "text")
+    assert settings.redis_url is not None
+    log = tmp_path / "worker.log"
+    with log.open("wb") as stderr:
+        stop_worker(
+            start_worker(settings.redis_url, settings.queue, log_level="INFO", stderr=stderr)
+        )
+    lines = log.read_text().splitlines()
+    assert any(" rq.worker INFO " in line for line in lines), lines
+    for line in lines:
+        with pytest.raises(json.JSONDecodeError):
+            json.loads(line)
