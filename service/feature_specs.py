@@ -40,35 +40,45 @@ def _index(owner: str) -> str:
     return f"lacuna:feature-specs:{owner}"
 
 
-_REGISTER = """
-local now = tonumber(redis.call('TIME')[1])
-redis.call('ZREMRANGEBYSCORE', KEYS[2], '-inf', now)
+# Scores are the moment a spec expires, to the microsecond of Redis's clock, as its key's
+# own expiry: a spec leaves the count exactly when its key is gone.
+_NOW = """
+local clock = redis.call('TIME')
+local now = tonumber(clock[1]) + tonumber(clock[2]) / 1e6
+"""
+
+_REGISTER = (
+    _NOW
+    + """
+redis.call('ZREMRANGEBYSCORE', KEYS[2], '-inf', '(' .. now)
 local count = redis.call('ZCARD', KEYS[2])
 local known = redis.call('ZSCORE', KEYS[2], ARGV[1])
 local limit = tonumber(redis.call('HGET', KEYS[3], 'max_feature_specs')) or tonumber(ARGV[4])
 if not known and count >= limit then
   local oldest = redis.call('ZRANGE', KEYS[2], 0, 0, 'WITHSCORES')
-  return {0, count, limit, tonumber(oldest[2]) - now}
+  return {0, count, limit, math.ceil(tonumber(oldest[2]) - now)}
 end
 local ttl = tonumber(ARGV[3])
-redis.call('SET', KEYS[1], ARGV[2], 'EX', ttl)
+redis.call('SET', KEYS[1], ARGV[2], 'PX', ttl * 1000)
 redis.call('ZADD', KEYS[2], now + ttl, ARGV[1])
 redis.call('EXPIRE', KEYS[2], ttl)
 if not known then count = count + 1 end
 return {1, count, limit, 0}
 """
+)
 """KEYS: the spec, the tenant's index, the tenant's record; ARGV: spec_id, document, ttl,
 default limit. Answers {stored, count, limit, seconds until the oldest spec expires}."""
 
-_FIND = """
-local now = tonumber(redis.call('TIME')[1])
+_FIND = (
+    _NOW
+    + """
 local ttl = tonumber(ARGV[1])
 local index = KEYS[#KEYS]
 local found = {}
 for i = 1, #KEYS - 1 do
   local document = redis.call('GET', KEYS[i])
   if document then
-    redis.call('EXPIRE', KEYS[i], ttl)
+    redis.call('PEXPIRE', KEYS[i], ttl * 1000)
     redis.call('ZADD', index, now + ttl, ARGV[i + 1])
     found[i] = document
   else
@@ -78,13 +88,17 @@ end
 if #KEYS > 1 and redis.call('EXISTS', index) == 1 then redis.call('EXPIRE', index, ttl) end
 return found
 """
+)
 """KEYS: the specs, then the tenant's index; ARGV: ttl, then the spec ids. Reading a spec
 refreshes its expiry."""
 
-_COUNT = """
-redis.call('ZREMRANGEBYSCORE', KEYS[1], '-inf', tonumber(redis.call('TIME')[1]))
+_COUNT = (
+    _NOW
+    + """
+redis.call('ZREMRANGEBYSCORE', KEYS[1], '-inf', '(' .. now)
 return redis.call('ZCARD', KEYS[1])
 """
+)
 
 
 class FeatureSpecStore:
