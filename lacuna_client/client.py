@@ -318,6 +318,11 @@ class Client:
         answer: Json = self._call("DELETE", f"/v1/jobs/{job_id}").json()
         return answer
 
+    def capabilities(self) -> Json:
+        """What the service accepts, and under ``caller`` your tenant, its quotas and usage."""
+        answer: Json = self._call("GET", "/v1/capabilities").json()
+        return answer
+
     def _result_of(self, job: str | Json) -> Json:
         return self.result(job) if isinstance(job, str) else job
 
