@@ -10,8 +10,8 @@ is one Lua script, so it is atomic across API processes and costs one round trip
   for every API process).
 - ``UnfinishedJobs``: a sorted set of the tenant's job ids (``lacuna:unfinished:<tenant>``).
   Instead of a counter (which drifts when a decrement is lost with a crashed worker or an
-  expired job), every reservation first drops the ids whose RQ job has ended or no longer
-  exists, then counts what is left.
+  expired job), a reservation that finds the set full first drops the ids whose RQ job has
+  ended or no longer exists, then counts what is left.
 
 The scripts name keys they derive from a tenant (not only their KEYS): fine on the one Redis
 lacuna runs on, not on Redis Cluster (which RQ does not support either).
@@ -167,27 +167,32 @@ class Admission:
 _RESERVE = """
 local clock = redis.call('TIME')
 local now = tonumber(clock[1]) + tonumber(clock[2]) / 1e6
-local ended = {}
-for i = 6, #ARGV do ended[ARGV[i]] = true end
-local members = redis.call('ZRANGE', KEYS[1], 0, -1, 'WITHSCORES')
-local count = 0
-for i = 1, #members, 2 do
-  local status = redis.call('HGET', ARGV[3] .. members[i], 'status')
-  local gone = (not status) and tonumber(members[i + 1]) < now - tonumber(ARGV[4])
-  if gone or (status and ended[status]) then
-    redis.call('ZREM', KEYS[1], members[i])
-  else
-    count = count + 1
+local limit = tonumber(redis.call('HGET', KEYS[2], 'max_unfinished_jobs')) or tonumber(ARGV[2])
+local count = redis.call('ZCARD', KEYS[1])
+if ARGV[1] == '' or count >= limit then
+  local ended = {}
+  for i = 6, #ARGV do ended[ARGV[i]] = true end
+  local members = redis.call('ZRANGE', KEYS[1], 0, -1, 'WITHSCORES')
+  count = 0
+  for i = 1, #members, 2 do
+    local status = redis.call('HGET', ARGV[3] .. members[i], 'status')
+    local gone = (not status) and tonumber(members[i + 1]) < now - tonumber(ARGV[4])
+    if gone or (status and ended[status]) then
+      redis.call('ZREM', KEYS[1], members[i])
+    else
+      count = count + 1
+    end
   end
 end
-local limit = tonumber(redis.call('HGET', KEYS[2], 'max_unfinished_jobs')) or tonumber(ARGV[2])
 if ARGV[1] == '' or count >= limit then return {0, count, limit} end
 redis.call('ZADD', KEYS[1], now, ARGV[1])
 redis.call('EXPIRE', KEYS[1], tonumber(ARGV[5]))
 return {1, count + 1, limit}
 """
-"""Prune ended and vanished ids, count the rest; with a job id (ARGV[1]) add it if the count
-is below the limit. Answers {added, count, limit}."""
+"""With a job id (ARGV[1]), add it when the set holds fewer ids than the limit; only a full
+set is pruned of ended and vanished ids (one HGET per id), so most submissions cost O(1) and
+a pruning happens at most once per ``limit - unfinished`` submissions. Without a job id,
+prune and count. Answers {added, count (exact after a pruning), limit}."""
 
 
 @dataclass(frozen=True)
