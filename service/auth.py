@@ -8,7 +8,7 @@ Two access modes (``Settings.auth``, see ``access_of``):
 - ``keys``: a request sends ``Authorization: Bearer <key>`` (RFC 6750 section 2.1) and acts
   for the key's tenant (``service.keys``); without a key, or with an unknown or revoked one,
   it is a 401 with a ``WWW-Authenticate: Bearer`` challenge (RFC 6750 section 3). The default
-  on any other address.
+  on any other address. (In open mode a key that is sent is ignored.)
 
 Either way the tenant's request rate is checked in the same Redis round trip
 (``service.quotas.Admission``): a 429 with Retry-After (RFC 6585 section 4). The health

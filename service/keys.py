@@ -6,7 +6,8 @@ key is shown once, at creation; Redis keeps only its SHA-256. A slow password ha
 scrypt, Argon2) exists to make guessing a low-entropy password from a leaked hash expensive;
 a 256-bit random secret cannot be guessed at any hash speed (2**256 trials), so one fast
 SHA-256 per request is enough (common practice for random API tokens) and the check stays a
-single Redis read.
+single Redis read. The record is found by the digest itself, so how long a lookup takes says
+nothing about any key's characters.
 
 Redis keys::
 

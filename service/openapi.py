@@ -385,7 +385,7 @@ def _paths() -> dict[str, Any]:
         },
         "/v1/capabilities": {
             "get": {
-                "summary": "Input types, filtrations, limits and versions",
+                "summary": "Input types, filtrations, limits, versions; the caller's quotas",
                 "operationId": "getCapabilities",
                 "responses": {
                     "200": {"description": "Capabilities.", "content": _json("Capabilities")}
