@@ -7,6 +7,7 @@ Loopback addresses: 127.0.0.0/8 (RFC 1122 3.2.1.3) and ::1 (RFC 4291 2.5.3).
 
 import json
 import os
+import signal
 import socket
 import subprocess
 import sys
@@ -14,12 +15,15 @@ from pathlib import Path
 from typing import Any
 
 import pytest
+import requests
 from redis import Redis
 
 from service.commands import access_decision
-from service.keys import digest_of
+from service.keys import KeyStore, digest_of
 from tests.support.api import app_with, call, fresh_queue, problem_of
 from tests.support.ports import free_port
+from tests.support.stack import answers, stop
+from tests.support.waiting import wait_until
 
 LACUNA = str(Path(sys.executable).with_name("lacuna"))
 
@@ -159,3 +163,29 @@ def test_serve_on_0_0_0_0_in_open_mode_refuses_to_start(redis_url: str) -> None:
         assert "refusing open access" in done.stderr and "--open-access" in done.stderr
         with socket.socket() as probe:  # nothing was started: nothing listens on the port
             assert probe.connect_ex(("127.0.0.1", port)) != 0
+
+
+def test_serve_with_keys_passes_the_mode_down_to_the_api(redis_url: str) -> None:
+    key = KeyStore(Redis.from_url(redis_url)).create("lab-a").key
+    port = free_port()
+    process = subprocess.Popen(
+        [LACUNA, "serve", "--redis", redis_url, "--port", str(port), "--auth", "keys"]
+        + ["--local-workers", "0", "--http-workers", "1"],
+        env={**os.environ, "LACUNA_QUEUE": fresh_queue()},
+        stderr=subprocess.DEVNULL,
+    )
+    base = f"http://127.0.0.1:{port}"
+    try:
+        wait_until(lambda: answers(base + "/healthz") is not None, 60, f"{base}/healthz")
+        refused = requests.get(base + "/v1/capabilities", timeout=10)
+        assert refused.status_code == 401 and refused.headers["WWW-Authenticate"].startswith(
+            "Bearer"
+        )
+        admitted = requests.get(
+            base + "/v1/capabilities", headers={"Authorization": f"Bearer {key}"}, timeout=10
+        )
+        assert admitted.status_code == 200
+        caller = admitted.json()["caller"]
+        assert (caller["tenant"], caller["access"]) == ("lab-a", "keys")
+    finally:
+        stop(process, signal.SIGTERM)
