@@ -23,13 +23,11 @@ from typing import Literal
 from flask import Flask, Request, g, request
 
 from service.errors import RateLimited, Unauthorized
-from service.keys import digest_of, key_record_name
+from service.keys import PUBLIC_OWNER, digest_of, key_record_name
 from service.quotas import Admission
 from service.settings import Settings
 
 __all__ = ["PUBLIC_OWNER", "access_of", "install", "is_loopback", "owner_of"]
-
-PUBLIC_OWNER = "public"
 
 Access = Literal["keys", "open"]
 

@@ -31,7 +31,9 @@ __all__ = [
     "CreatedKey",
     "KeyRecord",
     "KeyStore",
+    "PUBLIC_OWNER",
     "TenantNameInvalid",
+    "checked_tenant",
     "key_record_name",
     "tenant_record_name",
     "digest_of",
@@ -43,8 +45,9 @@ TENANT_NAME = re.compile(r"[a-z0-9][a-z0-9._-]{0,63}")
 """Tenant names: lower-case letters, digits, '.', '_' and '-'; no ':' so a tenant cannot
 reach into another's Redis keys (``lacuna:idempotency:<owner>:<key>``)."""
 
-RESERVED_TENANTS = frozenset({"public"})
-"""The owner of open mode: a tenant of that name would see the jobs made without keys."""
+PUBLIC_OWNER = "public"
+"""The owner every request acts for in open mode; no tenant may take the name, or it would
+see the jobs made without keys."""
 
 
 class TenantNameInvalid(ValueError):
@@ -73,7 +76,7 @@ def checked_tenant(tenant: str) -> str:
             f"tenant {tenant!r}: use 1 to 64 lower-case letters, digits, '.', '_' or '-', "
             "starting with a letter or digit"
         )
-    if tenant in RESERVED_TENANTS:
+    if tenant == PUBLIC_OWNER:
         raise TenantNameInvalid(f"tenant {tenant!r} is reserved for open mode")
     return tenant
 
@@ -98,6 +101,16 @@ class CreatedKey:
 
 def _text(value: bytes | str) -> str:
     return value.decode() if isinstance(value, bytes) else value
+
+
+def _record_of(fields: dict[bytes | str, bytes | str]) -> KeyRecord:
+    record = {_text(k): _text(v) for k, v in fields.items()}
+    return KeyRecord(
+        key_id=record["key_id"],
+        tenant=record["tenant"],
+        created_at=record["created_at"],
+        revoked=record["revoked"] == "1",
+    )
 
 
 class KeyStore:
@@ -130,19 +143,8 @@ class KeyStore:
             for digest in digests:
                 pipe.hgetall(key_record_name(digest))
             stored = pipe.execute()
-        records = []
-        for fields in stored:
-            if not fields:  # its id was claimed by a create that did not finish
-                continue
-            record = {_text(k): _text(v) for k, v in fields.items()}
-            records.append(
-                KeyRecord(
-                    key_id=record["key_id"],
-                    tenant=record["tenant"],
-                    created_at=record["created_at"],
-                    revoked=record["revoked"] == "1",
-                )
-            )
+        # An empty record: its id was claimed by a create that did not finish.
+        records = [_record_of(fields) for fields in stored if fields]
         return sorted(records, key=lambda record: (record.created_at, record.key_id))
 
     def revoke(self, key_id: str) -> KeyRecord | None:
@@ -154,4 +156,4 @@ class KeyStore:
         if not self.redis.exists(name):
             return None
         self.redis.hset(name, "revoked", "1")
-        return next(record for record in self.list() if record.key_id == key_id)
+        return _record_of(self.redis.hgetall(name))
