@@ -128,7 +128,11 @@ def _keys(args: argparse.Namespace) -> int:
         sys.stderr.write(f"lacuna keys {args.action}: {error}\n")
         return USAGE
     overrides = {name: getattr(args, name) for name in QUOTA_OVERRIDES}
-    set_overrides(redis, tenant, {k: v for k, v in overrides.items() if v is not None})
+    try:
+        set_overrides(redis, tenant, {k: v for k, v in overrides.items() if v is not None})
+    except ValueError as error:
+        sys.stderr.write(f"lacuna keys {args.action}: {error}\n")
+        return USAGE
     set_overrides(redis, tenant, dict.fromkeys(args.clear or []))
     if args.action == "quotas":
         quotas = quotas_of(redis, args.settings, tenant)

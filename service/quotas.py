@@ -68,7 +68,13 @@ def quotas_of(redis: Redis, settings: Settings, tenant: str) -> TenantQuotas:
 
 
 def set_overrides(redis: Redis, tenant: str, overrides: dict[str, float | int | None]) -> None:
-    """Store the tenant's quota overrides; a None value removes that override."""
+    """Store the tenant's quota overrides; a None value removes that override. ValueError for
+    an unknown quota or a value that is not positive (a rate of 0 would never refill)."""
+    for key, value in overrides.items():
+        if key not in QUOTA_OVERRIDES:
+            raise ValueError(f"no quota {key!r}; the quotas are {', '.join(QUOTA_OVERRIDES)}")
+        if value is not None and not value > 0:
+            raise ValueError(f"{key} must be positive, not {value}")
     name = tenant_record_name(tenant)
     given: dict[Any, Any] = {k: str(v) for k, v in overrides.items() if v is not None}
     if given:

@@ -97,6 +97,13 @@ def test_quota_overrides_are_set_by_the_command_and_shown_to_the_tenant(redis_ur
     assert quotas["max_unfinished_jobs"] != 3  # back to the default
 
 
+def test_quota_overrides_must_be_positive(redis_url: str) -> None:
+    for option, value in (("--requests-per-s", "0"), ("--max-unfinished-jobs", "-1")):
+        status, output, said = keys_command(redis_url, "quotas", "--tenant", "lab-c", option, value)
+        assert status == 2 and output is None and "positive" in said
+    assert not Redis.from_url(redis_url).exists("lacuna:tenant:lab-c")
+
+
 @pytest.mark.parametrize("tenant", ["public", "Lab A", "a:b", ""])
 def test_unusable_tenant_names_are_refused(redis_url: str, tenant: str) -> None:
     status, output, said = keys_command(redis_url, "create", "--tenant", tenant)
