@@ -178,8 +178,9 @@ def _keys_parser(
     quota_options.add_argument(
         "--clear",
         nargs="+",
+        metavar="QUOTA",
         choices=list(QUOTA_OVERRIDES),
-        help="drop these overrides (back to the defaults)",
+        help=f"drop these overrides, back to the defaults ({', '.join(QUOTA_OVERRIDES)})",
     )
     create = actions.add_parser(
         "create", parents=[quota_options], help="a new key for a tenant (shown once)"
