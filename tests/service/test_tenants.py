@@ -7,6 +7,7 @@ could not fail (an id that is a 404 for everyone) would show.
 """
 
 import subprocess
+import threading
 import uuid
 from typing import Any
 
@@ -18,7 +19,16 @@ from werkzeug.test import TestResponse
 from service.keys import KeyStore
 from service.quotas import set_overrides, unfinished_key
 from service.settings import Settings
-from tests.support.api import JOBS, WAIT, app_with, call, fresh_queue, post, problem_of
+from tests.support.api import (
+    JOBS,
+    WAIT,
+    app_with,
+    call,
+    fresh_queue,
+    post,
+    problem_of,
+    stored_jobs,
+)
 from tests.support.bodies import rips_job
 from tests.support.waiting import wait_until
 from workers.spec.problems import PROBLEM_TYPE
@@ -263,3 +273,26 @@ def test_the_default_access_follows_the_host(redis_url: str) -> None:
     for host, status in (("127.0.0.1", 200), ("::1", 200), ("0.0.0.0", 401), ("10.1.2.3", 401)):
         client = app_with(redis_url=redis_url, queue=fresh_queue(), host=host).test_client()
         assert call(client, "GET", "/v1/capabilities").status_code == status, host
+
+
+def test_concurrent_submissions_never_exceed_the_unfinished_jobs_quota(
+    client: FlaskClient, keys: dict[str, str], redis_url: str
+) -> None:
+    set_overrides(Redis.from_url(redis_url), "lab-a", {"max_unfinished_jobs": 3})
+    statuses: list[int] = []
+    barrier = threading.Barrier(8)
+
+    def one() -> None:
+        barrier.wait()
+        answer = post(
+            client.application.test_client(), JOBS, rips_job(), headers=bearer(keys["lab-a"])
+        )
+        statuses.append(answer.status_code)
+
+    threads = [threading.Thread(target=one) for _ in range(8)]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert sorted(statuses) == [202] * 3 + [429] * 5
+    assert stored_jobs(client) == 3
