@@ -130,11 +130,13 @@ class Settings(BaseSettings):
     max_unfinished_jobs: int = Field(
         500, ge=1, description="Most queued plus running jobs of one tenant at a time."
     )
+    # Generous enough for one user's batch (`make bench` sends 400 requests in about 2 s),
+    # tight enough that a runaway loop of one tenant cannot crowd out the others.
     requests_per_s: float = Field(
-        50.0, gt=0, description="Requests per second one tenant may sustain (token bucket)."
+        100.0, gt=0, description="Requests per second one tenant may sustain (token bucket)."
     )
     request_burst: int = Field(
-        200, ge=1, description="Requests one tenant may send at once above the sustained rate."
+        1000, ge=1, description="Requests one tenant may send at once above the sustained rate."
     )
     max_feature_specs: int = Field(
         1000, ge=1, description="Most feature specs one tenant keeps registered at a time."
