@@ -320,7 +320,9 @@ def _paths() -> dict[str, Any]:
             "post": {
                 "summary": "Check and register a feature spec",
                 "description": "Answers the canonical form and its spec_id (SHA-256 of the "
-                "canonical JSON). Jobs may then name the spec by id alone.",
+                "canonical JSON). Jobs may then name the spec by id alone. Specs are kept per "
+                "tenant, at most max_feature_specs at a time, each until feature_spec_ttl_s "
+                "after its last registration or use (see caller in /v1/capabilities).",
                 "operationId": "registerFeatureSpec",
                 "requestBody": {"required": True, "content": _json("FeatureSpecBody")},
                 "responses": {
