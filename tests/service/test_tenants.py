@@ -81,6 +81,17 @@ def test_a_request_without_a_key_is_401_with_a_bearer_challenge(client: FlaskCli
     unauthorized(call(client, "GET", "/v1/capabilities", headers={"Authorization": "Basic eDp5"}))
 
 
+def test_a_request_without_a_key_is_refused_before_its_body_is_read(
+    redis_url: str, keys: dict[str, str]
+) -> None:
+    client = app_with(
+        redis_url=redis_url, queue=fresh_queue(), auth="keys", max_body_bytes=1024
+    ).test_client()
+    too_big = rips_job(points=[[float(i), 0.0] for i in range(500)])  # about 6 kB
+    unauthorized(post(client, JOBS, too_big))  # not a 413: nothing was read
+    problem_of(post(client, JOBS, too_big, headers=bearer(keys["lab-a"])), 413)  # with a key
+
+
 def test_an_unknown_or_revoked_key_is_401_invalid_token(
     client: FlaskClient, keys: dict[str, str], redis_url: str
 ) -> None:
@@ -146,6 +157,14 @@ def test_one_idempotency_key_under_two_tenants_makes_two_jobs(
     assert first_a != first_b
     assert submitted(client, keys["lab-a"], rips_job(), **key) == first_a
     assert submitted(client, keys["lab-b"], rips_job(), **key) == first_b
+    # Another body under A's key: for A a 422 naming A's job; for C, a fresh job that never
+    # hears of A's.
+    other = rips_job(max_dim=0)
+    reused = problem_of(post(client, JOBS, other, headers={**bearer(keys["lab-a"]), **key}), 422)
+    assert first_a in reused["detail"]
+    store = KeyStore(client.application.extensions["lacuna"].queue.redis)
+    third = submitted(client, store.create("lab-c").key, other, **key)
+    assert third not in (first_a, first_b)
 
 
 def test_feature_specs_are_scoped_by_tenant(client: FlaskClient, keys: dict[str, str]) -> None:
