@@ -1,6 +1,7 @@
 """The ``lacuna`` command: ``submit``, ``status``, ``fetch`` and ``cancel`` talk to a service
-(``--server``, or LACUNA_URL); ``serve``, ``worker``, ``demo`` and ``openapi`` are programs of
-the server, which this command runs when the server is installed (``lacuna[server]``).
+(``--server``, or LACUNA_URL; ``--api-key``, or LACUNA_API_KEY); ``serve``, ``worker``,
+``demo``, ``openapi`` and ``keys`` are programs of the server, which this command runs when
+the server is installed (``lacuna[server]``).
 
 Exit codes: 0 success, 1 a job failed (or the service could not be reached), 2 usage error.
 
@@ -36,6 +37,7 @@ PROGRAMS = {
     "worker": Program("workers", (), "run a job worker"),
     "demo": Program("workers.scenario", (), "write the synthetic demo data sets"),
     "openapi": Program("service", ("openapi",), "print or write the OpenAPI document"),
+    "keys": Program("service", ("keys",), "create, list and revoke API keys of tenants"),
 }
 """``lacuna serve ...`` runs ``python -m service serve ...``, ``lacuna worker ...`` runs
 ``python -m workers ...``, and so on."""
@@ -193,7 +195,9 @@ def _client_commands(commands: Any) -> None:
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument("--server", default=url, help="service URL (LACUNA_URL)")
     common.add_argument(
-        "--api-key", default=os.environ.get("LACUNA_API_KEY"), help="(LACUNA_API_KEY)"
+        "--api-key",
+        default=os.environ.get("LACUNA_API_KEY"),
+        help="API key of a shared server, sent as Authorization: Bearer (LACUNA_API_KEY)",
     )
     common.add_argument("--json", action="store_true", help="machine-readable output")
     common.add_argument(

@@ -6,13 +6,19 @@
     job = lacuna.submit_points(points, filtration={"type": "rips", "max_dim": 1})
     h0, h1 = lacuna.diagrams(job)          # (k, 2) float64 arrays, np.inf for "never dies"
 
-Every call retries connection errors, timeouts and 503 answers with exponential backoff
-(honouring Retry-After), never a 4xx; a submission carries an Idempotency-Key, so a retried
-submission never makes a second job. Every error the service or the network gives surfaces as
-one exception type, ``LacunaError``, carrying the RFC 9457 problem object.
+On a shared server, pass the API key an operator made for you (``lacuna keys create``):
+``Client(url, api_key=...)``, or set LACUNA_API_KEY; it is sent as
+``Authorization: Bearer <key>`` (RFC 6750).
+
+Every call retries connection errors, timeouts, 503 and 429 answers (rate or quota used up)
+with exponential backoff (honouring Retry-After), never another 4xx; a submission carries an
+Idempotency-Key, so a retried submission never makes a second job. Every error the service or
+the network gives surfaces as one exception type, ``LacunaError``, carrying the RFC 9457
+problem object.
 """
 
 import json
+import os
 import time
 import uuid
 from collections.abc import Callable, Sequence
@@ -27,7 +33,8 @@ __all__ = ["Client", "LacunaError"]
 
 Json = dict[str, Any]
 
-_RETRIED_STATUS = 503
+_RETRIED_STATUSES = frozenset({429, 503})  # RFC 6585 section 4, RFC 9110 15.6.4
+API_KEY_VARIABLE = "LACUNA_API_KEY"
 _ENDED = {"succeeded", "failed", "cancelled"}
 _MAX_RETRY_AFTER_S = 60.0
 
@@ -73,7 +80,8 @@ class Client:
         self.retries = retries
         self.backoff = backoff
         self._session = requests.Session()
-        if api_key is not None:
+        api_key = api_key if api_key is not None else os.environ.get(API_KEY_VARIABLE)
+        if api_key:
             self._session.headers["Authorization"] = f"Bearer {api_key}"
 
     # --- submitting ---------------------------------------------------------------------------
@@ -310,6 +318,11 @@ class Client:
         answer: Json = self._call("DELETE", f"/v1/jobs/{job_id}").json()
         return answer
 
+    def capabilities(self) -> Json:
+        """What the service accepts, and under ``caller`` your tenant, its quotas and usage."""
+        answer: Json = self._call("GET", "/v1/capabilities").json()
+        return answer
+
     def _result_of(self, job: str | Json) -> Json:
         return self.result(job) if isinstance(job, str) else job
 
@@ -337,10 +350,22 @@ class Client:
             else:
                 if answer.status_code < 400:
                     return answer
-                if answer.status_code != _RETRIED_STATUS or last:
+                if last or not self._retried(answer):
                     raise LacunaError(_problem_of(answer))
                 time.sleep(self._retry_after(answer, attempt))
             attempt += 1
+
+    def _retried(self, answer: requests.Response) -> bool:
+        """503, and 429 unless its Retry-After is longer than any wait here (a quota that
+        frees only in hours is the caller's to handle)."""
+        if answer.status_code not in _RETRIED_STATUSES:
+            return False
+        header = answer.headers.get("Retry-After", "")
+        return (
+            answer.status_code != 429
+            or not header.isdigit()
+            or (float(header) <= _MAX_RETRY_AFTER_S)
+        )
 
     def _backoff(self, attempt: int) -> float:
         return self.backoff * (1 << attempt)

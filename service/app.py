@@ -6,11 +6,12 @@ from flask import Flask
 from flask.json.provider import DefaultJSONProvider
 from redis import Redis
 
-from service import metrics, problems, request_ids
+from service import auth, metrics, problems, request_ids
 from service.extension import ServiceState, capabilities_of, limits_of
 from service.feature_specs import FeatureSpecStore
 from service.openapi import openapi_document
 from service.queue import JobQueue
+from service.quotas import Admission
 from service.routes import health, v1
 from service.settings import Settings
 from workers.spec.jobs import DEFAULT_REDIS_URL
@@ -44,7 +45,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     app.extensions["lacuna"] = ServiceState(
         settings=settings,
         queue=JobQueue(redis, waiting_redis, settings),
-        feature_specs=FeatureSpecStore(redis),
+        feature_specs=FeatureSpecStore(redis, settings),
         limits=limits,
         capabilities=capabilities_of(limits),
         openapi=openapi_document(),
@@ -52,6 +53,7 @@ def create_app(settings: Settings | None = None) -> Flask:
     request_ids.register(app)
     metrics.register(app)
     problems.register(app)
+    auth.install(app, Admission(redis, settings), settings)
     app.register_blueprint(v1)
     app.register_blueprint(health)
     return app

@@ -11,6 +11,9 @@ Tree::
     ├── FeatureSpecNotFound  no feature spec registered under that id
     ├── IdempotencyKeyInvalid  the Idempotency-Key header is not a usable key
     ├── IdempotencyKeyReused   the key was used with another request body
+    ├── Unauthorized         no API key, or one that is unknown or revoked (keys mode)
+    ├── RateLimited          the tenant's request rate is used up for now
+    ├── QuotaExceeded        the tenant holds as many jobs or feature specs as it may
     └── NotReady             no Redis or no worker
 """
 
@@ -25,8 +28,11 @@ __all__ = [
     "JobHasNoResult",
     "JobNotFound",
     "NotReady",
+    "QuotaExceeded",
+    "RateLimited",
     "RequestInvalid",
     "ServiceError",
+    "Unauthorized",
 ]
 
 
@@ -85,6 +91,34 @@ class IdempotencyKeyReused(ServiceError):
             "send a new key for a new request"
         )
         self.job_id = job_id
+
+
+class Unauthorized(ServiceError):
+    """``error`` is the RFC 6750 section 3.1 error code (``invalid_token``), None when the
+    request carried no key at all (section 3: then no error code is sent)."""
+
+    def __init__(self, detail: str, error: str | None = None) -> None:
+        super().__init__(detail)
+        self.error = error
+
+
+class RateLimited(ServiceError):
+    def __init__(self, tenant: str, rate: float, burst: int, retry_after_s: int) -> None:
+        super().__init__(
+            f"tenant {tenant!r} sent more than its {burst} requests at once or {rate:g} per "
+            f"second; retry after {retry_after_s} s"
+        )
+        self.retry_after_s = retry_after_s
+
+
+class QuotaExceeded(ServiceError):
+    """``quota`` names the quota (a field of the tenant's quotas in /v1/capabilities)."""
+
+    def __init__(self, tenant: str, quota: str, limit: int, retry_after_s: int, why: str) -> None:
+        super().__init__(f"tenant {tenant!r} is at its quota {quota} = {limit}: {why}")
+        self.quota = quota
+        self.limit = limit
+        self.retry_after_s = retry_after_s
 
 
 class NotReady(ServiceError):

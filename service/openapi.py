@@ -63,6 +63,13 @@ and a `data` file part (.npy, TIFF or PNG); graphs the same way, the data part a
 Graphs: an edge enters with its later end; self-loops and repeated edges are dropped and named
 in the result's warnings; `output` asks for diagrams, network descriptors and the graph.
 
+Access: on a shared server every request but /healthz, /readyz and this document sends an
+API key, `Authorization: Bearer <key>` (RFC 6750), and acts for the key's tenant: jobs,
+results, pictures, feature specs and Idempotency-Keys of one tenant are invisible to another
+(404). In open mode (one user on a loopback address) no key is needed. Each tenant has
+quotas, shown with its usage in /v1/capabilities `caller`: above one the answer is 429 with
+Retry-After (RFC 6585) naming the quota.
+
 For research use only: results are not for diagnosis or treatment decisions.
 """
 
@@ -313,7 +320,9 @@ def _paths() -> dict[str, Any]:
             "post": {
                 "summary": "Check and register a feature spec",
                 "description": "Answers the canonical form and its spec_id (SHA-256 of the "
-                "canonical JSON). Jobs may then name the spec by id alone.",
+                "canonical JSON). Jobs may then name the spec by id alone. Specs are kept per "
+                "tenant, at most max_feature_specs at a time, each until feature_spec_ttl_s "
+                "after its last registration or use (see caller in /v1/capabilities).",
                 "operationId": "registerFeatureSpec",
                 "requestBody": {"required": True, "content": _json("FeatureSpecBody")},
                 "responses": {
@@ -378,7 +387,7 @@ def _paths() -> dict[str, Any]:
         },
         "/v1/capabilities": {
             "get": {
-                "summary": "Input types, filtrations, limits and versions",
+                "summary": "Input types, filtrations, limits, versions; the caller's quotas",
                 "operationId": "getCapabilities",
                 "responses": {
                     "200": {"description": "Capabilities.", "content": _json("Capabilities")}
@@ -429,6 +438,52 @@ def _paths() -> dict[str, Any]:
     }
 
 
+_SECURITY_SCHEMES = {
+    "apiKey": {
+        "type": "http",
+        "scheme": "bearer",
+        "description": "An API key from `lacuna keys create --tenant NAME`, sent as "
+        "`Authorization: Bearer <key>` (RFC 6750). Not needed in open mode.",
+    }
+}
+
+_OPEN_PATHS = frozenset({"/v1/openapi.json", "/healthz", "/readyz", "/metrics"})
+"""Paths that need no key and use no rate."""
+
+_ACCESS_RESPONSES = {
+    "401": {
+        **_problem(
+            "No API key, or an unknown or revoked one (keys mode); WWW-Authenticate: Bearer."
+        ),
+        "headers": {"WWW-Authenticate": {"schema": {"type": "string"}}},
+    },
+    "429": {
+        **_problem(
+            "The tenant's request rate or a quota is used up (`quota` names it); retry after "
+            "Retry-After seconds."
+        ),
+        "headers": {"Retry-After": {"schema": {"type": "integer"}}},
+    },
+}
+
+
+def _with_access(paths: dict[str, Any]) -> dict[str, Any]:
+    """Every operation with its security: a key (or none in open mode), 401 and 429 answers;
+    the open paths need nothing."""
+    for path, item in paths.items():
+        for method, operation in item.items():
+            if method == "parameters":
+                continue
+            if path in _OPEN_PATHS:
+                operation["security"] = []
+                continue
+            responses = operation["responses"]
+            for status, response in _ACCESS_RESPONSES.items():
+                responses.setdefault(status, response)
+            operation["responses"] = dict(sorted(responses.items()))
+    return paths
+
+
 def openapi_document() -> dict[str, Any]:
     """The document as a dict."""
     _, top = models_json_schema(
@@ -438,8 +493,10 @@ def openapi_document() -> dict[str, Any]:
     return {
         "openapi": "3.1.0",
         "info": {"title": "lacuna", "version": version("lacuna"), "description": _DESCRIPTION},
-        "paths": _paths(),
-        "components": {"schemas": top["$defs"]},
+        "paths": _with_access(_paths()),
+        # Open mode takes requests without a key too: hence the empty alternative.
+        "security": [{"apiKey": []}, {}],
+        "components": {"schemas": top["$defs"], "securitySchemes": _SECURITY_SCHEMES},
     }
 
 

@@ -18,8 +18,11 @@ from service.errors import (
     JobHasNoResult,
     JobNotFound,
     NotReady,
+    QuotaExceeded,
+    RateLimited,
     RequestInvalid,
     ServiceError,
+    Unauthorized,
 )
 from service.request_ids import current_request_id
 from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
@@ -41,6 +44,9 @@ _KINDS: dict[type[ServiceError], str] = {
     FeatureSpecNotFound: "feature-spec-not-found",
     IdempotencyKeyInvalid: "idempotency-key-invalid",
     IdempotencyKeyReused: "idempotency-key-reused",
+    Unauthorized: "unauthorized",
+    RateLimited: "rate-limited",
+    QuotaExceeded: "quota-exceeded",
     NotReady: "not-ready",
 }
 """The problem kind of each service error; its status and title are in PROBLEM_KINDS."""
@@ -129,6 +135,15 @@ def field_errors_of(error: ValidationError, model: type[BaseModel]) -> list[Fiel
     return errors
 
 
+def _challenge(error: Unauthorized) -> str:
+    """The ``WWW-Authenticate`` value of a 401 (RFC 6750 section 3): the Bearer scheme, and
+    the error code when a key was sent but is not valid."""
+    challenge = 'Bearer realm="lacuna"'
+    if error.error is not None:
+        challenge += f', error="{error.error}"'
+    return challenge
+
+
 def register(app: Flask) -> None:
     """Install the handlers; called once by the app factory."""
     retry_after = {"Retry-After": str(app.extensions["lacuna"].settings.retry_after_s)}
@@ -140,7 +155,13 @@ def register(app: Flask) -> None:
             extra["errors"] = error.errors
         if isinstance(error, JobHasNoResult | JobAlreadyEnded):
             extra["job_status"] = error.state
+        if isinstance(error, QuotaExceeded):
+            extra.update(quota=error.quota, limit=error.limit)
         problem = problem_of_kind(_KINDS[type(error)], error.detail, **extra)
+        if isinstance(error, Unauthorized):  # RFC 9110 11.6.1: a 401 carries a challenge
+            return _respond(problem, {"WWW-Authenticate": _challenge(error)})
+        if isinstance(error, RateLimited | QuotaExceeded):  # RFC 6585 section 4
+            return _respond(problem, {"Retry-After": str(error.retry_after_s)})
         return _respond(problem, retry_after if problem.status == 503 else None)
 
     @app.errorhandler(ValidationError)

@@ -27,8 +27,10 @@ from service.errors import (
     JobHasNoResult,
     JobNotFound,
     NotReady,
+    QuotaExceeded,
     RequestInvalid,
 )
+from service.quotas import UnfinishedJobs
 from service.request_ids import current_request_id
 from service.settings import Settings
 from service.submissions import Submission, stored_input
@@ -78,13 +80,15 @@ class JobQueue:
         self._waiting_redis = waiting_redis  # its socket timeout outlasts a Prefer: wait
         self.settings = settings
         self.queue = Queue(settings.queue, connection=redis, serializer=JSONSerializer)
+        self.unfinished = UnfinishedJobs(redis, settings)
 
     def submit(self, submission: Submission, owner: str, idempotency_key: str | None = None) -> Job:
         """Store the input array next to the job and enqueue ``workers.jobs.run``.
 
         With ``idempotency_key``, a request equal to the one first sent under that key (the
         same request hash) within ``Settings.idempotency_ttl_s`` gets that job back instead of
-        a new one; a different request under the key is IdempotencyKeyReused.
+        a new one; a different request under the key is IdempotencyKeyReused. A new job
+        counts against the owner's ``max_unfinished_jobs`` (QuotaExceeded when it is full).
         """
         input_sha = array_sha256(submission.array)
         request_sha = canonical_sha256({"request": submission.described, "input_sha256": input_sha})
@@ -150,6 +154,25 @@ class JobQueue:
             request_id=request_id,
         )
         keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)
+        reservation = self.unfinished.reserve(owner, job_id)
+        if not reservation.added:
+            raise QuotaExceeded(
+                owner,
+                "max_unfinished_jobs",
+                reservation.limit,
+                self.settings.retry_after_s,
+                f"{reservation.count} jobs are queued or running; retry when some have ended "
+                "(or cancel some)",
+            )
+        try:
+            return self._enqueue_reserved(submission, owner, job_id, payload, keep)
+        except BaseException:
+            self.unfinished.release(owner, job_id)
+            raise
+
+    def _enqueue_reserved(
+        self, submission: Submission, owner: str, job_id: str, payload: JobPayload, keep: int
+    ) -> Job:
         # One MULTI/EXEC for the job and its input: no worker can see one without the other.
         with self.redis.pipeline() as pipe:
             job = self.queue.enqueue(
@@ -285,6 +308,7 @@ class JobQueue:
         """Delete a job that has served its purpose (a picture once sent), and its input."""
         job.delete()
         self.redis.delete(input_key(job.id), cancel_key(job.id))
+        self.unfinished.release(str(job.meta.get("owner")), job.id)
 
     def ready_workers(self) -> int:
         """Workers registered on the queue; NotReady without Redis or without a worker."""

@@ -8,7 +8,7 @@ from typing import Any
 from flask import Blueprint, Response, current_app, jsonify, request
 from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, UnsupportedMediaType
 
-from service.auth import owner_of
+from service.auth import access_of, owner_of
 from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
 from service.errors import (
     BodyNotJson,
@@ -21,10 +21,11 @@ from service.graphml import decode_graph
 from service.pages import job_page, wants_html
 from service.pictures import draw
 from service.queue import Job
+from service.quotas import quotas_of
 from service.submissions import distance_submission, job_submission
 from service.uploads import decode_array, multipart_parts
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
-from workers.spec.capabilities import Limits
+from workers.spec.capabilities import Caller, Limits, TenantUsage
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
 from workers.spec.kinds import InputData, kind_of, request_errors
 from workers.spec.plots import PlotQuery
@@ -125,14 +126,15 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
     state = _state()
     if request.mimetype != "multipart/form-data":
         body = _json_body(", or as multipart/form-data with request and data parts")
-        job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
+        job_request = JobRequest.model_validate(body)
+        job_request = state.feature_specs.resolve(job_request, owner_of(request))
         data = kind_of(job_request.input.type).data(job_request.input)
         if isinstance(data, FieldError):
             raise RequestInvalid([data])
         return job_request, data, False
     request.max_content_length = state.settings.max_upload_bytes
     body, raw = multipart_parts(request)
-    job_request = state.feature_specs.resolve(JobRequest.model_validate(body))
+    job_request = state.feature_specs.resolve(JobRequest.model_validate(body), owner_of(request))
     upload = kind_of(job_request.input.type).upload
     if upload is None:
         raise RequestInvalid(
@@ -178,7 +180,7 @@ def register_feature_spec() -> tuple[Response, int, dict[str, str]]:
     errors = [spec_id_mismatch(spec, "/spec_id"), length_error(spec, "", _state().limits)]
     if any(errors):
         raise RequestInvalid([error for error in errors if error is not None])
-    spec_id = _state().feature_specs.register(spec)
+    spec_id = _state().feature_specs.register(spec, owner_of(request))
     answer = feature_spec_answer(spec)
     return (
         jsonify(answer.model_dump(mode="json")),
@@ -190,7 +192,8 @@ def register_feature_spec() -> tuple[Response, int, dict[str, str]]:
 @v1.get("/feature-specs/<spec_id>")
 def feature_spec(spec_id: str) -> Response:
     """A registered feature spec, in canonical form."""
-    found = _state().feature_specs.find([spec_id]) if _SPEC_ID.fullmatch(spec_id) else {}
+    specs = _state().feature_specs
+    found = specs.find([spec_id], owner_of(request)) if _SPEC_ID.fullmatch(spec_id) else {}
     if spec_id not in found:
         raise FeatureSpecNotFound(spec_id)
     return jsonify(feature_spec_answer(found[spec_id]).model_dump(mode="json"))
@@ -267,8 +270,20 @@ def cancel_job(job_id: str) -> tuple[Response, int]:
 
 @v1.get("/capabilities")
 def capabilities() -> Response:
-    """What this deployment accepts and runs."""
-    return jsonify(_state().capabilities.model_dump(mode="json"))
+    """What this deployment accepts and runs, and the caller's tenant, quotas and usage."""
+    state = _state()
+    owner = owner_of(request)
+    caller = Caller(
+        tenant=owner,
+        access=access_of(state.settings),
+        quotas=quotas_of(state.queue.redis, state.settings, owner),
+        usage=TenantUsage(
+            unfinished_jobs=state.queue.unfinished.count(owner),
+            feature_specs=state.feature_specs.count(owner),
+        ),
+    )
+    answer = state.capabilities.model_copy(update={"caller": caller})
+    return jsonify(answer.model_dump(mode="json"))
 
 
 @v1.get("/openapi.json")

@@ -120,3 +120,38 @@ class Settings(BaseSettings):
         description="Log lines of the API under gunicorn, on stderr: one JSON object per line "
         "(for a log collector; gunicorn's access log too), or gunicorn's own text.",
     )
+
+    # Tenants and quotas: API keys, the access mode, per-tenant quotas (service/auth.py,
+    # service/keys.py, service/quotas.py)
+    auth: Literal["keys", "open"] | None = Field(
+        None,
+        description='"keys": every request but the health routes and the OpenAPI document '
+        'needs an API key (Authorization: Bearer, RFC 6750); "open": no keys, every request '
+        'acts for the one owner "public". Unset: open when `host` is a loopback address, keys '
+        "otherwise.",
+    )
+    open_access: bool = Field(
+        False,
+        description="Let `lacuna serve` listen on a non-loopback address in open mode (no "
+        "keys): anyone who can reach the port reads and cancels every job.",
+    )
+    max_unfinished_jobs: int = Field(
+        500, ge=1, description="Most queued plus running jobs of one tenant at a time."
+    )
+    # Generous enough for one user's batch (`make bench` sends 400 requests in about 2 s),
+    # tight enough that a runaway loop of one tenant cannot crowd out the others.
+    requests_per_s: float = Field(
+        100.0, gt=0, description="Requests per second one tenant may sustain (token bucket)."
+    )
+    request_burst: int = Field(
+        1000, ge=1, description="Requests one tenant may send at once above the sustained rate."
+    )
+    max_feature_specs: int = Field(
+        1000, ge=1, description="Most feature specs one tenant keeps registered at a time."
+    )
+    feature_spec_ttl_s: int = Field(
+        30 * 86_400,
+        ge=1,
+        description="A registered feature spec expires this long after it was last registered "
+        "or used (by id in a job, or read).",
+    )

@@ -27,7 +27,9 @@ SERVER_MODULES = [
 ]
 """Our server packages and the libraries of the server extra: the client needs none of them."""
 
-COMMANDS = sorted(["serve", "worker", "demo", "openapi", "submit", "status", "fetch", "cancel"])
+COMMANDS = sorted(
+    ["serve", "worker", "demo", "openapi", "keys", "submit", "status", "fetch", "cancel"]
+)
 """Every command of ``lacuna``."""
 
 _DONE = "all checks ran"
@@ -210,7 +212,7 @@ def test_server_commands_without_the_server_say_how_to_install_it() -> None:
         """
 import contextlib, io
 from lacuna_client.cli import PROGRAMS, main
-assert set(PROGRAMS) == {"serve", "worker", "demo", "openapi"}
+assert set(PROGRAMS) == {"serve", "worker", "demo", "openapi", "keys"}
 for command in PROGRAMS:
     said = io.StringIO()
     with contextlib.redirect_stderr(said):

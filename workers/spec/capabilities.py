@@ -1,5 +1,7 @@
 """What this deployment accepts, so clients can check before sending."""
 
+from typing import Literal
+
 from pydantic import BaseModel, Field
 
 
@@ -28,6 +30,37 @@ class Limits(BaseModel):
     )
 
 
+class TenantQuotas(BaseModel):
+    """What one tenant may hold and send; above a quota the API answers 429 naming it."""
+
+    max_unfinished_jobs: int = Field(description="Most queued plus running jobs at a time.")
+    requests_per_s: float = Field(description="Requests per second sustained (token bucket).")
+    request_burst: int = Field(description="Requests at once above the sustained rate.")
+    max_feature_specs: int = Field(description="Most feature specs registered at a time.")
+    feature_spec_ttl_s: int = Field(
+        description="A feature spec expires this long after it was last registered or used."
+    )
+
+
+class TenantUsage(BaseModel):
+    """How much of its quotas a tenant uses now."""
+
+    unfinished_jobs: int = Field(description="Queued plus running jobs.")
+    feature_specs: int = Field(description="Feature specs registered and not expired.")
+
+
+class Caller(BaseModel):
+    """Who the request acts for, under which access mode, with its quotas and usage."""
+
+    tenant: str = Field(description='The tenant of the API key; "public" in open mode.')
+    access: Literal["keys", "open"] = Field(
+        description='"keys": requests need an API key (Authorization: Bearer); "open": no '
+        'keys, every request acts for "public".'
+    )
+    quotas: TenantQuotas
+    usage: TenantUsage
+
+
 class Capabilities(BaseModel):
     """Answer of ``GET /v1/capabilities``."""
 
@@ -44,3 +77,6 @@ class Capabilities(BaseModel):
     )
     limits: Limits
     versions: dict[str, str]
+    caller: Caller | None = Field(
+        None, description="The caller's tenant, quotas and usage (filled in per request)."
+    )

@@ -20,6 +20,12 @@ PROBLEM_KINDS: dict[str, tuple[int, str]] = {
     "feature-spec-not-found": (404, "Feature spec not found"),
     "idempotency-key-invalid": (400, "Invalid Idempotency-Key"),
     "idempotency-key-reused": (422, "Idempotency-Key reused"),
+    "unauthorized": (401, "Unauthorized"),
+    "rate-limited": (429, "Too many requests"),
+    # 429, not 403: a quota frees as jobs end or specs expire, so the request may succeed
+    # later (RFC 6585 section 4, with Retry-After), while a 403 says repeating it will not
+    # help (RFC 9110 15.5.4).
+    "quota-exceeded": (429, "Quota exceeded"),
     "not-ready": (503, "Not ready"),
     "queue-unavailable": (503, "Queue unavailable"),
     "internal-error": (500, "Internal error"),
