@@ -111,3 +111,29 @@ class Settings(BaseSettings):
     local_workers: int = Field(
         2, ge=0, description="Job workers `lacuna serve` starts on its own machine (0: API only)."
     )
+    # Memory and cost of jobs: the memory limit, and the refusal up front of what cannot fit
+    job_memory_limit_mb: int | None = Field(
+        4096,
+        ge=1,
+        description="How far one job may grow its compute process (MiB of address space, "
+        "beyond what the idle process maps); a job above it fails with a memory-limit problem "
+        "and the worker carries on. Unset (null): no limit.",
+    )
+    refuse_costly_jobs: bool = Field(
+        True,
+        description="Refuse before queueing (422 too-costly) a job whose estimated peak "
+        "memory is above job_memory_limit_mb times cost_memory_margin, or whose estimated time "
+        "is above job_time_limit_s times cost_time_margin (workers.spec.costs).",
+    )
+    cost_memory_margin: float = Field(
+        1.5,
+        ge=1,
+        description="How far above the memory limit an estimate must be before a job is "
+        "refused: the cost model errs, and the runtime cap stops what gets through.",
+    )
+    cost_time_margin: float = Field(
+        4.0,
+        ge=1,
+        description="How far above the time limit an estimate must be before a job is "
+        "refused (estimates assume one core and the machine the model was fitted on).",
+    )

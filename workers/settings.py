@@ -9,9 +9,16 @@ __all__ = ["WorkerSettings"]
 
 
 class WorkerSettings(BaseSettings):
-    """What a worker needs: where the queue is."""
+    """What a worker needs: where the queue is, and how much memory a job may take."""
 
     model_config = SettingsConfigDict(env_prefix="LACUNA_", extra="ignore")
 
     redis_url: str = Field(DEFAULT_REDIS_URL, description="Redis holding the job queue.")
     queue: str = Field(DEFAULT_QUEUE, description="Name of the RQ queue to take jobs from.")
+    job_memory_ceiling_mb: int | None = Field(
+        None,
+        ge=1,
+        description="Most MiB any job may grow this worker's compute process by, whatever "
+        "memory limit the job was queued with (the API's job_memory_limit_mb); unset: the "
+        "job's own limit. For a worker on a smaller machine than the API assumes.",
+    )
