@@ -11,10 +11,12 @@ Tree::
     ├── FeatureSpecNotFound  no feature spec registered under that id
     ├── IdempotencyKeyInvalid  the Idempotency-Key header is not a usable key
     ├── IdempotencyKeyReused   the key was used with another request body
+    ├── TooCostly            the job's estimated cost is beyond the limits
     └── NotReady             no Redis or no worker
 """
 
 from workers.spec import FieldError
+from workers.spec.costs import CostEstimate
 
 __all__ = [
     "BodyNotJson",
@@ -27,6 +29,7 @@ __all__ = [
     "NotReady",
     "RequestInvalid",
     "ServiceError",
+    "TooCostly",
 ]
 
 
@@ -89,3 +92,12 @@ class IdempotencyKeyReused(ServiceError):
 
 class NotReady(ServiceError):
     pass
+
+
+class TooCostly(ServiceError):
+    def __init__(self, estimate: CostEstimate) -> None:
+        super().__init__(
+            "; ".join(estimate.reasons) + f"; {estimate.driving_field} drives the cost "
+            "(POST /v1/estimates prices a request without queueing it)"
+        )
+        self.estimate = estimate

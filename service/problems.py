@@ -21,6 +21,7 @@ from service.errors import (
     NotReady,
     RequestInvalid,
     ServiceError,
+    TooCostly,
 )
 from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
 from workers.spec.features import FeatureSpecBody
@@ -42,6 +43,7 @@ _KINDS: dict[type[ServiceError], str] = {
     IdempotencyKeyInvalid: "idempotency-key-invalid",
     IdempotencyKeyReused: "idempotency-key-reused",
     NotReady: "not-ready",
+    TooCostly: "too-costly",
 }
 """The problem kind of each service error; its status and title are in PROBLEM_KINDS."""
 
@@ -139,6 +141,10 @@ def register(app: Flask) -> None:
             extra["errors"] = error.errors
         if isinstance(error, JobHasNoResult | JobAlreadyEnded):
             extra["job_status"] = error.state
+        if isinstance(error, TooCostly):
+            message = "; ".join(error.estimate.reasons)
+            extra["errors"] = [FieldError(pointer=error.estimate.driving_field, message=message)]
+            extra["estimate"] = error.estimate.model_dump(mode="json")
         problem = problem_of_kind(_KINDS[type(error)], error.detail, **extra)
         return _respond(problem, retry_after if problem.status == 503 else None)
 
