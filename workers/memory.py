@@ -38,9 +38,12 @@ def address_space() -> int:
 
 
 def _soft_limit(bytes_: int) -> None:
-    _, hard = resource.getrlimit(resource.RLIMIT_AS)
-    if hard != resource.RLIM_INFINITY:
-        bytes_ = min(bytes_, hard)
+    """Lower the soft limit to ``bytes_``; never raise it (a cap set from outside, by prlimit
+    or a parent's own, stays the tighter one)."""
+    soft, hard = resource.getrlimit(resource.RLIMIT_AS)
+    for bound in (soft, hard):
+        if bound != resource.RLIM_INFINITY:
+            bytes_ = min(bytes_, bound)
     resource.setrlimit(resource.RLIMIT_AS, (bytes_, hard))
 
 

@@ -60,7 +60,7 @@ def affordable_processes(task: DistanceTask, items: list[np.ndarray]) -> int:
     would not hold the costliest pair's estimated peak in each."""
     cores = usable_cores()
     room = memory.headroom()
-    if room is None or task.metric in ("euclidean", "cosine"):  # vectors: one process anyway
+    if cores == 1 or room is None or task.metric in ("euclidean", "cosine"):
         return cores
     need = largest_pair_peak(task, np.array([len(item) for item in items]))
     return max(1, min(cores, int(room // max(need, 1.0))))

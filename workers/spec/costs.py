@@ -174,20 +174,23 @@ def persistence_cost(
     return _priced("diagrams", [shape[0]], "/input/diagrams")
 
 
-def _pair_sizes(task: DistanceTask, first: np.ndarray, second: np.ndarray) -> np.ndarray:
-    """The size a pair's model takes, for pairs of diagrams of first[k] and second[k] rows."""
+def _pair_sizes(task: DistanceTask, first: np.ndarray, second: np.ndarray) -> list[np.ndarray]:
+    """The sizes a pair's model takes (one array per regressor), for the pairs of diagrams
+    of first[k] and second[k] rows: (smaller + 1, larger + 1) for the matching distances,
+    (pairs of both + 1) * directions for sliced_wasserstein."""
     if task.metric == "sliced_wasserstein":
-        return (first + second + 1.0) * float(task.directions or 50)
-    return (first + 1.0) * (second + 1.0)
+        return [(first + second + 1.0) * float(task.directions or 50)]
+    return [np.minimum(first, second) + 1.0, np.maximum(first, second) + 1.0]
 
 
 def largest_pair_peak(task: DistanceTask, counts: np.ndarray) -> float:
-    """Estimated peak bytes of the costliest pair of diagrams with ``counts`` rows each."""
+    """Estimated peak bytes of the costliest pair of diagrams with ``counts`` rows each
+    (the two largest: every model grows with each size)."""
     if len(counts) < 2:
         return 0.0
     largest = np.sort(counts)[-2:].astype(np.float64)
-    size = _pair_sizes(task, largest[1:], largest[:1])[0]
-    return cost_model().kinds[task.metric].peak_bytes.at([size])
+    sizes = [float(size[0]) for size in _pair_sizes(task, largest[:1], largest[1:])]
+    return cost_model().kinds[task.metric].peak_bytes.at(sizes)
 
 
 def distance_cost(
@@ -207,9 +210,8 @@ def distance_cost(
     sizes = _pair_sizes(task, counts[rows], counts[cols])
     # Only the power-law part adds up per pair: the matrix kind carries the fixed costs.
     law = pair.seconds
-    seconds = float(
-        (np.exp(law.scale_log) * np.power(np.maximum(sizes, 1.0), law.exponents[0])).sum()
-    )
+    logs = sum(e * np.log(np.maximum(x, 1.0)) for e, x in zip(law.exponents, sizes, strict=True))
+    seconds = float(np.exp(law.scale_log + logs).sum())
     seconds += matrix.seconds.at([entries])
     # The matrix and its JSON cost what a matrix of vectors of length 1 does.
     peak = largest_pair_peak(task, counts) + vectors.peak_bytes.at([entries, 1.0])
