@@ -126,10 +126,11 @@ class Settings(BaseSettings):
         "is above job_time_limit_s times cost_time_margin (workers.spec.costs).",
     )
     cost_memory_margin: float = Field(
-        1.5,
+        2.0,
         ge=1,
         description="How far above the memory limit an estimate must be before a job is "
-        "refused: the cost model errs, and the runtime cap stops what gets through.",
+        "refused: the cost model errs (up to 2.4 times on its own grid, see "
+        "workers/spec/costs.py), and the runtime cap stops what gets through.",
     )
     cost_time_margin: float = Field(
         4.0,
