@@ -213,6 +213,27 @@ def largest_pair_peak(task: DistanceTask, counts: np.ndarray) -> float:
     return cost_model().kinds[task.metric].peak_bytes.at(sizes)
 
 
+def _pairs_seconds(task: DistanceTask, counts: np.ndarray) -> float:
+    """Sum over the pairs of a matrix of the power-law part of a pair's seconds (the matrix
+    kind carries the fixed cost of each pair). Diagrams of equal size are priced once, and
+    one size at a time against the others, so memory stays linear in the count (an API
+    process prices a 2000-diagram matrix without building its 2 million pairs)."""
+    law = cost_model().kinds[task.metric].seconds
+    sizes, multiplicity = np.unique(counts, return_counts=True)
+    total = 0.0
+    for k, size in enumerate(sizes):
+        # Pairs of this size with itself, and with every larger size.
+        others = sizes[k:]
+        pairs = multiplicity[k] * multiplicity[k:].astype(np.float64)
+        pairs[0] = multiplicity[k] * (multiplicity[k] - 1) / 2
+        regressors = _pair_sizes(task, np.full(len(others), size), others)
+        logs = sum(
+            e * np.log(np.maximum(x, 1.0)) for e, x in zip(law.exponents, regressors, strict=True)
+        )
+        total += float((pairs * np.exp(law.scale_log + logs)).sum())
+    return total
+
+
 def distance_cost(
     stored: StoredType, shape: Sequence[int], task: DistanceTask, array: np.ndarray, base: str
 ) -> Cost:
@@ -225,14 +246,7 @@ def distance_cost(
     vectors = cost_model().kinds["vectors"]
     matrix = cost_model().kinds["matrix"]
     counts = np.bincount(array[:, 0].astype(np.int64), minlength=count).astype(np.float64)
-    pair = cost_model().kinds[task.metric]
-    rows, cols = np.triu_indices(count, k=1)
-    sizes = _pair_sizes(task, counts[rows], counts[cols])
-    # Only the power-law part adds up per pair: the matrix kind carries the fixed costs.
-    law = pair.seconds
-    logs = sum(e * np.log(np.maximum(x, 1.0)) for e, x in zip(law.exponents, sizes, strict=True))
-    seconds = float(np.exp(law.scale_log + logs).sum())
-    seconds += matrix.seconds.at([entries])
+    seconds = _pairs_seconds(task, counts) + matrix.seconds.at([entries])
     # The matrix and its JSON cost what a matrix of vectors of length 1 does.
     peak = largest_pair_peak(task, counts) + vectors.peak_bytes.at([entries, 1.0])
     return Cost(task.metric, seconds, peak, f"{base}/{int(np.argmax(counts))}")
