@@ -13,7 +13,9 @@ gives way: a ``MemoryError`` (numpy, CPython, C++ ``std::bad_alloc`` through pyb
 Cython), or death by SIGSEGV, SIGBUS or SIGABRT, which is how native code that does not
 check an allocation ends under the cap. After a memory-limit the child is killed and the
 next job forks a fresh one: an allocation that failed halfway through a library may have
-left it in a state nobody should compute in.
+left it in a state nobody should compute in. A SIGKILL the worker did not send comes from
+the kernel's OOM killer (the machine ran out, not the job's limit, which never kills): that
+stays a compute-crashed problem.
 
 The pipe carries JSON and .npy bytes only; nothing is pickled.
 """
