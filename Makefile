@@ -8,7 +8,7 @@ HASH   := $(shell cat pyproject.toml docker/constraints.txt | cksum | cut -d' ' 
 STAMP  := $(VENV)/.installed-$(HASH)
 DEV    := $(VENV)/.installed-dev-$(HASH)
 
-.PHONY: install install-dev browser serve test lint bench openapi lock clean
+.PHONY: install install-dev browser serve test lint bench estimates openapi lock clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -54,6 +54,11 @@ test: lint browser
 
 bench: install-dev
 	$(BIN)/python -m tests.benchmarks.run
+
+# The cost model of jobs (workers/spec/cost_model.json): a grid of sizes per kind of job,
+# each measured in a forked process capped in memory and time (about 15 minutes), then fitted.
+estimates: install-dev
+	$(BIN)/python -m tests.benchmarks.costs
 
 # The committed OpenAPI document and the README's example picture, both generated.
 openapi: install-dev

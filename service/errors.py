@@ -14,10 +14,12 @@ Tree::
     ├── Unauthorized         no API key, or one that is unknown or revoked (keys mode)
     ├── RateLimited          the tenant's request rate is used up for now
     ├── QuotaExceeded        the tenant holds as many jobs or feature specs as it may
+    ├── TooCostly            the job's estimated cost is beyond the limits
     └── NotReady             no Redis or no worker
 """
 
 from workers.spec import FieldError
+from workers.spec.costs import CostEstimate
 
 __all__ = [
     "BodyNotJson",
@@ -33,6 +35,7 @@ __all__ = [
     "RequestInvalid",
     "ServiceError",
     "Unauthorized",
+    "TooCostly",
 ]
 
 
@@ -123,3 +126,12 @@ class QuotaExceeded(ServiceError):
 
 class NotReady(ServiceError):
     pass
+
+
+class TooCostly(ServiceError):
+    def __init__(self, estimate: CostEstimate) -> None:
+        super().__init__(
+            "; ".join(estimate.reasons) + f"; {estimate.driving_field} drives the cost "
+            "(POST /v1/estimates prices a request without queueing it)"
+        )
+        self.estimate = estimate

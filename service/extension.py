@@ -43,6 +43,7 @@ def limits_of(settings: Settings) -> Limits:
         max_upload_bytes=settings.max_upload_bytes,
         max_result_pairs=settings.max_result_pairs,
         job_time_limit_s=settings.job_time_limit_s,
+        job_memory_limit_mb=settings.job_memory_limit_mb,
         result_ttl_s=settings.result_ttl_s,
         max_wait_s=settings.max_wait_s,
         idempotency_ttl_s=settings.idempotency_ttl_s,

@@ -22,6 +22,7 @@ from workers.spec import (
     JobStatus,
     Problem,
 )
+from workers.spec.costs import CostEstimate
 from workers.spec.features import FeatureSpecBody
 from workers.spec.plots import PlotQuery
 
@@ -38,6 +39,7 @@ _MODELS: list[type[BaseModel]] = [
     FeatureSpecAnswer,
     Problem,
     Capabilities,
+    CostEstimate,
 ]
 
 _DESCRIPTION = """\
@@ -225,7 +227,9 @@ def _paths() -> dict[str, Any]:
                     "422": _problem(
                         "The request is invalid; `errors` points at each field (`/data` is "
                         "the uploaded file). Or the Idempotency-Key was used with another "
-                        "request."
+                        "request. Or the job is estimated to cost more than the limits "
+                        "allow (too-costly: `estimate` holds the estimate, `errors` the field "
+                        "that drives the cost)."
                     ),
                     "503": _UNAVAILABLE,
                 },
@@ -379,8 +383,45 @@ def _paths() -> dict[str, Any]:
                     "415": _problem("The Content-Type is not application/json."),
                     "422": _problem(
                         "The request is invalid, or a job id is unknown, unfinished or failed; "
-                        "`errors` points at each field."
+                        "`errors` points at each field. Or the matrix is estimated to cost "
+                        "more than the limits allow (too-costly, with `estimate`)."
                     ),
+                    "503": _UNAVAILABLE,
+                },
+            }
+        },
+        "/v1/estimates": {
+            "post": {
+                "summary": "Estimate the time and memory of a job or distance matrix",
+                "description": "Takes the body of POST /v1/jobs (JSON with `input`, or "
+                "multipart/form-data with request and data parts) or of POST /v1/distances "
+                "(JSON without `input`), checks it the same way, and answers what it would "
+                "cost, from a model fitted on measurements (`fit` says how well), against "
+                "the job limits; nothing is queued. Those endpoints refuse (422 too-costly) "
+                "what this answers with refused: true.",
+                "operationId": "estimateJob",
+                "requestBody": {
+                    "required": True,
+                    "content": {
+                        "application/json": {
+                            "schema": {
+                                "oneOf": [
+                                    {"$ref": "#/components/schemas/JobRequest"},
+                                    {"$ref": "#/components/schemas/DistanceRequest"},
+                                ]
+                            }
+                        },
+                        "multipart/form-data": _UPLOAD,
+                    },
+                },
+                "responses": {
+                    "200": {"description": "The estimate.", "content": _json("CostEstimate")},
+                    "400": _problem("The body is not JSON."),
+                    "413": _problem("The body is above the size limit."),
+                    "415": _problem(
+                        "The Content-Type is neither application/json nor multipart/form-data."
+                    ),
+                    "422": _problem("The request is invalid; `errors` points at each field."),
                     "503": _UNAVAILABLE,
                 },
             }

@@ -22,6 +22,7 @@ from service.errors import (
     RateLimited,
     RequestInvalid,
     ServiceError,
+    TooCostly,
     Unauthorized,
 )
 from service.request_ids import current_request_id
@@ -48,6 +49,7 @@ _KINDS: dict[type[ServiceError], str] = {
     RateLimited: "rate-limited",
     QuotaExceeded: "quota-exceeded",
     NotReady: "not-ready",
+    TooCostly: "too-costly",
 }
 """The problem kind of each service error; its status and title are in PROBLEM_KINDS."""
 
@@ -157,6 +159,10 @@ def register(app: Flask) -> None:
             extra["job_status"] = error.state
         if isinstance(error, QuotaExceeded):
             extra.update(quota=error.quota, limit=error.limit)
+        if isinstance(error, TooCostly):
+            message = "; ".join(error.estimate.reasons)
+            extra["errors"] = [FieldError(pointer=error.estimate.driving_field, message=message)]
+            extra["estimate"] = error.estimate.model_dump(mode="json")
         problem = problem_of_kind(_KINDS[type(error)], error.detail, **extra)
         if isinstance(error, Unauthorized):  # RFC 9110 11.6.1: a 401 carries a challenge
             return _respond(problem, {"WWW-Authenticate": _challenge(error)})

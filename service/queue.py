@@ -150,6 +150,7 @@ class JobQueue:
             task=submission.task,
             request_sha256=request_sha,
             time_limit_s=self.settings.job_time_limit_s,
+            memory_limit_mb=self.settings.job_memory_limit_mb,
             max_result_pairs=self.settings.max_result_pairs,
             request_id=request_id,
         )

@@ -10,6 +10,7 @@ from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, Unsupporte
 
 from service.auth import access_of, owner_of
 from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
+from service.costs import estimate_of, items_pointer, refuse_if_too_costly
 from service.errors import (
     BodyNotJson,
     FeatureSpecNotFound,
@@ -26,6 +27,7 @@ from service.submissions import distance_submission, job_submission
 from service.uploads import decode_array, multipart_parts
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
 from workers.spec.capabilities import Caller, Limits, TenantUsage
+from workers.spec.costs import CostEstimate
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
 from workers.spec.kinds import InputData, kind_of, request_errors
 from workers.spec.plots import PlotQuery
@@ -126,12 +128,7 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
     state = _state()
     if request.mimetype != "multipart/form-data":
         body = _json_body(", or as multipart/form-data with request and data parts")
-        job_request = JobRequest.model_validate(body)
-        job_request = state.feature_specs.resolve(job_request, owner_of(request))
-        data = kind_of(job_request.input.type).data(job_request.input)
-        if isinstance(data, FieldError):
-            raise RequestInvalid([data])
-        return job_request, data, False
+        return _json_job_request(body)
     request.max_content_length = state.settings.max_upload_bytes
     body, raw = multipart_parts(request)
     job_request = state.feature_specs.resolve(JobRequest.model_validate(body), owner_of(request))
@@ -147,6 +144,15 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
             ]
         )
     return job_request, _DECODERS[upload](raw, state.limits), True
+
+
+def _json_job_request(body: Any) -> tuple[JobRequest, InputData | None, bool]:
+    """A job request sent as JSON, with the arrays of its input."""
+    job_request = _state().feature_specs.resolve(JobRequest.model_validate(body), owner_of(request))
+    data = kind_of(job_request.input.type).data(job_request.input)
+    if isinstance(data, FieldError):
+        raise RequestInvalid([data])
+    return job_request, data, False
 
 
 @v1.post("/jobs")
@@ -169,7 +175,9 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
             "or ask for application/json"
         )
     key = _idempotency_key()
-    job = state.queue.submit(job_submission(job_request, data, uploaded), owner_of(request), key)
+    submission = job_submission(job_request, data, uploaded)
+    refuse_if_too_costly(estimate_of(submission, state.settings, uploaded=uploaded), state.settings)
+    job = state.queue.submit(submission, owner_of(request), key)
     return _answer(job, wait)
 
 
@@ -212,6 +220,8 @@ def submit_distances() -> tuple[Response, int, dict[str, str]]:
     if distance_request.job_ids is not None:
         results = state.queue.results_of(distance_request.job_ids, owner, "/job_ids")
     submission = distance_submission(distance_request, results)
+    items = items_pointer(distance_request)
+    refuse_if_too_costly(estimate_of(submission, state.settings, items=items), state.settings)
     job = state.queue.submit(submission, owner)
     wait = _requested_wait()
     count = submission.task.count if isinstance(submission.task, DistanceTask) else 0
@@ -220,6 +230,41 @@ def submit_distances() -> tuple[Response, int, dict[str, str]]:
     ):
         wait = state.settings.max_wait_s
     return _answer(job, wait)
+
+
+@v1.post("/estimates")
+def estimate_job() -> Response:
+    """What a job or distance request would cost, and whether it would be refused; nothing
+    is queued. The body is that of POST /v1/jobs (JSON with `input`, or multipart) or of
+    POST /v1/distances (JSON without `input`)."""
+    state = _state()
+    if request.mimetype == "multipart/form-data":
+        job_request, data, uploaded = _job_request()
+    else:
+        body = _json_body(", or as multipart/form-data with request and data parts")
+        if not (isinstance(body, dict) and "input" in body):
+            return jsonify(_distance_estimate(body).model_dump(mode="json"))
+        job_request, data, uploaded = _json_job_request(body)
+    errors = request_errors(job_request, state.limits, data, uploaded)
+    if errors:
+        raise RequestInvalid(errors)
+    submission = job_submission(job_request, data, uploaded)
+    estimate = estimate_of(submission, state.settings, uploaded=uploaded)
+    return jsonify(estimate.model_dump(mode="json"))
+
+
+def _distance_estimate(body: Any) -> CostEstimate:
+    """The estimate of a distance request's body."""
+    state = _state()
+    distance_request = DistanceRequest.model_validate(body)
+    errors = distance_request.field_errors(state.limits)
+    if errors:
+        raise RequestInvalid(errors)
+    results = None
+    if distance_request.job_ids is not None:
+        results = state.queue.results_of(distance_request.job_ids, owner_of(request), "/job_ids")
+    submission = distance_submission(distance_request, results)
+    return estimate_of(submission, state.settings, items=items_pointer(distance_request))
 
 
 @v1.get("/jobs/<job_id>")

@@ -155,3 +155,31 @@ class Settings(BaseSettings):
         description="A registered feature spec expires this long after it was last registered "
         "or used (by id in a job, or read).",
     )
+
+    # Memory and cost of jobs: the memory limit, and the refusal up front of what cannot fit
+    job_memory_limit_mb: int | None = Field(
+        4096,
+        ge=1,
+        description="How far one job may grow its compute process (MiB of address space, "
+        "beyond what the idle process maps); a job above it fails with a memory-limit problem "
+        "and the worker carries on. Unset (null): no limit.",
+    )
+    refuse_costly_jobs: bool = Field(
+        True,
+        description="Refuse before queueing (422 too-costly) a job whose estimated peak "
+        "memory is above job_memory_limit_mb times cost_memory_margin, or whose estimated time "
+        "is above job_time_limit_s times cost_time_margin (workers.spec.costs).",
+    )
+    cost_memory_margin: float = Field(
+        2.0,
+        ge=1,
+        description="How far above the memory limit an estimate must be before a job is "
+        "refused: the cost model errs (up to 2.4 times on its own grid, see "
+        "workers/spec/costs.py), and the runtime cap stops what gets through.",
+    )
+    cost_time_margin: float = Field(
+        4.0,
+        ge=1,
+        description="How far above the time limit an estimate must be before a job is "
+        "refused (estimates assume one core and the machine the model was fitted on).",
+    )

@@ -6,6 +6,17 @@ than a small job itself. So each worker forks one child *after* the heavy import
 jobs over a pipe, and on overrun or cancellation kills it with SIGKILL; the next job forks a
 new one (cheap: the imports are already in memory).
 
+A job's memory limit (``JobPayload.memory_limit_mb``, lowered to the worker's
+``job_memory_ceiling_mb``) caps the child's address space while the job runs
+(``workers.memory``). A job over it fails with a memory-limit problem however the child
+gives way: a ``MemoryError`` (numpy, CPython, C++ ``std::bad_alloc`` through pybind11 or
+Cython), or death by SIGSEGV, SIGBUS or SIGABRT, which is how native code that does not
+check an allocation ends under the cap. After a memory-limit the child is killed and the
+next job forks a fresh one: an allocation that failed halfway through a library may have
+left it in a state nobody should compute in. A SIGKILL the worker did not send comes from
+the kernel's OOM killer (the machine ran out, not the job's limit, which never kills): that
+stays a compute-crashed problem.
+
 The pipe carries JSON and .npy bytes only; nothing is pickled.
 """
 
@@ -22,6 +33,8 @@ from typing import Any
 
 from workers import defaults
 from workers.core.errors import CoreError, RequestError
+from workers.memory import MEMORY_SIGNALS, MIB, address_space_cap
+from workers.settings import WorkerSettings
 from workers.spec import JobPayload, Problem, failures
 
 __all__ = ["ComputeProcess", "JobAborted", "Handler", "Report", "problem_for"]
@@ -96,18 +109,40 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
             data = connection.recv_bytes()
         except EOFError:
             return
+        limit_mb: int | None = header.get("memory_limit_mb")
         try:
-            reply: dict[str, Any] = {"result": handler(header, data, _ProgressSender(connection))}
+            # The reply is encoded under the cap too: a large result is part of the job.
+            with address_space_cap(None if limit_mb is None else limit_mb * MIB):
+                result = handler(header, data, _ProgressSender(connection))
+                reply = json.dumps({"result": result}, allow_nan=False).encode("utf-8")
+                del result
+        except MemoryError:
+            problem = (
+                failures.memory_limit_exceeded(limit_mb, "an allocation failed")
+                if limit_mb is not None
+                else failures.out_of_memory()
+            )
+            reply = _problem_reply(problem, refork=True)
         except Exception as error:  # reported as the job's problem; the child lives on
-            reply = {"problem": problem_for(error).model_dump(mode="json", exclude_none=True)}
-        connection.send_bytes(json.dumps(reply, allow_nan=False).encode("utf-8"))
+            reply = _problem_reply(problem_for(error), refork=False)
+        connection.send_bytes(reply)
+
+
+def _problem_reply(problem: Problem, *, refork: bool) -> bytes:
+    body = {"problem": problem.model_dump(mode="json", exclude_none=True), "refork": refork}
+    return json.dumps(body).encode("utf-8")
 
 
 class ComputeProcess:
-    """One forked child running ``handler``; ``run`` enforces a wall-time limit by SIGKILL."""
+    """One forked child running ``handler``; ``run`` enforces a wall-time limit by SIGKILL
+    and a memory limit by RLIMIT_AS in the child.
 
-    def __init__(self, handler: Handler) -> None:
+    ``settings`` (default: read from the environment) give the worker's memory ceiling.
+    """
+
+    def __init__(self, handler: Handler, settings: WorkerSettings | None = None) -> None:
         self._handler = handler
+        self._memory_ceiling_mb = (settings or WorkerSettings()).job_memory_ceiling_mb
         self._context = multiprocessing.get_context("fork")
         self._start()
 
@@ -122,6 +157,11 @@ class ComputeProcess:
         self._process.start()
         child_end.close()
         self._connection = parent_end
+
+    def memory_limit_mb(self, payload: JobPayload) -> int | None:
+        """The job's memory limit here: the payload's, lowered to this worker's ceiling."""
+        limits = [m for m in (payload.memory_limit_mb, self._memory_ceiling_mb) if m is not None]
+        return min(limits) if limits else None
 
     @property
     def pid(self) -> int | None:
@@ -160,7 +200,12 @@ class ComputeProcess:
             if not self._connection.closed:
                 self._connection.close()
             self._start()
-        header = {"job_id": job_id, "payload": payload.model_dump(mode="json")}
+        limit_mb = self.memory_limit_mb(payload)
+        header = {
+            "job_id": job_id,
+            "payload": payload.model_dump(mode="json"),
+            "memory_limit_mb": limit_mb,
+        }
         deadline = time.monotonic() + time_limit_s
         try:
             self._connection.send_bytes(json.dumps(header).encode("utf-8"))
@@ -183,6 +228,11 @@ class ComputeProcess:
             self._process.join(timeout=1)  # the pipe closes a moment before the exit status
             code = self._process.exitcode
             self.kill()
+            if limit_mb is not None and code is not None and -code in MEMORY_SIGNALS:
+                name = signal.Signals(-code).name
+                how = f"the compute process died of {name}, as native code does when an "
+                how += "allocation fails"
+                raise JobAborted(failures.memory_limit_exceeded(limit_mb, how)) from None
             raise JobAborted(failures.computation_crashed(code)) from None
         except BaseException:
             # Overrun, cancel, RQ's own timeout, a shutdown: never leave the child busy with
@@ -190,6 +240,8 @@ class ComputeProcess:
             self.kill()
             raise
         if "problem" in reply:
+            if reply.get("refork"):
+                self.kill()  # the next job forks a fresh child
             raise JobAborted(Problem.model_validate(reply["problem"]))
         result: dict[str, Any] = reply["result"]
         return result

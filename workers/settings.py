@@ -11,7 +11,7 @@ __all__ = ["WorkerSettings"]
 
 
 class WorkerSettings(BaseSettings):
-    """What a worker needs: where the queue is."""
+    """What a worker needs: where the queue is, and how much memory a job may take."""
 
     model_config = SettingsConfigDict(env_prefix="LACUNA_", extra="ignore")
 
@@ -23,4 +23,12 @@ class WorkerSettings(BaseSettings):
         "json",
         description="Log lines on stderr: one JSON object per line (for a log collector), or "
         "text (for a person at a terminal).",
+    )
+
+    job_memory_ceiling_mb: int | None = Field(
+        None,
+        ge=1,
+        description="Most MiB any job may grow this worker's compute process by, whatever "
+        "memory limit the job was queued with (the API's job_memory_limit_mb); unset: the "
+        "job's own limit. For a worker on a smaller machine than the API assumes.",
     )

@@ -263,7 +263,10 @@ def test_unfinished_job_is_422(client: FlaskClient) -> None:
 
 def test_failed_job_is_422(redis_url: str) -> None:
     # A real failure: a job that overruns a short time limit is killed by its worker.
-    settings = Settings(redis_url=redis_url, queue=fresh_queue(), job_time_limit_s=0.5)
+    # refuse_costly_jobs=False: the estimate would refuse the job up front.
+    settings = Settings(
+        redis_url=redis_url, queue=fresh_queue(), job_time_limit_s=0.5, refuse_costly_jobs=False
+    )
     client = app_with(**settings.model_dump()).test_client()
     worker = start_worker(redis_url, settings.queue)
     try:

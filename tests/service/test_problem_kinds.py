@@ -24,6 +24,7 @@ def test_every_job_failure_takes_status_and_title_from_the_table() -> None:
         failures.cancelled(),
         failures.computation_crashed(-9),
         failures.out_of_memory(),
+        failures.memory_limit_exceeded(1024, "an allocation failed"),
         failures.invalid_parameters("bad", "/filtration"),
         failures.internal_error(),
         failures.input_missing(),

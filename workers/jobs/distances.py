@@ -1,19 +1,21 @@
 """Distance jobs: the matrix between stored diagrams (rows of (index, birth, death)) or
-vectors (N, L), on all cores (``workers.jobs.pairwise``)."""
+vectors (N, L), on all cores (``workers.jobs.pairwise``), or on as many as the job's memory
+limit holds the costliest pair on (its estimate, ``workers.spec.costs``)."""
 
 import time
 from typing import Any
 
 import numpy as np
 
-from workers import defaults
+from workers import defaults, memory
 from workers.core.errors import pointing_into
 from workers.jobs.pairwise import Report, distance_matrix, usable_cores
 from workers.jobs.results import provenance
 from workers.spec import SCHEMA_VERSION, DistanceResult, DistanceTask, JobPayload
 from workers.spec.arrays import diagrams_of_rows
+from workers.spec.costs import largest_pair_peak
 
-__all__ = ["compute", "runs_inline"]
+__all__ = ["affordable_processes", "compute", "runs_inline"]
 
 
 def compute(
@@ -27,7 +29,9 @@ def compute(
         by_index = diagrams_of_rows(array, list(range(task.count)))
         items = [by_index[index] for index in range(task.count)]
     with pointing_into(""):  # the metric's parameters are fields of the distance request
-        matrix, nulls = distance_matrix(items, task, report, processes=usable_cores())
+        matrix, nulls = distance_matrix(
+            items, task, report, processes=affordable_processes(task, items)
+        )
     finite = np.isfinite(matrix)
     diagram_metric = payload.input.type != "vectors"
     result = DistanceResult.model_validate(
@@ -49,6 +53,17 @@ def compute(
         }
     )
     return result.model_dump(mode="json")
+
+
+def affordable_processes(task: DistanceTask, items: list[np.ndarray]) -> int:
+    """Processes for a matrix: one per core, fewer when the memory limit, shared among them,
+    would not hold the costliest pair's estimated peak in each."""
+    cores = usable_cores()
+    room = memory.headroom()
+    if cores == 1 or room is None or task.metric in ("euclidean", "cosine"):
+        return cores
+    need = largest_pair_peak(task, np.array([len(item) for item in items]))
+    return max(1, min(cores, int(room // max(need, 1.0))))
 
 
 def runs_inline(payload: JobPayload) -> bool:

@@ -4,6 +4,11 @@ Pairs are split into chunks; with more than one core, forked processes take chun
 and send each chunk's values back over a pipe as raw float64 bytes (nothing is pickled). The
 children inherit the diagrams through fork and die with their parent (PR_SET_PDEATHSIG), so
 killing a job's compute process stops them too.
+
+Under a job's memory limit (``workers.memory``) each forked process keeps an equal share of
+the headroom the compute process had left, so together they stay within the limit. An
+allocation that fails in one, or its death by a signal native code dies of when an
+allocation fails, is raised in the compute process as ``MemoryError``.
 """
 
 import ctypes
@@ -15,7 +20,7 @@ from multiprocessing.connection import Connection, Pipe, wait
 
 import numpy as np
 
-from workers import defaults
+from workers import defaults, memory
 from workers.core.diagram_distances import (
     DiagramMetric,
     distances_for_pairs,
@@ -32,6 +37,9 @@ Report = Callable[[int, int], None]
 
 _FAILED = (1 << 63) - 1
 """Chunk index that marks an error message instead of values."""
+
+_OUT_OF_MEMORY = _FAILED - 1
+"""Chunk index that marks a MemoryError in a distance process."""
 
 _PR_SET_PDEATHSIG = 1
 
@@ -113,6 +121,7 @@ def _fan_out(
             report(done, total)
         return values
     processes = min(processes, len(chunks))
+    capped = memory.headroom() is not None
     children: list[tuple[int, Connection]] = []
     try:
         for rank in range(processes):
@@ -120,6 +129,7 @@ def _fan_out(
             pid = os.fork()
             if pid == 0:  # the child: never returns
                 receiver.close()
+                memory.split_cap(processes)
                 mine = [(index, chunks[index]) for index in range(rank, len(chunks), processes)]
                 _serve_chunks(compute, mine, sender)
             sender.close()
@@ -134,6 +144,8 @@ def _fan_out(
                     del open_ends[ready]
                     continue
                 index = int.from_bytes(message[:8], "little")
+                if index == _OUT_OF_MEMORY:
+                    raise MemoryError(json.loads(message[8:])["error"])
                 if index == _FAILED:
                     raise RuntimeError(json.loads(message[8:])["error"])
                 chunk = chunks[index]
@@ -141,16 +153,32 @@ def _fan_out(
                 done += len(chunk)
                 report(done, total)
         if done != total:
+            died = _died_of_memory(children) if capped else None
+            if died is not None:
+                raise MemoryError(f"a distance process died of {died} under the memory limit")
             raise RuntimeError("a distance process ended before sending all its values")
         return values
     finally:
         for pid, receiver in children:
             receiver.close()
+            if pid < 0:
+                continue
             try:
                 os.kill(pid, signal.SIGKILL)  # a no-op for one that has exited
             except ProcessLookupError:
                 pass
             os.waitpid(pid, 0)
+
+
+def _died_of_memory(children: list[tuple[int, Connection]]) -> str | None:
+    """The signal a child died of, if one died as native code does when an allocation
+    fails. Every pipe has closed, so every child has ended or is ending: reap them all."""
+    for position, (pid, receiver) in enumerate(children):
+        _, status = os.waitpid(pid, 0)
+        children[position] = (-1, receiver)  # reaped: not to be killed or waited for again
+        if os.WIFSIGNALED(status) and os.WTERMSIG(status) in memory.MEMORY_SIGNALS:
+            return signal.Signals(os.WTERMSIG(status)).name
+    return None
 
 
 def _serve_chunks(
@@ -168,8 +196,9 @@ def _serve_chunks(
             sender.send_bytes(index.to_bytes(8, "little") + values.tobytes())
     except BaseException as error:  # reported to the parent, which raises it
         code = 1
+        marker = _OUT_OF_MEMORY if isinstance(error, MemoryError) else _FAILED
         text = json.dumps({"error": f"{type(error).__name__}: {error}"}).encode()
-        sender.send_bytes(_FAILED.to_bytes(8, "little") + text)
+        sender.send_bytes(marker.to_bytes(8, "little") + text)
     finally:
         sender.close()
         os._exit(code)

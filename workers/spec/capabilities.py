@@ -23,6 +23,10 @@ class Limits(BaseModel):
     max_upload_bytes: int = Field(description="Largest multipart request (array upload).")
     max_result_pairs: int = Field(description="Most diagram pairs in one result.")
     job_time_limit_s: float
+    job_memory_limit_mb: int | None = Field(
+        description="How far one job may grow its compute process (MiB of address space); "
+        "a job above it fails with a memory-limit problem. None: no limit."
+    )
     result_ttl_s: int
     max_wait_s: int = Field(description="Cap on the Prefer: wait=N request header.")
     idempotency_ttl_s: int = Field(

@@ -12,6 +12,7 @@ __all__ = [
     "input_missing",
     "internal_error",
     "invalid_parameters",
+    "memory_limit_exceeded",
     "out_of_memory",
     "payload_invalid",
     "time_limit_exceeded",
@@ -42,6 +43,17 @@ def computation_crashed(exit_code: int | None) -> Problem:
 
 def out_of_memory() -> Problem:
     return problem_of_kind("out-of-memory", "the computation ran out of memory; " + _ADVICE)
+
+
+def memory_limit_exceeded(limit_mb: int, how: str) -> Problem:
+    """A job stopped by its memory limit; ``how`` says what gave way (an allocation that
+    failed, or the process that died of it)."""
+    return problem_of_kind(
+        "memory-limit",
+        f"the job needed more than its memory limit of {limit_mb} MiB and was stopped "
+        f"({how}); " + _ADVICE + ", or send smaller diagrams",
+        memory_limit_mb=limit_mb,
+    )
 
 
 def invalid_parameters(message: str, pointer: str | None) -> Problem:

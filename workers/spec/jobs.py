@@ -181,6 +181,14 @@ class JobPayload(BaseModel):
     task: Task
     request_sha256: str
     time_limit_s: Annotated[float, Field(gt=0)]
+    memory_limit_mb: Annotated[
+        int | None,
+        Field(
+            ge=1,
+            description="How far the compute process may grow its address space for this job "
+            "(MiB, RLIMIT_AS above its size before the job); None: no limit.",
+        ),
+    ] = None
     max_result_pairs: Annotated[int, Field(ge=1)] = DEFAULT_MAX_RESULT_PAIRS
     request_id: Annotated[
         str | None, Field(description="X-Request-Id of the request that queued the job.")

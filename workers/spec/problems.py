@@ -38,6 +38,9 @@ PROBLEM_KINDS: dict[str, tuple[int, str]] = {
     "input-corrupt": (500, "Input corrupt"),
     "payload-invalid": (500, "Job payload invalid"),
     "worker-lost": (500, "Worker lost"),
+    # cost of jobs: a configured limit the request is too big for, like time-limit (422)
+    "memory-limit": (422, "Memory limit exceeded"),
+    "too-costly": (422, "Too costly"),
 }
 """Every kind of problem lacuna reports, with its HTTP status and title: the one mapping of
 problems to statuses, for API answers and failed jobs alike. Its type URI is

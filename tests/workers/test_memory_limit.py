@@ -1,0 +1,226 @@
+"""The memory limit of a job: every way the compute child gives way under RLIMIT_AS ends as a
+memory-limit problem naming the limit, and the next job runs in a fresh child.
+
+References: setrlimit(2) (an mmap or brk past RLIMIT_AS fails with ENOMEM, no signal);
+malloc(3) (returns NULL on ENOMEM); C++ [new.delete.single] (operator new throws
+std::bad_alloc), which gudhi's bindings raise as MemoryError (pybind11's documented
+exception translation); abort(3) (SIGABRT, what an uncaught exception ends in).
+"""
+
+import ctypes
+import faulthandler
+import resource
+from collections.abc import Iterator
+from typing import Any
+
+import gudhi
+import numpy as np
+import pytest
+
+from tests.support.processes import running
+from workers.compute import ComputeProcess, JobAborted, Report
+from workers.jobs import execute_bytes, pairwise
+from workers.memory import MIB, address_space, address_space_cap, headroom
+from workers.settings import WorkerSettings
+from workers.spec import SCHEMA_VERSION, DistanceTask, JobPayload
+from workers.spec.arrays import array_sha256, to_npy_bytes
+
+LIMIT_MB = 64
+MEMORY_LIMIT = "urn:lacuna:problem:memory-limit"
+
+
+@pytest.fixture(autouse=True)
+def capped_test_process() -> Iterator[None]:
+    """This process, and every child it forks, stays within 3 GiB more than it has now."""
+    before = resource.getrlimit(resource.RLIMIT_AS)
+    with address_space_cap(3 * 1024 * MIB):
+        yield
+    assert resource.getrlimit(resource.RLIMIT_AS) == before
+
+
+def payload(points: np.ndarray, limit_mb: int | None, max_dim: int = 0) -> JobPayload:
+    return JobPayload.model_validate(
+        {
+            "schema_version": SCHEMA_VERSION,
+            "input": {
+                "type": "points",
+                "shape": list(points.shape),
+                "sha256": array_sha256(points),
+            },
+            "task": {"type": "persistence", "filtration": {"type": "rips", "max_dim": max_dim}},
+            "request_sha256": "0" * 64,
+            "time_limit_s": 60,
+            "memory_limit_mb": limit_mb,
+        }
+    )
+
+
+def run(
+    compute: ComputeProcess, limit_mb: int | None, points: np.ndarray | None = None
+) -> dict[str, Any]:
+    points = np.array([[0.0, 0.0], [3.0, 4.0]]) if points is None else points
+    return compute.run(
+        job_id="job",
+        payload=payload(points, limit_mb),
+        input_bytes=to_npy_bytes(points),
+        time_limit_s=60,
+        should_stop=lambda: False,
+    )
+
+
+def aborted_by(compute: ComputeProcess, limit_mb: int | None) -> dict[str, Any]:
+    with pytest.raises(JobAborted) as aborted:
+        run(compute, limit_mb)
+    return aborted.value.problem.model_dump()
+
+
+def _numpy_beyond(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+    """Twice the limit in one numpy array (written, so it is not merely reserved)."""
+    return {"sum": float(np.ones(2 * LIMIT_MB * MIB // 8).sum())}
+
+
+def _gudhi_beyond(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+    """All simplices up to dimension 3 on 300 points (~4.5e8 of them): far beyond the limit,
+    in gudhi's C++ (operator new)."""
+    points = np.random.default_rng(0).uniform(size=(300, 3))
+    tree = gudhi.RipsComplex(points=points).create_simplex_tree(max_dimension=3)
+    return {"simplices": tree.num_simplices()}
+
+
+def _unchecked_malloc(then: str) -> None:
+    """Native code that does not check malloc: it writes through the NULL it got (SIGSEGV) or
+    gives up with abort() (SIGABRT) when the allocation fails."""
+    faulthandler.disable()  # pytest's, inherited by the fork: no traceback for a planned crash
+    libc = ctypes.CDLL(None)
+    libc.malloc.restype = ctypes.c_void_p
+    block = libc.malloc(ctypes.c_size_t(2 * LIMIT_MB * MIB))
+    if block is None and then == "abort":
+        libc.abort()
+    ctypes.memset(block or 0, 1, 2 * LIMIT_MB * MIB)  # NULL: SIGSEGV
+
+
+def _segfault_beyond(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+    _unchecked_malloc("write")
+    return {}
+
+
+def _abort_beyond(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+    _unchecked_malloc("abort")
+    return {}
+
+
+def _small_then_heavy(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+    """A job that succeeds (the cap is only a ceiling), then the real execute path."""
+    return execute_bytes(header, data, report)
+
+
+@pytest.mark.parametrize(
+    ("handler", "how"),
+    [
+        (_numpy_beyond, "an allocation failed"),
+        (_gudhi_beyond, "an allocation failed"),
+        (_segfault_beyond, "died of SIGSEGV"),
+        (_abort_beyond, "died of SIGABRT"),
+    ],
+    ids=["numpy-MemoryError", "gudhi-bad_alloc", "unchecked-malloc-SIGSEGV", "abort-SIGABRT"],
+)
+def test_every_way_of_giving_way_is_a_memory_limit(handler: Any, how: str) -> None:
+    compute = ComputeProcess(handler)
+    try:
+        first = compute.pid
+        problem = aborted_by(compute, LIMIT_MB)
+        assert problem["type"] == MEMORY_LIMIT
+        assert problem["status"] == 422
+        assert f"memory limit of {LIMIT_MB} MiB" in problem["detail"]
+        assert how in problem["detail"]
+        assert problem["memory_limit_mb"] == LIMIT_MB
+        assert first is not None and not running(first)  # killed: no half-broken state
+    finally:
+        compute.close()
+
+
+def test_the_next_job_runs_in_a_fresh_child() -> None:
+    compute = ComputeProcess(_small_then_heavy)
+    try:
+        points = np.random.default_rng(1).uniform(size=(1500, 3))
+        with pytest.raises(JobAborted) as aborted:
+            compute.run(
+                job_id="heavy",
+                payload=payload(points, 30, max_dim=2),  # H2 of 1500 points: far over 30 MiB
+                input_bytes=to_npy_bytes(points),
+                time_limit_s=120,
+                should_stop=lambda: False,
+            )
+        assert aborted.value.problem.type == MEMORY_LIMIT
+        assert compute.pid is None
+        # 3-4-5 right triangle (Pythagoras): the two points merge at distance 5.
+        result = run(compute, 30)
+        assert result["diagrams"][0]["pairs"] == [[0.0, 5.0], [0.0, None]]
+        assert compute.pid is not None
+    finally:
+        compute.close()
+
+
+def test_without_a_limit_a_crash_stays_a_crash() -> None:
+    # Without a cap malloc succeeds; the same code then crashes only if it writes to NULL,
+    # so give it one: ctypes.memset(0, ...) is a segfault whatever the limit.
+    def crash(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+        faulthandler.disable()
+        ctypes.memset(0, 1, 8)
+        return {}
+
+    compute = ComputeProcess(crash)
+    try:
+        problem = aborted_by(compute, None)
+        assert problem["type"] == "urn:lacuna:problem:compute-crashed"
+    finally:
+        compute.close()
+
+
+def test_the_worker_ceiling_lowers_the_jobs_limit() -> None:
+    compute = ComputeProcess(_numpy_beyond, WorkerSettings(job_memory_ceiling_mb=LIMIT_MB))
+    try:
+        # The job asks for 100 times the ceiling; the ceiling holds.
+        problem = aborted_by(compute, 100 * LIMIT_MB)
+        assert problem["type"] == MEMORY_LIMIT
+        assert problem["memory_limit_mb"] == LIMIT_MB
+    finally:
+        compute.close()
+
+
+def _random_diagram(n: int, rng: np.random.Generator) -> np.ndarray:
+    births = rng.uniform(size=n)
+    return np.c_[births, births + rng.uniform(size=n)]
+
+
+def _matrix_on_two_processes(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+    """A 12-diagram Wasserstein matrix (66 pairs: forked) with one pair of 3000-point
+    diagrams (~300 MB of edges, measured) among small ones, on two distance processes."""
+    rng = np.random.default_rng(0)
+    items = [_random_diagram(3000 if k < 2 else 5, rng) for k in range(12)]
+    task = DistanceTask(type="distances", metric="wasserstein", order=1.0, count=12)
+    share = headroom()
+    assert share is not None and share <= LIMIT_MB * MIB  # the cap is on
+    matrix, _ = pairwise.distance_matrix(items, task, lambda done, total: None, processes=2)
+    return {"max": float(matrix.max())}
+
+
+def test_a_distance_process_beyond_its_share_fails_the_job() -> None:
+    compute = ComputeProcess(_matrix_on_two_processes)
+    try:
+        problem = aborted_by(compute, LIMIT_MB)
+        assert problem["type"] == MEMORY_LIMIT
+        assert "an allocation failed" in problem["detail"]
+    finally:
+        compute.close()
+
+
+def test_cap_is_lifted_after_the_block() -> None:
+    soft, _ = resource.getrlimit(resource.RLIMIT_AS)
+    with address_space_cap(16 * MIB):
+        inner, _ = resource.getrlimit(resource.RLIMIT_AS)
+        assert inner <= address_space() + 16 * MIB
+        with pytest.raises(MemoryError):
+            np.ones(4 * 16 * MIB // 8)
+    assert resource.getrlimit(resource.RLIMIT_AS)[0] == soft
+    assert np.ones(4 * 16 * MIB // 8).sum() == 4 * 16 * MIB // 8
