@@ -11,7 +11,8 @@ Tree::
     ├── FeatureSpecNotFound  no feature spec registered under that id
     ├── IdempotencyKeyInvalid  the Idempotency-Key header is not a usable key
     ├── IdempotencyKeyReused   the key was used with another request body
-    └── NotReady             no Redis or no worker
+    ├── NotReady             no Redis or no worker
+    └── ServerBusy           this process is parsing as many large bodies as it may
 """
 
 from workers.spec import FieldError
@@ -26,6 +27,7 @@ __all__ = [
     "JobNotFound",
     "NotReady",
     "RequestInvalid",
+    "ServerBusy",
     "ServiceError",
 ]
 
@@ -88,4 +90,8 @@ class IdempotencyKeyReused(ServiceError):
 
 
 class NotReady(ServiceError):
+    pass
+
+
+class ServerBusy(ServiceError):
     pass

@@ -20,6 +20,7 @@ from service.errors import (
     JobNotFound,
     NotReady,
     RequestInvalid,
+    ServerBusy,
     ServiceError,
 )
 from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
@@ -42,6 +43,7 @@ _KINDS: dict[type[ServiceError], str] = {
     IdempotencyKeyInvalid: "idempotency-key-invalid",
     IdempotencyKeyReused: "idempotency-key-reused",
     NotReady: "not-ready",
+    ServerBusy: "server-busy",
 }
 """The problem kind of each service error; its status and title are in PROBLEM_KINDS."""
 
