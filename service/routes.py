@@ -144,7 +144,8 @@ def _json_body(also: str = "") -> Any:
     mimetype = request.mimetype
     if mimetype != "application/json" and not mimetype.endswith("+json"):
         raise UnsupportedMediaType(
-            f"send the body as application/json{also} (got {mimetype or 'no Content-Type'})"
+            f"send the body as application/json{also} (the Content-Type was "
+            f"{mimetype or 'missing'})"
         )
     raw = request.get_data(cache=False)
     limit = request.max_content_length
@@ -319,7 +320,8 @@ def job_status(job_id: str) -> Response:
     state = _state()
     owner = owner_of(request)
     job = state.queue.find(job_id, owner)
-    _waited(job, _requested_wait())
+    if _waited(job, _requested_wait()) is not None:  # it succeeded meanwhile: read it anew
+        job = state.queue.find(job_id, owner)
     if wants_html(request):
         return Response(job_page(state, job, owner), mimetype="text/html")
     return jsonify(state.queue.status(job).model_dump(mode="json"))

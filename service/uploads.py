@@ -259,9 +259,14 @@ def _scanline_bytes(width: int, height: int, bits_per_pixel: int, interlaced: bo
     return total
 
 
+class _CorruptPng(Exception):
+    """The image data of a PNG file fails its CRC (PNG specification, section 5.3)."""
+
+
 def _png_data_bytes(stream: IO[bytes], limit: int) -> int:
     """Bytes the IDAT chunks decompress to, counted as they stream past (at most ``limit``
-    plus one: more is as wrong as less). Raises zlib.error on corrupt data."""
+    plus one: more is as wrong as less), each chunk's CRC checked on the way (Pillow does not
+    check those of IDAT). Raises zlib.error or _CorruptPng on corrupt data."""
     stream.seek(8)
     inflater = zlib.decompressobj()
     total = 0
@@ -275,16 +280,21 @@ def _png_data_bytes(stream: IO[bytes], limit: int) -> int:
         if kind != b"IDAT":
             stream.seek(length + 4, io.SEEK_CUR)
             continue
-        left = length
+        left, crc = length, zlib.crc32(kind)
         while left:
             piece = stream.read(min(left, 1 << 20))
             if not piece:
                 break
             left -= len(piece)
+            crc = zlib.crc32(piece, crc)
             while piece and total <= limit:
                 total += len(inflater.decompress(piece, 1 << 20))
                 piece = inflater.unconsumed_tail
-        stream.seek(4, io.SEEK_CUR)  # the chunk's CRC, which Pillow checks
+        stored = stream.read(4)
+        if left or len(stored) < 4:
+            break  # the file ends inside the chunk: too few scanlines, said by the caller
+        if struct.unpack(">I", stored)[0] != crc:
+            raise _CorruptPng("an IDAT chunk fails its CRC")
     while total <= limit and not inflater.eof:
         out = inflater.decompress(b"", 1 << 20)
         if not out:
@@ -306,7 +316,7 @@ def _png(stream: IO[bytes], limits: Limits) -> np.ndarray:
     )
     try:
         held = _png_data_bytes(stream, expected)
-    except zlib.error as error:
+    except (zlib.error, _CorruptPng) as error:
         raise _refused(
             f"the PNG file cannot be read, its image data is corrupt: {_said(error)}"
         ) from None
