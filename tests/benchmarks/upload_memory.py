@@ -21,15 +21,23 @@ import time
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
-import psutil
 import requests
 
 from tests.support.ports import free_port
+from tests.support.processes import descendants
 from tests.support.redis import own_redis_server
 from tests.support.stack import answers
 from tests.support.waiting import wait_until
 
 REQUEST = json.dumps({"input": {"type": "graph"}, "output": ["descriptors"]})
+
+
+def _rss(pid: int) -> int:
+    """Resident set size of ``pid`` in bytes (Linux /proc)."""
+    for line in Path(f"/proc/{pid}/status").read_text().splitlines():
+        if line.startswith("VmRSS:"):
+            return int(line.split()[1]) * 1024
+    raise RuntimeError(f"no VmRSS for {pid}")
 
 
 def _gunicorn(port: int, redis_url: str, cap_bytes: int, config: str) -> subprocess.Popen[bytes]:
@@ -57,13 +65,13 @@ def main() -> None:
         master = _gunicorn(port, redis_url, int(args.cap_gb * 2**30), args.config)
         try:
             wait_until(lambda: answers(base + "/healthz"), 60, "gunicorn up")
-            (worker,) = psutil.Process(master.pid).children(recursive=True)[-1:]
+            (worker,) = descendants(master.pid)  # prlimit execs gunicorn: one worker below
             samples: list[int] = []
             stop = threading.Event()
 
             def sample() -> None:
                 while not stop.is_set():
-                    samples.append(worker.memory_info().rss)
+                    samples.append(_rss(worker))
                     time.sleep(0.02)
 
             def upload(_: int) -> str:
@@ -74,10 +82,10 @@ def main() -> None:
                 )
                 return f"{answer.status_code} {answer.headers.get('Content-Type')}"
 
-            fresh = worker.memory_info().rss
+            fresh = _rss(worker)
             upload(0)  # warm-up: imports and first allocations
             time.sleep(1)
-            baseline = worker.memory_info().rss
+            baseline = _rss(worker)
             sampler = threading.Thread(target=sample, daemon=True)
             sampler.start()
             started = time.monotonic()
@@ -87,7 +95,7 @@ def main() -> None:
             time.sleep(5)
             stop.set()
             sampler.join()
-            retained = worker.memory_info().rss
+            retained = _rss(worker)
             mib = 2**20
             print(f"file {len(data) / 1e6:.1f} MB, {args.uploads} parallel uploads in {took:.1f} s")
             print(f"answers: {statuses}")

@@ -100,8 +100,10 @@ def tiff_with_empty_strip(compression: str | None = None) -> bytes:
     buffer = io.BytesIO()
     tifffile.imwrite(buffer, image, compression=compression, rowsperstrip=16)
     buffer.seek(0)
-    with tifffile.TiffFile(buffer, mode="r+b") as tiff:
-        counts = tiff.pages[0].tags["StripByteCounts"]
+    with tifffile.TiffFile(buffer, mode="r+") as tiff:
+        page = tiff.pages[0]
+        assert isinstance(page, tifffile.TiffPage)
+        counts = page.tags["StripByteCounts"]
         counts.overwrite((*counts.value[:-1], 0))
     return buffer.getvalue()
 
