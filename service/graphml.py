@@ -277,8 +277,9 @@ def decode_graph(source: IO[bytes] | bytes, limits: Limits) -> GraphArrays:
         )
     keys: dict[str, _Key] = {}
     tags: _Tags | None = None
+    root: Element | None = None
     graph: _Graph | None = None
-    graph_element: Element | None = None
+    inside: Element | None = None  # the graph element while its children stream past
     graphs = 0
     depth = 0  # of the element an event is about, the root being 1
     for event, element in _events(stream):
@@ -291,7 +292,7 @@ def decode_graph(source: IO[bytes] | bytes, limits: Limits) -> GraphArrays:
                         f"the file is not GraphML: its root element is {local!r}, not graphml "
                         f"in the namespace {GRAPHML_NAMESPACE}"
                     )
-                tags = _Tags(namespace)
+                tags, root = _Tags(namespace), element
             elif element.tag == tags.graph:
                 graphs += 1
                 if graphs > 1:
@@ -301,28 +302,30 @@ def decode_graph(source: IO[bytes] | bytes, limits: Limits) -> GraphArrays:
                     )
                 if depth == 2:
                     graph = _Graph(limits, element.get("edgedefault") == "directed")
-                    graph_element = element
+                    inside = element
             elif element.tag == tags.hyperedge:
                 raise _refused("the GraphML file has hyperedges; a graph of edges is read")
             continue
         depth -= 1
-        assert tags is not None  # an end follows its start
-        if depth == 1 and element.tag == tags.key:
-            if graphs:
-                raise _refused(
-                    "the GraphML file declares a key after its graph; GraphML's schema puts "
-                    "every key before the graphs"
-                )
-            key = _Key(element)
-            keys[element.get("id") or ""] = key
-        elif depth == 2 and graph is not None and element.tag in (tags.node, tags.edge):
-            data = _data_of(element, keys, tags)
-            if element.tag == tags.node:
-                graph.node(element, data)
-            else:
-                graph.edge(element, data)
-            assert graph_element is not None
-            del graph_element[:]  # what is read is dropped: memory follows the arrays
+        assert tags is not None and root is not None  # an end follows its start
+        if depth == 2 and inside is not None and graph is not None:  # a child of the graph
+            if element.tag in (tags.node, tags.edge):
+                data = _data_of(element, keys, tags)
+                if element.tag == tags.node:
+                    graph.node(element, data)
+                else:
+                    graph.edge(element, data)
+            del inside[:]  # what is read is dropped: memory follows the arrays
+        elif depth == 1:  # a child of the root
+            if element.tag == tags.key:
+                if graphs:
+                    raise _refused(
+                        "the GraphML file declares a key after its graph; GraphML's schema "
+                        "puts every key before the graphs"
+                    )
+                keys[element.get("id") or ""] = _Key(element)
+            inside = None
+            del root[:]
     if graph is None:
         where = "" if graphs == 0 else " under its graphml element"
         raise _refused(f"the GraphML file has 0 graph elements{where}; send one graph per file")

@@ -114,6 +114,14 @@ GRAPHS = {
     '<node id="a"><data key="x">3</data><data key="y"> -4 </data></node>'
     '<node id="b"><data key="x">1</data><data key="y">0</data></node>'
     '<edge source="b" target="a"/></graph>',
+    "nodes outside the graph are not the graph's": KEYS
+    + "<desc>a test</desc>"
+    + '<graph edgedefault="undirected"><desc>nodes a and b</desc>'
+    '<node id="a"><data key="x">0</data><data key="y">0</data></node>'
+    '<group><node id="c"><data key="x">7</data><data key="y">7</data></node></group>'
+    '<node id="b"><data key="x">1</data><data key="y">0</data></node>'
+    '<edge source="a" target="b"/></graph>'
+    '<extra><node id="d"><data key="x">9</data><data key="y">9</data></node></extra>',
     "radius and length, data in any order": KEYS
     + '<key id="r" for="node" attr.name="radius" attr.type="float"/>'
     '<key id="l" for="edge" attr.name="length" attr.type="double"/>'
