@@ -4,9 +4,11 @@ One way in for every binary input: ``multipart/form-data`` with two parts, ``req
 JSON body a JSON request would have, without the array) and ``data`` (the file). The format is
 told from the file's first bytes, not from its name or part headers.
 
-Every decoder reads the declared shape and type first and refuses what is over the limits
-before allocating the array, so a small file that declares a huge one (a decompression bomb)
-costs nothing. Nothing is ever unpickled.
+Every decoder reads from the file werkzeug spooled the part to (never one bytes copy of the
+upload), reads the declared shape and type first and refuses what is over the limits before
+allocating the array, so a small file that declares a huge one (a decompression bomb) costs
+nothing. Truncated or corrupt data is refused, not read as zeros: a PNG's scanlines are
+counted, a TIFF's strips must lie in the file. Nothing is ever unpickled.
 """
 
 import io
