@@ -94,8 +94,9 @@ def png(array: np.ndarray) -> bytes:
 
 
 def tiff_with_empty_strip(compression: str | None = None) -> bytes:
-    """A 64 x 64 TIFF in 4 strips whose last StripByteCounts entry is 0 (TIFF 6.0 section 3:
-    strips hold the pixels; tifffile reads a missing one as zeros)."""
+    """A 64 x 64 TIFF in 4 strips whose last StripByteCounts entry is 0 (TIFF 6.0: the
+    StripByteCounts field gives each strip's bytes of the image; tifffile reads an empty
+    strip as zeros)."""
     image = np.arange(64 * 64, dtype=np.uint16).reshape(64, 64) + 1
     buffer = io.BytesIO()
     tifffile.imwrite(buffer, image, compression=compression, rowsperstrip=16)
@@ -373,8 +374,8 @@ DISTANCES = [
 
 # Multipart uploads (RFC 7578 multipart/form-data; RFC 9110 section 15.5.21). Truncated or
 # corrupt files are refused whole: the PNG specification (ISO/IEC 15948, section 7.2) fixes
-# how many bytes of scanlines an image decompresses to; TIFF 6.0 (section 3) says every strip
-# holds bytes of the image.
+# how many bytes of scanlines an image decompresses to, and section 5.3 each chunk's CRC;
+# TIFF 6.0's StripOffsets and StripByteCounts place every strip's bytes inside the file.
 UPLOADS = [
     Case(
         "no request part",
