@@ -71,8 +71,8 @@ def _gates() -> Gates:
 def _hold_large_parse(size: int) -> None:
     """Take one of the process's large-parse slots for a body of ``size`` bytes over
     ``large_body_bytes``, until the request ends or its wait begins; ServerBusy (503) if none
-    is free. Called once the body is read (a 503 sent before would
-    leave the client writing into a closed connection)."""
+    is free. Called once the body is read: a 503 sent before would leave the client writing
+    into a closed connection."""
     settings = _state().settings
     if g.get("large_parse") or size <= settings.large_body_bytes:
         return
