@@ -15,7 +15,8 @@ Tree::
     ├── RateLimited          the tenant's request rate is used up for now
     ├── QuotaExceeded        the tenant holds as many jobs or feature specs as it may
     ├── TooCostly            the job's estimated cost is beyond the limits
-    └── NotReady             no Redis or no worker
+    ├── NotReady             no Redis or no worker
+    └── ServerBusy           this process is parsing as many large bodies as it may
 """
 
 from workers.spec import FieldError
@@ -33,6 +34,7 @@ __all__ = [
     "QuotaExceeded",
     "RateLimited",
     "RequestInvalid",
+    "ServerBusy",
     "ServiceError",
     "Unauthorized",
     "TooCostly",
@@ -135,3 +137,7 @@ class TooCostly(ServiceError):
             "(POST /v1/estimates prices a request without queueing it)"
         )
         self.estimate = estimate
+
+
+class ServerBusy(ServiceError):
+    pass

@@ -1,6 +1,7 @@
-"""gunicorn's configuration of the API: ``gunicorn -c python:service.gunicorn_config``.
+"""gunicorn's configuration of the API: ``gunicorn --config python:service.gunicorn_config``.
 
-gunicorn reads this module in its master process, before it forks the worker processes.
+Read by gunicorn's arbiter before it forks the workers; `lacuna serve` passes it on its
+command line (service/stack.py), and the command line's own options win over these.
 """
 
 import os
@@ -11,6 +12,9 @@ from prometheus_client import multiprocess
 from service.logs import gunicorn_log_config
 from service.metrics import MULTIPROCESS_VARIABLE
 from service.settings import Settings
+
+worker_class = "service.http_worker.ProblemThreadWorker"
+"""gunicorn's gthread worker with its own error answers (414, 431, 400...) as problem+json."""
 
 # --- Observability: JSON log lines, and prometheus_client's multiprocess mode ----------------
 

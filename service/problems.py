@@ -21,6 +21,7 @@ from service.errors import (
     QuotaExceeded,
     RateLimited,
     RequestInvalid,
+    ServerBusy,
     ServiceError,
     TooCostly,
     Unauthorized,
@@ -50,6 +51,7 @@ _KINDS: dict[type[ServiceError], str] = {
     QuotaExceeded: "quota-exceeded",
     NotReady: "not-ready",
     TooCostly: "too-costly",
+    ServerBusy: "server-busy",
 }
 """The problem kind of each service error; its status and title are in PROBLEM_KINDS."""
 

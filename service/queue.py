@@ -198,10 +198,14 @@ class JobQueue:
 
     def find(self, job_id: str, owner: str) -> Job:
         """The job ``job_id`` if it exists and belongs to ``owner``; JobNotFound otherwise."""
+        # Only the canonical form (lowercase, hyphenated: what submit makes) names a job;
+        # uuid.UUID also takes braces, urn:uuid: and upper case, which RQ cannot fetch.
         try:
-            uuid.UUID(job_id)
+            canonical = len(job_id) == 36 and str(uuid.UUID(job_id)) == job_id
         except ValueError:
-            raise JobNotFound(job_id) from None
+            canonical = False
+        if not canonical:
+            raise JobNotFound(job_id[:80])
         try:
             job = Job.fetch(job_id, connection=self.redis, serializer=JSONSerializer)
         except NoSuchJobError:

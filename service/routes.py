@@ -3,9 +3,10 @@
 import json
 import re
 from collections.abc import Callable
-from typing import Any
+from typing import IO, Any
 
-from flask import Blueprint, Response, current_app, jsonify, request
+from flask import Blueprint, Response, current_app, g, jsonify, request
+from flask.blueprints import BlueprintSetupState
 from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, UnsupportedMediaType
 
 from service.auth import access_of, owner_of
@@ -16,15 +17,17 @@ from service.errors import (
     FeatureSpecNotFound,
     IdempotencyKeyInvalid,
     RequestInvalid,
+    ServerBusy,
 )
 from service.extension import ServiceState
+from service.gates import Gates
 from service.graphml import decode_graph
 from service.pages import job_page, wants_html
 from service.pictures import draw
 from service.queue import Job
 from service.quotas import quotas_of
 from service.submissions import distance_submission, job_submission
-from service.uploads import decode_array, multipart_parts
+from service.uploads import decode_array, multipart_parts, stream_size
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
 from workers.spec.capabilities import Caller, Limits, TenantUsage
 from workers.spec.costs import CostEstimate
@@ -54,17 +57,105 @@ def _state() -> ServiceState:
     return state
 
 
+_GATES = "lacuna.gates"
+
+
+@v1.record_once
+def _make_gates(setup: BlueprintSetupState) -> None:
+    """One set of gates per app, made when the app registers the blueprint."""
+    setup.app.extensions[_GATES] = Gates.of(setup.app.extensions["lacuna"].settings)
+
+
+def _gates() -> Gates:
+    gates: Gates = current_app.extensions[_GATES]
+    return gates
+
+
+def _hold_large_parse(size: int) -> None:
+    """Take one of the process's large-parse slots for a body of ``size`` bytes over
+    ``large_body_bytes``, until the request ends or its wait begins; ServerBusy (503) if none
+    is free. Called once the body is read: a 503 sent before would leave the client writing
+    into a closed connection."""
+    settings = _state().settings
+    if g.get("large_parse") or size <= settings.large_body_bytes:
+        return
+    if not _gates().parses.acquire(blocking=False):
+        raise ServerBusy(
+            f"this API process is parsing {settings.max_large_parses} large bodies (over "
+            f"{settings.large_body_bytes} bytes) already; retry after the Retry-After header"
+        )
+    g.large_parse = True
+
+
+def _release_large_parse() -> None:
+    if g.pop("large_parse", False):
+        _gates().parses.release()
+
+
+@v1.teardown_request
+def _end_large_parse(_: BaseException | None) -> None:
+    _release_large_parse()
+
+
+def _waited(job: Job, seconds: int) -> dict[str, Any] | None:
+    """``queue.wait`` within the process's cap on waiters: past it nobody waits, and the
+    request answers the job as it stands."""
+    waiters = _gates().waiters
+    if seconds <= 0 or not waiters.acquire(blocking=False):
+        return None
+    try:
+        return _state().queue.wait(job, seconds)
+    finally:
+        waiters.release()
+
+
+_ANY_ROUTE = ("application/json", "application/problem+json")
+"""Served by every route: its JSON answers and its problems (RFC 9457)."""
+
+_RULE_VARIABLE = re.compile(r"<(?:[^<>:]+:)?([^<>]+)>")
+
+
+def _served_types() -> list[str]:
+    """What the OpenAPI document says the request's route answers, in any of its responses."""
+    rule = request.url_rule
+    path = _RULE_VARIABLE.sub(r"{\1}", rule.rule) if rule is not None else ""
+    operation = _state().openapi["paths"].get(path, {}).get(request.method.lower(), {})
+    served = dict.fromkeys(_ANY_ROUTE)
+    for response in operation.get("responses", {}).values():
+        served.update(dict.fromkeys(response.get("content", {})))
+    return list(served)
+
+
+def _negotiate() -> None:
+    """406 (RFC 9110 section 15.5.7) when the Accept header allows none of what the route
+    serves; no Accept header means anything (section 12.5.1)."""
+    if not request.accept_mimetypes:
+        return
+    served = _served_types()
+    if request.accept_mimetypes.best_match(served) is None:
+        raise NotAcceptable(
+            f"this route answers {', '.join(served)}; the Accept header "
+            f"{request.headers.get('Accept', '')[:200]!r} allows none of them"
+        )
+
+
+v1.before_request(_negotiate)
+health.before_request(_negotiate)
+
+
 def _json_body(also: str = "") -> Any:
     mimetype = request.mimetype
     if mimetype != "application/json" and not mimetype.endswith("+json"):
         raise UnsupportedMediaType(
-            f"send the body as application/json{also} (got {mimetype or 'no Content-Type'})"
+            f"send the body as application/json{also} (the Content-Type was "
+            f"{mimetype or 'missing'})"
         )
     raw = request.get_data(cache=False)
     limit = request.max_content_length
     if request.content_length is None and limit is not None and len(raw) >= limit:
         # A chunked body is read only up to the limit: reaching it means it was cut short.
         raise RequestEntityTooLarge()
+    _hold_large_parse(len(raw))
     try:
         return json.loads(raw)
     except (ValueError, RecursionError) as error:  # RecursionError: absurdly deep nesting
@@ -96,7 +187,8 @@ def _answer(job: Job, wait: int) -> tuple[Response, int, dict[str, str]]:
     status; Location names the job either way."""
     queue = _state().queue
     headers = {"Location": f"/v1/jobs/{job.id}"}
-    result = queue.wait(job, wait)
+    _release_large_parse()  # the body's arrays are on the queue; waiting costs no memory
+    result = _waited(job, wait)
     if result is not None:
         return _result_response(result), 200, headers
     return jsonify(queue.status(job).model_dump(mode="json")), 202, headers
@@ -115,7 +207,7 @@ def _result_response(result: dict[str, Any]) -> Response:
     return Response(npy_bytes(array), mimetype=NPY_MEDIA_TYPE)
 
 
-_DECODERS: dict[str, Callable[[bytes, Limits], InputData]] = {
+_DECODERS: dict[str, Callable[[IO[bytes], Limits], InputData]] = {
     "array": decode_array,
     "graphml": decode_graph,
 }
@@ -130,7 +222,8 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
         body = _json_body(", or as multipart/form-data with request and data parts")
         return _json_job_request(body)
     request.max_content_length = state.settings.max_upload_bytes
-    body, raw = multipart_parts(request)
+    body, part = multipart_parts(request)
+    _hold_large_parse(stream_size(part))
     job_request = state.feature_specs.resolve(JobRequest.model_validate(body), owner_of(request))
     upload = kind_of(job_request.input.type).upload
     if upload is None:
@@ -143,7 +236,7 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
                 )
             ]
         )
-    return job_request, _DECODERS[upload](raw, state.limits), True
+    return job_request, _DECODERS[upload](part, state.limits), True
 
 
 def _json_job_request(body: Any) -> tuple[JobRequest, InputData | None, bool]:
@@ -275,7 +368,8 @@ def job_status(job_id: str) -> Response:
     state = _state()
     owner = owner_of(request)
     job = state.queue.find(job_id, owner)
-    state.queue.wait(job, _requested_wait())
+    if _waited(job, _requested_wait()) is not None:  # it succeeded meanwhile: read it anew
+        job = state.queue.find(job_id, owner)
     if wants_html(request):
         return Response(job_page(state, job, owner), mimetype="text/html")
     return jsonify(state.queue.status(job).model_dump(mode="json"))
@@ -288,7 +382,7 @@ def job_result(job_id: str) -> Response:
     ``Accept: application/x-npy`` asks for the result's array as .npy bytes."""
     queue = _state().queue
     job = queue.find(job_id, owner_of(request))
-    return _result_response(queue.wait(job, _requested_wait()) or queue.result(job))
+    return _result_response(_waited(job, _requested_wait()) or queue.result(job))
 
 
 @v1.get("/jobs/<job_id>/plot")

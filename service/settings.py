@@ -183,3 +183,25 @@ class Settings(BaseSettings):
         description="How far above the time limit an estimate must be before a job is "
         "refused (estimates assume one core and the machine the model was fitted on).",
     )
+
+    # Bounds on the API process's own memory and threads (issue 15: edges).
+    max_large_parses: int = Field(
+        2,
+        ge=1,
+        description="Request bodies over large_body_bytes one API process parses at once "
+        "(uploads and large JSON: the decoded arrays and parser state cost several times the "
+        "body); one more is answered 503 with Retry-After at once.",
+    )
+    large_body_bytes: int = Field(
+        8 * 1024 * 1024,
+        ge=0,
+        description="Bodies above this many bytes (or chunked, of unknown length) count as "
+        "large parses for max_large_parses.",
+    )
+    max_waiters: int = Field(
+        8,
+        ge=0,
+        description="Requests of one API process that may block on `Prefer: wait` at once; "
+        "past it a request answers at once (202 for a submission), so threads stay free for "
+        "other requests and health checks. Keep it below http_threads.",
+    )

@@ -28,6 +28,7 @@ PROBLEM_KINDS: dict[str, tuple[int, str]] = {
     "quota-exceeded": (429, "Quota exceeded"),
     "not-ready": (503, "Not ready"),
     "queue-unavailable": (503, "Queue unavailable"),
+    "server-busy": (503, "Server busy"),
     "internal-error": (500, "Internal error"),
     # failed jobs (``workers.spec.failures``); invalid-request and internal-error too
     "time-limit": (422, "Time limit exceeded"),
