@@ -1,6 +1,8 @@
 """Settings of a worker process, read from ``LACUNA_*`` environment variables."""
 
-from pydantic import Field
+from typing import Self
+
+from pydantic import Field, model_validator
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
 from workers.spec.jobs import DEFAULT_QUEUE, DEFAULT_REDIS_URL
@@ -9,9 +11,48 @@ __all__ = ["WorkerSettings"]
 
 
 class WorkerSettings(BaseSettings):
-    """What a worker needs: where the queue is."""
+    """What a worker needs: where the queue is, and how it shows it is alive."""
 
     model_config = SettingsConfigDict(env_prefix="LACUNA_", extra="ignore")
 
     redis_url: str = Field(DEFAULT_REDIS_URL, description="Redis holding the job queue.")
     queue: str = Field(DEFAULT_QUEUE, description="Name of the RQ queue to take jobs from.")
+    # Liveness and fault tolerance (workers/liveness.py, workers/reaper.py, workers/reconnect.py)
+    heartbeat_interval_s: float = Field(
+        5.0,
+        gt=0,
+        description="How often a worker renews its registration and the running job's claim "
+        "in Redis, idle or busy (from a thread of its own); also how often one worker, "
+        "holding a lock, looks for jobs of dead workers.",
+    )
+    dead_after_s: int = Field(
+        30,
+        ge=2,
+        description="A worker that has not renewed its registration for this long is dead: "
+        "its registration lapses, /readyz stops counting it and its running job is requeued "
+        "or failed (within dead_after_s + heartbeat_interval_s of its death). At least three "
+        "heartbeats long. Also how long a worker waits to see whether the holder of its "
+        "--name is alive.",
+    )
+    lost_job_retries: int = Field(
+        1,
+        ge=0,
+        description="How many times a job whose worker died under it is queued again; after "
+        "that it fails with the worker-lost problem.",
+    )
+    redis_backoff_max_s: float = Field(
+        5.0,
+        gt=0,
+        description="Longest wait between two attempts to reach Redis while it is away (the "
+        "wait doubles from 0.1 s up to this); the worker keeps trying and never gives up a "
+        "computed result.",
+    )
+
+    @model_validator(mode="after")
+    def _beats_fit_in_lifetime(self) -> Self:
+        if self.dead_after_s < 3 * self.heartbeat_interval_s:
+            raise ValueError(
+                f"dead_after_s ({self.dead_after_s}) must be at least three heartbeats "
+                f"(3 x heartbeat_interval_s = {3 * self.heartbeat_interval_s:g})"
+            )
+        return self
