@@ -65,9 +65,10 @@ def reaper_lock_key(queue: Queue) -> str:
 def reap_lapsed(queue: Queue, retries: int, why: str) -> list[Reaped]:
     """Reap every job of ``queue`` whose claim has lapsed (``why``: how that is described)."""
     moment = current_timestamp()
-    lapsed: list[bytes] = queue.connection.zrangebyscore(queue.started_job_registry.key, 0, moment)
+    lapsed = queue.connection.zrangebyscore(queue.started_job_registry.key, 0, moment)
     reaped = []
     for entry in lapsed:
+        assert isinstance(entry, bytes | str)  # members only, no scores asked for
         outcome = reap_claim(queue, as_text(entry), retries, why, lapsed_before=moment)
         if outcome is not None:
             reaped.append(outcome)
