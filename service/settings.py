@@ -111,3 +111,11 @@ class Settings(BaseSettings):
     local_workers: int = Field(
         2, ge=0, description="Job workers `lacuna serve` starts on its own machine (0: API only)."
     )
+    # Worker liveness (what /readyz counts; workers/settings.py has the worker's side)
+    dead_after_s: int = Field(
+        30,
+        ge=2,
+        description="/readyz counts a registered worker as live only if its last heartbeat is "
+        "at most this old. The workers read the same variable (LACUNA_DEAD_AFTER_S): a worker "
+        "silent this long is dead to them too, and its running job is requeued or failed.",
+    )

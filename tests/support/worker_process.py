@@ -18,8 +18,15 @@ from tests.support.processes import terminate
 from tests.support.waiting import wait_until
 
 
-def start_worker(redis_url: str, queue: str) -> subprocess.Popen[bytes]:
-    """A real ``python -m workers`` process; returns once it is registered on ``queue``."""
+def start_worker(
+    redis_url: str,
+    queue: str,
+    *,
+    name: str | None = None,
+    env: dict[str, str] | None = None,
+) -> subprocess.Popen[bytes]:
+    """A real ``python -m workers`` process (named ``name``, with ``env`` added to the
+    environment); returns once this very process is registered on ``queue``."""
     process = subprocess.Popen(
         [
             sys.executable,
@@ -31,8 +38,9 @@ def start_worker(redis_url: str, queue: str) -> subprocess.Popen[bytes]:
             queue,
             "--log-level",
             "WARNING",
+            *(["--name", name] if name else []),
         ],
-        env=dict(os.environ),
+        env={**os.environ, **(env or {})},
     )
     connection = Redis.from_url(redis_url)
     listened = Queue(queue, connection=connection, serializer=JSONSerializer)
@@ -40,7 +48,10 @@ def start_worker(redis_url: str, queue: str) -> subprocess.Popen[bytes]:
     def registered() -> bool:
         if process.poll() is not None:
             raise RuntimeError(f"the worker exited with {process.returncode} before it registered")
-        return Worker.count(connection=connection, queue=listened) >= 1
+        return any(
+            worker.pid == process.pid
+            for worker in Worker.all(connection=connection, queue=listened)
+        )
 
     try:
         wait_until(registered, 60, f"a worker registered on queue {queue}")
