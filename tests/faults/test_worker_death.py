@@ -6,6 +6,7 @@ rule (workers/reaper.py); the bounds below are generous: they only catch a job l
 
 import pytest
 
+from tests.support.api import JOBS, call
 from tests.support.bodies import rips_job
 from tests.support.faults import BOUND_S, FaultLab, ready_workers, slow_rips_job
 from tests.support.waiting import wait_until
@@ -83,3 +84,21 @@ def test_a_second_live_worker_cannot_take_a_name(lab: FaultLab) -> None:
     assert lab.alive(name)
     job_id = lab.submit(rips_job())
     assert lab.wait_for(job_id, {"succeeded", "failed"})["status"] == "succeeded"
+
+
+def test_a_job_cancelled_after_its_worker_died_ends_cancelled_not_run_again(
+    lab: FaultLab,
+) -> None:
+    lab.start_worker()
+    lab.start_worker()
+    job_id = lab.submit(slow_rips_job())
+    victim = lab.runner_of(job_id)
+    lab.kill(victim)
+    # The job still reads running (on the dead worker) until it is reaped: the cancel sets
+    # the flag a running job polls, which nobody polls now; the reaper reads it instead.
+    answer = call(lab.client, "DELETE", f"{JOBS}/{job_id}")
+    assert answer.status_code in (200, 202), answer.get_data(as_text=True)
+
+    ended = lab.wait_for(job_id, {"succeeded", "failed", "cancelled"})
+    assert ended["status"] == "cancelled", ended
+    assert lab.job(job_id).worker_name == victim  # never taken by the survivor
