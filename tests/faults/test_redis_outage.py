@@ -45,3 +45,15 @@ def test_an_idle_worker_outlives_an_outage_and_registers_again(lab: FaultLab) ->
     job_id = lab.submit(rips_job())
     assert lab.wait_for(job_id, {"succeeded", "failed"})["status"] == "succeeded"
     assert lab.alive(worker)
+
+
+def test_a_worker_registers_again_after_redis_restarts_empty(lab: FaultLab) -> None:
+    worker = lab.start_worker()
+    lab.redis.stop()
+    lab.redis.forget()  # a Redis without persistence: every registration is gone
+    lab.redis.start()
+    # Before: /readyz said no worker was registered while the worker was alive.
+    wait_until(lambda: ready_workers(lab) == 1, 60, "/readyz counting the worker again")
+    job_id = lab.submit(rips_job())
+    assert lab.wait_for(job_id, {"succeeded", "failed"})["status"] == "succeeded"
+    assert lab.job(job_id).worker_name == worker

@@ -154,6 +154,13 @@ class RestartableRedis:
             terminate(self._process, 10)
             self._process = None
 
+    def forget(self) -> None:
+        """Delete the stopped server's data, so it starts again empty (a Redis without
+        persistence, restarted)."""
+        assert self._process is None, "stop the server first"
+        shutil.rmtree(self.folder, ignore_errors=True)
+        os.makedirs(self.folder)
+
     def close(self) -> None:
         self.stop()
         shutil.rmtree(self.folder, ignore_errors=True)
