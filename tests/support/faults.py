@@ -3,6 +3,7 @@ API in process beside them, with short liveness settings so a death shows within
 
 import signal
 import subprocess
+import time
 import uuid
 from collections.abc import Iterator
 from contextlib import contextmanager
@@ -18,6 +19,7 @@ from service.app import create_app
 from service.settings import Settings
 from tests.support.api import JOBS, call, fresh_queue, post
 from tests.support.bodies import rips_job
+from tests.support.processes import children_of, cpu_ticks
 from tests.support.redis import RestartableRedis, restartable_redis_server
 from tests.support.waiting import wait_until
 from tests.support.worker_process import start_worker, stop_worker
@@ -74,6 +76,13 @@ class FaultLab:
 
     def alive(self, name: str) -> bool:
         return self.workers[name].poll() is None
+
+    def computing(self, name: str) -> bool:
+        """Does worker ``name``'s compute child use CPU (over a fifth of a second)?"""
+        children = children_of(self.workers[name].pid)
+        before = sum(cpu_ticks(child) for child in children)
+        time.sleep(0.2)
+        return sum(cpu_ticks(child) for child in children) > before
 
     def submit(self, body: dict[str, Any]) -> str:
         response = post(self.client, JOBS, body)
