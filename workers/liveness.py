@@ -184,8 +184,13 @@ def claim_name(worker: BaseWorker, settings: WorkerSettings) -> list[Reaped]:
     starting at once under one name cannot both take it."""
     connection = worker.connection
     lock = _name_lock_key(worker.name)
-    deadline = time.monotonic() + settings.dead_after_s
-    while not connection.set(lock, f"{socket.gethostname()}:{os.getpid()}", nx=True, ex=60):
+    # The lock lives one lifetime: one left by a newcomer that died lapses while we wait.
+    deadline = time.monotonic() + settings.dead_after_s + 2 * settings.heartbeat_interval_s
+    holder_id = f"{socket.gethostname()}:{os.getpid()}"
+    while not (
+        connection.set(lock, holder_id, nx=True, ex=settings.dead_after_s)
+        or connection.get(lock) == holder_id.encode()  # ours, from an attempt cut short
+    ):
         if time.monotonic() > deadline:
             raise NameInUse(f"another worker named {worker.name!r} is starting")
         time.sleep(0.2)
