@@ -456,7 +456,7 @@ def _paths() -> dict[str, Any]:
         },
         "/readyz": {
             "get": {
-                "summary": "Redis answers and a worker is registered",
+                "summary": "Redis answers and a live worker (one that beats) is registered",
                 "operationId": "getReady",
                 "responses": {"200": {"description": "Ready."}, "503": _problem("Not ready.")},
             }

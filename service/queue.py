@@ -9,7 +9,7 @@ import functools
 import logging
 import time
 import uuid
-from datetime import UTC, datetime
+from datetime import UTC, datetime, timedelta
 from typing import Any
 
 from redis import Redis
@@ -20,6 +20,7 @@ from rq.job import Job
 from rq.job import JobStatus as RQStatus
 from rq.results import Result
 from rq.serializers import JSONSerializer
+from rq.utils import as_text, utcparse
 
 from service.errors import (
     IdempotencyKeyReused,
@@ -49,7 +50,10 @@ IDEMPOTENCY_PREFIX = "lacuna:idempotency:"
 """Redis key prefix of Idempotency-Key records: ``<prefix><owner>:<key>`` -> job id and the
 request hash, for ``Settings.idempotency_ttl_s``."""
 
-# A worker that dies mid-job leaves RQ status "started" until RQ's cleanup marks it failed.
+# A worker that dies mid-job leaves RQ status "started" until a live worker's reaper notices
+# its lapsed claim (workers/reaper.py, within the workers' dead_after_s plus one heartbeat):
+# the job is queued again, or failed with the worker-lost problem saying why. A failed job
+# without a problem (RQ's own cleanup, from older workers) reads as worker-lost too.
 _STATES = {
     RQStatus.CREATED: JobState.queued,
     RQStatus.QUEUED: JobState.queued,
@@ -316,12 +320,26 @@ class JobQueue:
         self.unfinished.release(str(job.meta.get("owner")), job.id)
 
     def ready_workers(self) -> int:
-        """Workers registered on the queue; NotReady without Redis or without a worker."""
+        """Live workers on the queue: registered, not dead, their last heartbeat at most
+        ``Settings.dead_after_s`` old. NotReady without Redis or without one."""
         try:
-            self.redis.ping()
-            workers = int(Worker.count(connection=self.redis, queue=self.queue))
+            keys = sorted(Worker.all_keys(connection=self.redis, queue=self.queue))
+            with self.redis.pipeline(transaction=False) as pipe:
+                for key in keys:
+                    pipe.hmget(key, ["last_heartbeat", "death"])
+                registrations = pipe.execute()
         except RedisError as error:
             raise NotReady(f"Redis unreachable ({type(error).__name__})") from None
-        if workers < 1:
-            raise NotReady("no worker is registered on the queue")
-        return workers
+        oldest = datetime.now(UTC) - timedelta(seconds=self.settings.dead_after_s)
+        live = 0
+        for beat, death in registrations:
+            if beat is not None and death is None:
+                beaten = utcparse(as_text(beat))
+                if (beaten.replace(tzinfo=UTC) if beaten.tzinfo is None else beaten) >= oldest:
+                    live += 1
+        if live < 1:
+            raise NotReady(
+                f"no live worker on the queue (none has sent a heartbeat in the last "
+                f"{self.settings.dead_after_s} s)"
+            )
+        return live

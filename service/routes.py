@@ -439,5 +439,5 @@ def healthz() -> Response:
 
 @health.get("/readyz")
 def readyz() -> Response:
-    """Redis answers and at least one worker is registered on the queue (503 otherwise)."""
+    """Redis answers and a live worker (one that beats) is on the queue; 503 otherwise."""
     return jsonify({"status": "ready", "workers": _state().queue.ready_workers()})

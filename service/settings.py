@@ -205,3 +205,12 @@ class Settings(BaseSettings):
         "past it a request answers at once (202 for a submission), so threads stay free for "
         "other requests and health checks. Keep it below http_threads.",
     )
+
+    # Worker liveness (what /readyz counts; workers/settings.py has the worker's side)
+    dead_after_s: int = Field(
+        30,
+        ge=2,
+        description="/readyz counts a registered worker as live only if its last heartbeat is "
+        "at most this old. The workers read the same variable (LACUNA_DEAD_AFTER_S): a worker "
+        "silent this long is dead to them too, and its running job is requeued or failed.",
+    )

@@ -31,6 +31,7 @@ def test_every_job_failure_takes_status_and_title_from_the_table() -> None:
         failures.input_corrupt(),
         failures.payload_invalid("2 errors"),
         failures.worker_lost(),
+        failures.worker_died("worker-1", 2, "no heartbeat for over 30 s"),
     ]
     assert len(made) == len(failures.__all__)  # every builder is called above
     for problem in made:

@@ -58,3 +58,13 @@ def terminate(process: subprocess.Popen[bytes], seconds: float = 15) -> None:
     except subprocess.TimeoutExpired:
         process.kill()
         process.wait()
+
+
+def cpu_ticks(pid: int) -> int:
+    """CPU time ``pid`` has used so far, user and system, in clock ticks (proc(5) fields 14
+    and 15); 0 once it has ended."""
+    try:
+        fields = _stat(pid)
+    except OSError:
+        return 0
+    return int(fields[11]) + int(fields[12])

@@ -109,3 +109,69 @@ def with_database(url: str, db: int) -> str:
         query = [(k, v) for k, v in parse_qsl(parts.query) if k != "db"] + [("db", str(db))]
         return urlunsplit(parts._replace(query=urlencode(query)))
     return urlunsplit(parts._replace(path=f"/{db}"))
+
+
+class RestartableRedis:
+    """A ``redis-server`` of one test that the test may stop and start again on the same
+    port, keeping its data (append-only file, fsync on every write, in a folder of its own):
+    a Redis outage as a lab server sees one, without touching any other Redis."""
+
+    def __init__(self) -> None:
+        self.port = free_port()
+        self.folder = tempfile.mkdtemp(prefix="lacuna-fault-redis-")
+        self.url = f"redis://127.0.0.1:{self.port}/0"
+        self._process: subprocess.Popen[bytes] | None = None
+
+    def start(self) -> None:
+        """Start the server (again) on its port, from its data; return once it answers."""
+        self._process = subprocess.Popen(
+            [
+                redis_binary(),
+                "--port",
+                str(self.port),
+                "--bind",
+                "127.0.0.1",
+                "--save",
+                "",
+                "--appendonly",
+                "yes",
+                "--appendfsync",
+                "always",
+                "--dir",
+                self.folder,
+            ],
+            stdout=subprocess.DEVNULL,
+        )
+        deadline = time.monotonic() + 10
+        while not answers(self.url):
+            if time.monotonic() > deadline or self._process.poll() is not None:
+                raise RedisUnavailable("could not start the fault test's redis-server")
+            time.sleep(0.05)
+
+    def stop(self) -> None:
+        """Stop the server (SIGTERM: it closes every connection); its data stays."""
+        if self._process is not None:
+            terminate(self._process, 10)
+            self._process = None
+
+    def forget(self) -> None:
+        """Delete the stopped server's data, so it starts again empty (a Redis without
+        persistence, restarted)."""
+        assert self._process is None, "stop the server first"
+        shutil.rmtree(self.folder, ignore_errors=True)
+        os.makedirs(self.folder)
+
+    def close(self) -> None:
+        self.stop()
+        shutil.rmtree(self.folder, ignore_errors=True)
+
+
+@contextmanager
+def restartable_redis_server() -> Iterator[RestartableRedis]:
+    """A started ``RestartableRedis``, stopped and its folder removed on exit."""
+    server = RestartableRedis()
+    try:
+        server.start()
+        yield server
+    finally:
+        server.close()

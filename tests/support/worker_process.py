@@ -20,10 +20,17 @@ from tests.support.waiting import wait_until
 
 
 def start_worker(
-    redis_url: str, queue: str, *, log_level: str = "WARNING", stderr: IO[bytes] | None = None
+    redis_url: str,
+    queue: str,
+    *,
+    name: str | None = None,
+    env: dict[str, str] | None = None,
+    log_level: str = "WARNING",
+    stderr: IO[bytes] | None = None,
 ) -> subprocess.Popen[bytes]:
-    """A real ``python -m workers`` process; returns once it is registered on ``queue``.
-    Its log lines go to ``stderr`` (a file) if given."""
+    """A real ``python -m workers`` process (named ``name``, with ``env`` added to the
+    environment); returns once this very process is registered on ``queue``. Its log lines go
+    to ``stderr`` (a file) if given."""
     process = subprocess.Popen(
         [
             sys.executable,
@@ -35,8 +42,9 @@ def start_worker(
             queue,
             "--log-level",
             log_level,
+            *(["--name", name] if name else []),
         ],
-        env=dict(os.environ),
+        env={**os.environ, **(env or {})},
         stderr=stderr,
     )
     connection = Redis.from_url(redis_url)
@@ -45,7 +53,10 @@ def start_worker(
     def registered() -> bool:
         if process.poll() is not None:
             raise RuntimeError(f"the worker exited with {process.returncode} before it registered")
-        return Worker.count(connection=connection, queue=listened) >= 1
+        return any(
+            worker.pid == process.pid
+            for worker in Worker.all(connection=connection, queue=listened)
+        )
 
     try:
         wait_until(registered, 60, f"a worker registered on queue {queue}")

@@ -10,6 +10,7 @@ A persistence task is computed by the module its input kind names
 plot tasks to ``workers.pictures``.
 """
 
+import functools
 import importlib
 import time
 from typing import Any, cast
@@ -24,6 +25,8 @@ from workers.core.errors import pointing_into
 from workers.jobs import distances
 from workers.jobs.results import KindWorker, persistence_result
 from workers.pictures.plot_jobs import picture
+from workers.reconnect import Gate, until_answered
+from workers.settings import WorkerSettings
 from workers.spec import DistanceTask, JobPayload, PersistenceTask, Problem, failures
 from workers.spec.arrays import array_sha256, from_npy_bytes
 from workers.spec.jobs import cancel_key, input_key
@@ -104,28 +107,44 @@ def _runs_inline(payload: JobPayload) -> bool:
     return kind_worker(payload, task).runs_inline(payload)
 
 
-def _save_progress(job: Job, done: int, total: int) -> None:
+@functools.cache
+def _backoff_cap_s() -> float:
+    return WorkerSettings().redis_backoff_max_s
+
+
+def _save_progress(job: Job, gate: Gate, done: int, total: int) -> None:
+    """Progress is shown, not needed: while Redis is away it is skipped, not waited for."""
     job.meta["progress"] = {"done": done, "total": total}
-    job.save_meta()
+    gate.call(job.save_meta, None)
 
 
 def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
-    """RQ job: read the input saved next to the job, compute in the killable child, return."""
+    """RQ job: read the input saved next to the job, compute in the killable child, return.
+
+    The input stays in Redis until the worker has stored how the job ended
+    (``workers.resilient``), so an attempt after a crash finds it. Redis going away does not
+    stop a computation: the cancel check and progress wait for it (``workers.reconnect``),
+    and the worker stores the outcome once it is back.
+    """
     job = get_current_job()
     if job is None:
         raise RuntimeError("workers.jobs.run must run inside an RQ worker")
     connection = job.connection
+    cap_s = _backoff_cap_s()
     try:
         try:
             payload = JobPayload.model_validate(raw_payload)
         except ValidationError as error:
             raise JobAborted(failures.payload_invalid(f"{error.error_count()} errors")) from None
-        # One round trip: was it cancelled while a worker was taking it, and its input
-        # (taken out of Redis at once: from here on it lives in this process only).
-        pipe = connection.pipeline()
-        pipe.exists(cancel_key(job.id))
-        pipe.getdel(input_key(job.id))
-        cancelled, stored = pipe.execute()
+
+        def cancelled_and_input() -> list[Any]:
+            # One round trip: was it cancelled while a worker was taking it, and its input.
+            pipe = connection.pipeline()
+            pipe.exists(cancel_key(job.id))
+            pipe.get(input_key(job.id))
+            return list(pipe.execute())
+
+        cancelled, stored = until_answered(cancelled_and_input, f"reading job {job.id}", cap_s)
         if cancelled:
             raise JobAborted(failures.cancelled())
         array = _checked_input(stored, payload)
@@ -135,17 +154,20 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
             except Exception as error:
                 raise JobAborted(problem_for(error)) from None
         assert isinstance(stored, bytes)  # _checked_input refused anything else
+        cancel_gate = Gate(f"the cancel check of job {job.id}", cap_s)
+        progress_gate = Gate(f"the progress of job {job.id}", cap_s)
         return compute_process().run(
             job_id=job.id,
             payload=payload,
             input_bytes=stored,
             time_limit_s=payload.time_limit_s,
-            should_stop=lambda: bool(connection.exists(cancel_key(job.id))),
-            on_progress=lambda done, total: _save_progress(job, done, total),
+            should_stop=lambda: bool(
+                cancel_gate.call(lambda: connection.exists(cancel_key(job.id)), 0)
+            ),
+            on_progress=lambda done, total: _save_progress(job, progress_gate, done, total),
         )
     except JobAborted as aborted:
-        connection.delete(input_key(job.id))  # if the payload was refused before GETDEL
         problem: Problem = aborted.problem
         job.meta["problem"] = problem.model_dump(mode="json", exclude_none=True)
-        job.save_meta()
+        until_answered(job.save_meta, f"storing the problem of job {job.id}", cap_s)
         raise JobFailed(problem.detail or problem.title) from None

@@ -16,6 +16,7 @@ __all__ = [
     "out_of_memory",
     "payload_invalid",
     "time_limit_exceeded",
+    "worker_died",
     "worker_lost",
 ]
 
@@ -96,4 +97,15 @@ def worker_lost() -> Problem:
     return problem_of_kind(
         "worker-lost",
         "the worker stopped before the job ended (it was killed or lost)",
+    )
+
+
+def worker_died(worker: str, attempts: int, why: str) -> Problem:
+    """The problem of a job whose worker died under it on every attempt (``why``: how that
+    was seen), written by the worker that found it."""
+    tries = "its only attempt" if attempts == 1 else f"each of its {attempts} attempts"
+    return problem_of_kind(
+        "worker-lost",
+        f"the worker running this job died on {tries}, last {worker} ({why}); it is not "
+        "tried again",
     )

@@ -1,0 +1,78 @@
+"""Redis goes away while a worker computes, and comes back on the same port with its data."""
+
+import time
+
+import pytest
+
+from tests.support.api import JOBS, call
+from tests.support.bodies import rips_job
+from tests.support.faults import BOUND_S, FaultLab, ready_workers, slow_rips_job
+from tests.support.waiting import wait_until
+
+pytestmark = pytest.mark.slow
+
+OUTAGE_S = 3.0
+"""How long Redis stays away: the fault itself, not a claim about speed."""
+
+
+def test_a_job_computing_through_an_outage_succeeds_and_the_worker_goes_on(lab: FaultLab) -> None:
+    worker = lab.start_worker()
+    job_id = lab.submit(slow_rips_job())
+    lab.wait_for(job_id, {"running"})
+
+    lab.redis.stop()
+    time.sleep(OUTAGE_S)  # the outage (nothing is asserted about its length)
+    lab.redis.start()
+
+    ended = lab.wait_for(job_id, {"succeeded", "failed"})
+    # Before: the cancel check raised ConnectionError, the worker quit and the job stayed
+    # running. Now it finishes and stores its result, or fails saying why.
+    assert ended["status"] == "succeeded", ended
+    assert lab.alive(worker)
+    assert lab.job(job_id).meta.get("lost_attempts") is None  # not run twice
+
+    after = lab.submit(rips_job())  # the hexagon
+    assert lab.wait_for(after, {"succeeded", "failed"})["status"] == "succeeded"
+    assert lab.job(after).worker_name == worker
+
+
+def test_a_result_computed_while_redis_is_away_is_stored_once_it_is_back(lab: FaultLab) -> None:
+    worker = lab.start_worker()
+    job_id = lab.submit(slow_rips_job(seed=2))
+    lab.runner_of(job_id)
+    wait_until(lambda: lab.computing(worker), BOUND_S, "the computation under way")
+    lab.redis.stop()
+    # The computation ends with nowhere to store its result; the worker holds it.
+    wait_until(lambda: not lab.computing(worker), BOUND_S, "the computation ended")
+    assert lab.alive(worker)
+    lab.redis.start()
+
+    ended = lab.wait_for(job_id, {"succeeded", "failed"})
+    assert ended["status"] == "succeeded", ended
+    result = call(lab.client, "GET", f"{JOBS}/{job_id}/result")
+    assert result.status_code == 200
+    assert lab.job(job_id).meta.get("lost_attempts") is None  # stored, not run again
+
+
+def test_an_idle_worker_outlives_an_outage_and_registers_again(lab: FaultLab) -> None:
+    worker = lab.start_worker()
+    lab.redis.stop()
+    time.sleep(OUTAGE_S)
+    lab.redis.start()
+    # Its registration may have lapsed meanwhile; the next heartbeat writes it again.
+    wait_until(lambda: ready_workers(lab) == 1, 60, "/readyz counting the worker again")
+    job_id = lab.submit(rips_job())
+    assert lab.wait_for(job_id, {"succeeded", "failed"})["status"] == "succeeded"
+    assert lab.alive(worker)
+
+
+def test_a_worker_registers_again_after_redis_restarts_empty(lab: FaultLab) -> None:
+    worker = lab.start_worker()
+    lab.redis.stop()
+    lab.redis.forget()  # a Redis without persistence: every registration is gone
+    lab.redis.start()
+    # Before: /readyz said no worker was registered while the worker was alive.
+    wait_until(lambda: ready_workers(lab) == 1, 60, "/readyz counting the worker again")
+    job_id = lab.submit(rips_job())
+    assert lab.wait_for(job_id, {"succeeded", "failed"})["status"] == "succeeded"
+    assert lab.job(job_id).worker_name == worker
