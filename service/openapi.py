@@ -260,6 +260,32 @@ def _linked(response: dict[str, Any], links: dict[str, Any]) -> dict[str, Any]:
     return {**response, "links": links}
 
 
+_HEALTH = {
+    "application/json": {
+        "schema": {
+            "type": "object",
+            "required": ["status"],
+            "properties": {"status": {"const": "ok"}},
+        }
+    }
+}
+_READY = {
+    "application/json": {
+        "schema": {
+            "type": "object",
+            "required": ["status", "workers"],
+            "properties": {
+                "status": {"const": "ready"},
+                "workers": {
+                    "type": "integer",
+                    "minimum": 1,
+                    "description": "Workers registered on the queue.",
+                },
+            },
+        }
+    }
+}
+
 _UNAVAILABLE = _problem("Redis cannot be reached; retry after the Retry-After header.")
 _NOT_FOUND = _problem("No such job for this owner, or it has expired.")
 
@@ -291,6 +317,9 @@ def _paths() -> dict[str, Any]:
                         _JOB_LINKS,
                     ),
                     "400": _problem("The body is not JSON, or the Idempotency-Key is unusable."),
+                    "406": _problem(
+                        "Asked for application/x-npy for a job without features (no vector)."
+                    ),
                     "413": _problem(
                         "The body is above the size limit (max_body_bytes for JSON, "
                         "max_upload_bytes for multipart)."
@@ -412,6 +441,7 @@ def _paths() -> dict[str, Any]:
                         _SPEC_LINKS,
                     ),
                     "400": _problem("The body is not JSON."),
+                    "413": _problem("The body is above the size limit (max_body_bytes)."),
                     "415": _problem("The Content-Type is not application/json."),
                     "422": _problem("The spec is invalid; `errors` points at each field."),
                     "503": _UNAVAILABLE,
@@ -496,14 +526,17 @@ def _paths() -> dict[str, Any]:
             "get": {
                 "summary": "The process is up",
                 "operationId": "getHealth",
-                "responses": {"200": {"description": "Up."}},
+                "responses": {"200": {"description": "Up.", "content": _HEALTH}},
             }
         },
         "/readyz": {
             "get": {
                 "summary": "Redis answers and a worker is registered",
                 "operationId": "getReady",
-                "responses": {"200": {"description": "Ready."}, "503": _problem("Not ready.")},
+                "responses": {
+                    "200": {"description": "Ready.", "content": _READY},
+                    "503": _problem("Not ready."),
+                },
             }
         },
     }

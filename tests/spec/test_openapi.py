@@ -1,4 +1,6 @@
-"""The committed OpenAPI document is what the models generate, and it is valid OpenAPI 3.1."""
+"""The committed OpenAPI document is what the models generate, and it is valid OpenAPI 3.1;
+the rules between fields that it states are the ones the API enforces; its links and examples
+work; and answers the fuzzer (tests/fuzz) cannot reach are declared as well."""
 
 import json
 import re
@@ -12,7 +14,8 @@ from jsonschema import Draft202012Validator  # type: ignore[import-untyped]
 from openapi_spec_validator import validate
 
 from service.openapi import openapi_document, openapi_text
-from tests.support.api import app_with, fresh_queue, pointers_of, post, problem_of
+from tests.support.api import app_with, call, fresh_queue, pointers_of, post, problem_of
+from workers.spec import NPY_MEDIA_TYPE as NPY
 
 COMMITTED = Path(__file__).resolve().parents[2] / "openapi" / "openapi.json"
 
@@ -260,3 +263,52 @@ def test_examples_are_accepted(client: FlaskClient, operation: str, path: str, s
         assert _document_accepts(schema, example["value"])
         answer = post(client, path, example["value"])
         assert answer.status_code in (200, 202), answer.get_data(as_text=True)
+
+
+# --- Answers outside what generated requests reach are declared too ----------------------------
+
+_POINTS_JOB = {
+    "input": {"type": "points", "points": [[0.0], [1.0]]},
+    "filtration": {"type": "rips"},
+}
+_OVER_1024_BYTES = {"data": "[" + "1," * 1024 + "1]", "content_type": "application/json"}
+
+EDGE_ANSWERS = [
+    # (operationId, method, path, request arguments, status expected)
+    ("submitJob", "POST", "/v1/jobs", {"json": _POINTS_JOB, "headers": {"Accept": NPY}}, 406),
+    ("submitJob", "POST", "/v1/jobs", _OVER_1024_BYTES, 413),
+    ("registerFeatureSpec", "POST", "/v1/feature-specs", _OVER_1024_BYTES, 413),
+    ("submitDistances", "POST", "/v1/distances", _OVER_1024_BYTES, 413),
+    (
+        "submitJob",
+        "POST",
+        "/v1/jobs",
+        {"json": _POINTS_JOB, "headers": {"Idempotency-Key": " "}},
+        400,
+    ),
+    ("getResult", "GET", "/v1/jobs/x/result", {"headers": {"Accept": NPY}}, 404),
+    ("getPlot", "GET", "/v1/jobs/x/plot?width=1", {}, 422),
+    ("getHealth", "GET", "/healthz", {}, 200),
+    ("getReady", "GET", "/readyz", {}, 503),  # no worker is registered on this queue
+]
+
+
+@pytest.mark.parametrize(("operation", "method", "path", "arguments", "status"), EDGE_ANSWERS)
+def test_edge_answers_are_declared(
+    redis_url: str,
+    operation: str,
+    method: str,
+    path: str,
+    arguments: dict[str, Any],
+    status: int,
+) -> None:
+    """Each answer's status and media type are among the operation's documented responses,
+    and its JSON body fits the documented schema."""
+    app = app_with(redis_url=redis_url, queue=fresh_queue(), max_wait_s=0, max_body_bytes=1024)
+    answer = call(app.test_client(), method, path, **arguments)
+    assert answer.status_code == status, answer.get_data(as_text=True)
+    declared = _operations()[operation]["responses"][str(status)]
+    media = declared["content"][answer.mimetype]
+    document = openapi_document()
+    root = {**media["schema"], "components": document["components"]}
+    assert Draft202012Validator(root).is_valid(answer.get_json())
