@@ -8,7 +8,7 @@ HASH   := $(shell cat pyproject.toml docker/constraints.txt | cksum | cut -d' ' 
 STAMP  := $(VENV)/.installed-$(HASH)
 DEV    := $(VENV)/.installed-dev-$(HASH)
 
-.PHONY: install install-dev browser serve test lint bench openapi lock clean
+.PHONY: install install-dev browser serve test lint bench fuzz openapi lock clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -54,6 +54,12 @@ test: lint browser
 
 bench: install-dev
 	$(BIN)/python -m tests.benchmarks.run
+
+# Schemathesis against a real `lacuna serve` on 127.0.0.1 (its own embedded Redis, one worker),
+# following the document's links: at least 1000 requests, 4 minutes of fuzzing, memory and
+# wall clock capped (tests/fuzz/run.py; it prints where its reports are).
+fuzz: install-dev
+	$(BIN)/python -m tests.fuzz.run
 
 # The committed OpenAPI document and the README's example picture, both generated.
 openapi: install-dev

@@ -122,6 +122,7 @@ def serving(memory_mb: int, max_wait_s: int) -> Iterator[tuple[str, subprocess.P
 class Summary:
     """What one fuzz run did and found."""
 
+    report_dir: str = ""
     requests: int = 0
     stateful_requests: int = 0
     exit_code: int = 0
@@ -184,6 +185,7 @@ def fuzz(args: argparse.Namespace) -> Summary:
     started = time.monotonic()
     report_dir = Path(args.report_dir or tempfile.mkdtemp(prefix="lacuna-fuzz-"))
     report_dir.mkdir(parents=True, exist_ok=True)
+    summary.report_dir = str(report_dir)
     with serving(args.stack_memory_mb, args.max_wait_s) as (base, stack):
         stack_memory = PeakMemory(stack.pid)
         command = [
@@ -193,7 +195,7 @@ def fuzz(args: argparse.Namespace) -> Summary:
             "--checks",
             ",".join(CHECKS),
             "--phases",
-            ",".join(PHASES),
+            args.phases,
             "--max-examples",
             str(args.max_examples),
             "--seed",
@@ -251,6 +253,7 @@ def fuzz(args: argparse.Namespace) -> Summary:
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(prog="python -m tests.fuzz.run", description=__doc__)
     parser.add_argument("--max-examples", type=int, default=40, help="per operation and phase")
+    parser.add_argument("--phases", default=",".join(PHASES), help="schemathesis's phases")
     parser.add_argument("--max-time", type=int, default=240, help="schemathesis's budget, s")
     parser.add_argument("--no-max-time", dest="max_time", action="store_const", const=0)
     parser.add_argument("--wall-clock", type=int, default=600, help="kill the fuzzer after, s")
@@ -274,7 +277,7 @@ def main(argv: list[str] | None = None) -> int:
         f"{summary.requests} requests ({summary.stateful_requests} stateful) in "
         f"{summary.duration_s:.0f} s; peak memory: stack {summary.stack_peak_mib:.0f} MiB, "
         f"fuzzer {summary.fuzzer_peak_mib:.0f} MiB; {summary.results_fetched()} job results "
-        "fetched"
+        f"fetched; reports in {summary.report_dir}"
     )
     for key, count in summary.statuses.items():
         print(f"  {count:6d}  {key}")
