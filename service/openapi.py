@@ -173,7 +173,14 @@ _IDEMPOTENCY_KEY = {
     "default, see /v1/capabilities) the same key with the same request answers the job made "
     "the first time instead of queueing another; the same key with a different request is a "
     "422. Once that job's result has expired the key starts over. Keys are scoped by owner.",
-    "schema": {"type": "string", "maxLength": 257, "example": "5f0c6d1e-0b7a-4c7e-9d2a-1b3c"},
+    "schema": {
+        "type": "string",
+        "minLength": 1,
+        "maxLength": 257,
+        # what service.routes takes: visible ASCII (0x21-0x7e) without '"', or all that quoted
+        "pattern": '^(?:"[!#-~]{1,255}"|[!#-~]{1,255})$',
+        "example": "5f0c6d1e-0b7a-4c7e-9d2a-1b3c",
+    },
 }
 
 _JOB_ID = {

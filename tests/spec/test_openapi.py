@@ -312,3 +312,16 @@ def test_edge_answers_are_declared(
     document = openapi_document()
     root = {**media["schema"], "components": document["components"]}
     assert Draft202012Validator(root).is_valid(answer.get_json())
+
+
+@pytest.mark.parametrize(
+    "key", ["5f0c6d1e-0b7a-4c7e-9d2a-1b3c", '"quoted-key"', "a b", 'in"side', "é", "x" * 256]
+)
+def test_idempotency_key_pattern_is_what_the_api_takes(client: FlaskClient, key: str) -> None:
+    # The header's schema pattern (ECMA-262, here within what Python's re reads alike) against
+    # what the route accepts: a key it refuses is a 400 (idempotency-key-invalid).
+    submit = _operations()["submitJob"]
+    header = next(p for p in submit["parameters"] if p["name"] == "Idempotency-Key")
+    documented = re.fullmatch(header["schema"]["pattern"], key) is not None
+    answer = post(client, "/v1/jobs", _POINTS_JOB, headers={"Idempotency-Key": key})
+    assert answer.status_code == (202 if documented else 400), answer.get_data(as_text=True)
