@@ -171,6 +171,39 @@ def test_filtration_rules_can_refuse() -> None:
     assert verdicts == {True, False}
 
 
+_MASK = _INPUTS["mask"]
+_GRAPH = _INPUTS["graph"]
+_HEIGHT = {"type": "height", "direction": [0.0, 1.0]}
+
+JOB_RULES = [
+    # (body, pointer of the error the app answers; None: valid)
+    ({"input": _GRAPH, "filtration": _HEIGHT, "output": ["diagrams", "descriptors"]}, None),
+    ({"input": _GRAPH, "filtration": _HEIGHT, "output": ["diagrams", "diagrams"]}, "/output"),
+    ({"input": _MASK, "filtration": _HEIGHT, "output": ["descriptors"]}, "/output"),
+    ({"input": _MASK, "filtration": _HEIGHT, "output": ["graph"]}, "/output"),
+    ({"input": _GRAPH, "filtration": _HEIGHT, "descriptors": {}}, "/descriptors"),
+    ({"input": _GRAPH, "output": ["descriptors"], "descriptors": {}}, None),
+    ({"input": _MASK, "filtration": {"type": "height", "directions": 4}}, None),
+    ({"input": _MASK, "filtration": {"type": "height"}}, "/filtration/direction"),
+    (
+        {"input": _MASK, "filtration": {**_HEIGHT, "directions": [[1.0, 0.0]]}},
+        "/filtration/direction",
+    ),
+]
+
+
+@pytest.mark.parametrize(("body", "pointer"), JOB_RULES)
+def test_job_rules_are_stated(
+    client: FlaskClient, body: dict[str, Any], pointer: str | None
+) -> None:
+    assert _document_accepts("JobRequest", body) is (pointer is None)
+    answer = post(client, "/v1/jobs", body)
+    if pointer is None:
+        assert answer.status_code == 202, answer.get_data(as_text=True)
+    else:
+        assert pointer in pointers_of(problem_of(answer, 422))
+
+
 @pytest.mark.parametrize(
     ("feature", "pointer"),
     [
@@ -178,10 +211,18 @@ def test_filtration_rules_can_refuse() -> None:
         ({"infinite": "cap"}, "/cap"),
         ({"infinite": "drop", "cap": 3.0}, "/cap"),
         ({"cap": 3.0}, "/cap"),
+        ({"type": "summary", "quantiles": [0.5, 0.9]}, None),
+        ({"type": "summary", "quantiles": [0.5, 0.5]}, "/quantiles"),
     ],
 )
-def test_cap_rule_is_stated(client: FlaskClient, feature: dict[str, Any], pointer: str) -> None:
-    body = {"type": "betti_curve", "dim": 0, "t_range": [0.0, 1.0], "samples": 3, **feature}
+def test_feature_rules_are_stated(
+    client: FlaskClient, feature: dict[str, Any], pointer: str
+) -> None:
+    """A cap goes with infinite "cap" and only with it; quantiles are distinct."""
+    body = {"type": "betti_curve", "dim": 0, "t_range": [0.0, 1.0], "samples": 3}
+    if feature.get("type") == "summary":
+        body = {"type": "summary", "dim": 0}
+    body = {**body, **feature}
     assert _document_accepts("FeatureSpecBody", body) is (pointer is None)
     answer = post(client, "/v1/feature-specs", body)
     if pointer is None:

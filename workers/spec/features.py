@@ -215,7 +215,11 @@ class SummarySpec(_Feature):
     quantiles: Annotated[
         list[Annotated[FiniteFloat, Field(ge=0, le=1)]],
         AfterValidator(_distinct),
-        Field(max_length=64, description="Distinct levels in [0, 1]."),
+        Field(
+            max_length=64,
+            description="Distinct levels in [0, 1].",
+            json_schema_extra={"uniqueItems": True},
+        ),
     ] = list(DEFAULT_QUANTILES)
 
 

@@ -84,7 +84,28 @@ _FILTRATION_BY_INPUT: list[dict[str, Any]] = [
 """Which filtration each input takes, as the OpenAPI document states it (the input kinds in
 ``workers.spec.kinds`` check the same; tests/spec/test_openapi.py holds the two together)."""
 
-_FILTRATION_RULES: dict[str, Any] = {"allOf": _FILTRATION_BY_INPUT}
+_GRAPH_INPUT = {"anyOf": [_input_is("graph"), _input_is("mask", skeletonize=True)]}
+
+_OUTPUT_RULES: list[dict[str, Any]] = [
+    {
+        "if": {
+            "required": ["output"],
+            "properties": {"output": {"contains": {"enum": ["descriptors", "graph"]}}},
+        },
+        "then": _GRAPH_INPUT,
+    },
+    {
+        "if": {"required": ["descriptors"], "properties": {"descriptors": {"type": "object"}}},
+        "then": {
+            "required": ["output"],
+            "properties": {"output": {"contains": {"const": "descriptors"}}},
+        },
+    },
+]
+"""The rules of ``output_errors`` the document states: outputs other than "diagrams" need a
+graph (a graph input or a skeletonized mask); descriptor options need "descriptors" in output."""
+
+_FILTRATION_RULES: dict[str, Any] = {"allOf": _FILTRATION_BY_INPUT + _OUTPUT_RULES}
 
 
 class JobRequest(BaseModel):
@@ -115,6 +136,7 @@ class JobRequest(BaseModel):
         Field(
             min_length=1,
             max_length=3,
+            json_schema_extra={"uniqueItems": True},
             description='What the result holds: "diagrams" (the persistence diagrams and '
             'feature vectors), "descriptors" (network descriptors) and "graph" (the nodes '
             "and edges the job worked on); the last two for graph inputs and skeletonized "
