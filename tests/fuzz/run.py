@@ -8,13 +8,15 @@ the spec) chain real ids in the stateful phase. Checks: no 5xx (``not_a_server_e
 conformance of each answer's status code, content type and body to the document. On top, any
 answer carrying an ``internal-error`` problem (a failed job's status, say) is a finding.
 
-Bounded: the stack and the fuzzer each run under RLIMIT_DATA (``ulimit -d``; RLIMIT_AS breaks
-the worker's numerical libraries, which reserve address space they never use), and the whole
-run under a wall-clock limit. Peak memory is the largest resident set the stack's processes
-reached together, sampled every 0.2 s, and the fuzzer's own.
+Bounded: the stack (with its Redis and worker, which inherit the limit) and the fuzzer each
+run under RLIMIT_DATA (``ulimit -d``), so a runaway allocation fails in that process instead
+of starving the shared machine, and the fuzzer under a wall-clock limit besides its own time
+budget. Peak memory is the largest resident set the stack's processes reached together,
+sampled every 0.2 s, and the fuzzer's own.
 
-    python -m tests.fuzz.run                # the full run of make fuzz (>= 1000 requests)
-    python -m tests.fuzz.run --max-examples 4 --no-max-time --min-requests 100   # CI form
+    python -m tests.fuzz.run       # make fuzz: all phases for 240 s (thousands of requests)
+    python -m tests.fuzz.run --max-examples 10 --phases examples,fuzzing,stateful \
+        --no-max-time --min-requests 100                    # the short form of make test
 
 Exit code 0 when schemathesis found nothing, no answer held an internal error, at least
 ``--min-requests`` requests were sent and some jobs' results came back; 1 otherwise.
@@ -183,7 +185,7 @@ def fuzz(args: argparse.Namespace) -> Summary:
     """Start the stack, run schemathesis against it, stop the stack; what happened."""
     summary = Summary()
     started = time.monotonic()
-    report_dir = Path(args.report_dir or tempfile.mkdtemp(prefix="lacuna-fuzz-"))
+    report_dir = Path(args.report_dir or tempfile.mkdtemp(prefix="lacuna-fuzz-")).resolve()
     report_dir.mkdir(parents=True, exist_ok=True)
     summary.report_dir = str(report_dir)
     with serving(args.stack_memory_mb, args.max_wait_s) as (base, stack):
@@ -219,6 +221,7 @@ def fuzz(args: argparse.Namespace) -> Summary:
             stdout=None if args.verbose else subprocess.DEVNULL,
             preexec_fn=_data_limit(args.fuzzer_memory_mb),
             start_new_session=True,
+            cwd=report_dir,  # its own cache (.schemathesis/) goes with the reports
         )
         fuzzer_memory = PeakMemory(fuzzer.pid)
         try:
@@ -279,8 +282,13 @@ def main(argv: list[str] | None = None) -> int:
         f"fuzzer {summary.fuzzer_peak_mib:.0f} MiB; {summary.results_fetched()} job results "
         f"fetched; reports in {summary.report_dir}"
     )
+    unlisted = 0  # 405s and OPTIONS: methods the document does not list, one line for all
     for key, count in summary.statuses.items():
-        print(f"  {count:6d}  {key}")
+        if key.endswith(" 405") or key.startswith("OPTIONS "):
+            unlisted += count
+        else:
+            print(f"  {count:6d}  {key}")
+    print(f"  {unlisted:6d}  answers to methods the document does not list (405, OPTIONS)")
     for finding in summary.failures + summary.internal_errors:
         print("FINDING:", finding)
     for problem in summary.problems:
