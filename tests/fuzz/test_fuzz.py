@@ -46,3 +46,43 @@ def test_fuzzing_the_document_finds_nothing(tmp_path: Path) -> None:
     # The links reached real jobs: results came back from the ids POSTs answered.
     fetched = [key for key in summary["statuses"] if key.endswith("/result 200")]
     assert fetched, summary["statuses"]
+
+
+def test_an_answer_the_document_leaves_out_is_a_finding(tmp_path: Path) -> None:
+    """The checks bite: with the 422 of POST /v1/feature-specs taken out of the document, the
+    API's 422 answers are reported as undocumented (schemathesis's status_code_conformance)."""
+    from service.openapi import openapi_document
+
+    document = openapi_document()
+    del document["paths"]["/v1/feature-specs"]["post"]["responses"]["422"]
+    (tmp_path / "openapi.json").write_text(json.dumps(document), encoding="utf-8")
+    summary_path = tmp_path / "summary.json"
+    command = [
+        sys.executable,
+        "-m",
+        "tests.fuzz.run",
+        "--document",
+        str(tmp_path / "openapi.json"),
+        "--only",
+        "registerFeatureSpec",
+        "--max-examples",
+        "5",
+        "--phases",
+        "examples,fuzzing",
+        "--no-max-time",
+        "--wall-clock",
+        "300",
+        "--min-requests",
+        "1",
+        "--report-dir",
+        str(tmp_path / "reports"),
+        "--summary",
+        str(summary_path),
+    ]
+    run = subprocess.run(command, capture_output=True, text=True, timeout=420)
+    assert run.returncode == 1, run.stdout + run.stderr
+    summary = json.loads(summary_path.read_text(encoding="utf-8"))
+    findings = [json.loads(finding) for finding in summary["failures"]]
+    assert [(f["type"], f["operations"]) for f in findings] == [
+        ("UndefinedStatusCode", ["POST /v1/feature-specs"])
+    ]
