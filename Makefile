@@ -8,7 +8,7 @@ HASH   := $(shell cat pyproject.toml docker/constraints.txt | cksum | cut -d' ' 
 STAMP  := $(VENV)/.installed-$(HASH)
 DEV    := $(VENV)/.installed-dev-$(HASH)
 
-.PHONY: install install-dev browser serve test lint bench estimates openapi lock clean
+.PHONY: install install-dev browser serve test lint bench estimates fuzz openapi lock clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -59,6 +59,12 @@ bench: install-dev
 # each measured in a forked process capped in memory and time (about 15 minutes), then fitted.
 estimates: install-dev
 	$(BIN)/python -m tests.benchmarks.costs
+
+# Schemathesis against a real `lacuna serve` on 127.0.0.1 (its own embedded Redis, one worker),
+# following the document's links: at least 1000 requests, 4 minutes of fuzzing, memory and
+# wall clock capped (tests/fuzz/run.py; it prints where its reports are).
+fuzz: install-dev
+	$(BIN)/python -m tests.fuzz.run
 
 # The committed OpenAPI document and the README's example picture, both generated.
 openapi: install-dev

@@ -80,6 +80,55 @@ def _json(schema: str) -> dict[str, Any]:
     return {"application/json": {"schema": {"$ref": f"#/components/schemas/{schema}"}}}
 
 
+def _json_examples(schema: str, examples: dict[str, tuple[str, Any]]) -> dict[str, Any]:
+    """``_json(schema)`` with named example bodies (summary, value)."""
+    media = _json(schema)
+    media["application/json"]["examples"] = {
+        name: {"summary": summary, "value": value} for name, (summary, value) in examples.items()
+    }
+    return media
+
+
+_SQUARE = [[0.0, 0.0], [1.0, 0.0], [1.0, 1.0], [0.0, 1.0]]
+"""The unit square: one loop, born at edge length 1 and dying at the diagonal, sqrt(2)."""
+
+_BETTI_CURVE = {"type": "betti_curve", "dim": 1, "t_range": [0.0, 2.0], "samples": 5}
+
+_JOB_EXAMPLES = {
+    "rips": (
+        "H0 and H1 of the unit square, and its H1 Betti curve",
+        {
+            "input": {"type": "points", "points": _SQUARE},
+            "filtration": {"type": "rips", "max_dim": 1},
+            "features": [_BETTI_CURVE],
+        },
+    ),
+    "cubical": (
+        "A 3 x 3 image with a bright ring around a dark centre (superlevel sets)",
+        {
+            "input": {
+                "type": "image",
+                "values": [[9.0, 9.0, 9.0], [9.0, 1.0, 9.0], [9.0, 9.0, 9.0]],
+            },
+            "filtration": {"type": "cubical", "direction": "superlevel"},
+        },
+    ),
+}
+
+_DISTANCE_EXAMPLES = {
+    "bottleneck": (
+        "Bottleneck distance between two H1 diagrams",
+        {"metric": "bottleneck", "diagrams": [[[1.0, 1.5]], [[1.0, 2.0]]]},
+    ),
+    "euclidean": (
+        "Euclidean distance between two feature vectors",
+        {"metric": "euclidean", "vectors": [[0.0, 1.0, 2.0], [0.0, 1.0, 4.0]]},
+    ),
+}
+
+_SPEC_EXAMPLES = {"betti_curve": ("A Betti curve of H1 at 5 values of t", _BETTI_CURVE)}
+
+
 def _result(description: str) -> dict[str, Any]:
     """A result in JSON (a job's or a distance matrix's) or, on request, as .npy bytes."""
     return {
@@ -133,7 +182,14 @@ _IDEMPOTENCY_KEY = {
     "default, see /v1/capabilities) the same key with the same request answers the job made "
     "the first time instead of queueing another; the same key with a different request is a "
     "422. Once that job's result has expired the key starts over. Keys are scoped by owner.",
-    "schema": {"type": "string", "maxLength": 257, "example": "5f0c6d1e-0b7a-4c7e-9d2a-1b3c"},
+    "schema": {
+        "type": "string",
+        "minLength": 1,
+        "maxLength": 257,
+        # what service.routes takes: visible ASCII (0x21-0x7e) without '"', or all that quoted
+        "pattern": '^(?:"[!#-~]{1,255}"|[!#-~]{1,255})$',
+        "example": "5f0c6d1e-0b7a-4c7e-9d2a-1b3c",
+    },
 }
 
 _JOB_ID = {
@@ -192,6 +248,60 @@ _HTML_PAGE = {
     }
 }
 
+_JOB_LINKS = {
+    name: {
+        "operationId": operation,
+        "parameters": {"job_id": "$response.body#/job_id"},
+        "description": description,
+    }
+    for name, operation, description in [
+        ("status", "getJob", "The job's state (GET /v1/jobs/{job_id})."),
+        ("result", "getResult", "The job's result (GET /v1/jobs/{job_id}/result)."),
+        ("plot", "getPlot", "A picture of the job (GET /v1/jobs/{job_id}/plot)."),
+        ("cancel", "cancelJob", "Cancel the job (DELETE /v1/jobs/{job_id})."),
+    ]
+}
+"""OpenAPI links from an answer naming a job to the operations on it."""
+
+_SPEC_LINKS = {
+    "spec": {
+        "operationId": "getFeatureSpec",
+        "parameters": {"spec_id": "$response.body#/spec_id"},
+        "description": "The registered spec (GET /v1/feature-specs/{spec_id}).",
+    }
+}
+
+
+def _linked(response: dict[str, Any], links: dict[str, Any]) -> dict[str, Any]:
+    return {**response, "links": links}
+
+
+_HEALTH = {
+    "application/json": {
+        "schema": {
+            "type": "object",
+            "required": ["status"],
+            "properties": {"status": {"const": "ok"}},
+        }
+    }
+}
+_READY = {
+    "application/json": {
+        "schema": {
+            "type": "object",
+            "required": ["status", "workers"],
+            "properties": {
+                "status": {"const": "ready"},
+                "workers": {
+                    "type": "integer",
+                    "minimum": 1,
+                    "description": "Workers registered on the queue.",
+                },
+            },
+        }
+    }
+}
+
 _UNAVAILABLE = _problem("Redis cannot be reached; retry after the Retry-After header.")
 _NOT_FOUND = _problem("No such job for this owner, or it has expired.")
 
@@ -205,18 +315,27 @@ def _paths() -> dict[str, Any]:
                 "parameters": [_PREFER_WAIT, _IDEMPOTENCY_KEY],
                 "requestBody": {
                     "required": True,
-                    "content": {**_json("JobRequest"), "multipart/form-data": _UPLOAD},
+                    "content": {
+                        **_json_examples("JobRequest", _JOB_EXAMPLES),
+                        "multipart/form-data": _UPLOAD,
+                    },
                 },
                 "responses": {
-                    "200": _result("Finished within Prefer: wait."),
-                    "202": {
-                        "description": "Accepted; not succeeded within any Prefer: wait "
-                        "(queued, running, failed or cancelled: see status and problem). "
-                        "Poll the Location header.",
-                        "headers": {"Location": {"schema": {"type": "string"}}},
-                        "content": _json("JobStatus"),
-                    },
+                    "200": _linked(_result("Finished within Prefer: wait."), _JOB_LINKS),
+                    "202": _linked(
+                        {
+                            "description": "Accepted; not succeeded within any Prefer: wait "
+                            "(queued, running, failed or cancelled: see status and problem). "
+                            "Poll the Location header.",
+                            "headers": {"Location": {"schema": {"type": "string"}}},
+                            "content": _json("JobStatus"),
+                        },
+                        _JOB_LINKS,
+                    ),
                     "400": _problem("The body is not JSON, or the Idempotency-Key is unusable."),
+                    "406": _problem(
+                        "Asked for application/x-npy for a job without features (no vector)."
+                    ),
                     "413": _problem(
                         "The body is above the size limit (max_body_bytes for JSON, "
                         "max_upload_bytes for multipart)."
@@ -328,14 +447,21 @@ def _paths() -> dict[str, Any]:
                 "tenant, at most max_feature_specs at a time, each until feature_spec_ttl_s "
                 "after its last registration or use (see caller in /v1/capabilities).",
                 "operationId": "registerFeatureSpec",
-                "requestBody": {"required": True, "content": _json("FeatureSpecBody")},
+                "requestBody": {
+                    "required": True,
+                    "content": _json_examples("FeatureSpecBody", _SPEC_EXAMPLES),
+                },
                 "responses": {
-                    "200": {
-                        "description": "Registered (again, if it already was).",
-                        "headers": {"Location": {"schema": {"type": "string"}}},
-                        "content": _json("FeatureSpecAnswer"),
-                    },
+                    "200": _linked(
+                        {
+                            "description": "Registered (again, if it already was).",
+                            "headers": {"Location": {"schema": {"type": "string"}}},
+                            "content": _json("FeatureSpecAnswer"),
+                        },
+                        _SPEC_LINKS,
+                    ),
                     "400": _problem("The body is not JSON."),
+                    "413": _problem("The body is above the size limit (max_body_bytes)."),
                     "415": _problem("The Content-Type is not application/json."),
                     "422": _problem("The spec is invalid; `errors` points at each field."),
                     "503": _UNAVAILABLE,
@@ -370,14 +496,20 @@ def _paths() -> dict[str, Any]:
                 "says otherwise.",
                 "operationId": "submitDistances",
                 "parameters": [_PREFER_WAIT],
-                "requestBody": {"required": True, "content": _json("DistanceRequest")},
+                "requestBody": {
+                    "required": True,
+                    "content": _json_examples("DistanceRequest", _DISTANCE_EXAMPLES),
+                },
                 "responses": {
-                    "200": _result("The matrix, finished in time."),
-                    "202": {
-                        "description": "Accepted; poll the Location header.",
-                        "headers": {"Location": {"schema": {"type": "string"}}},
-                        "content": _json("JobStatus"),
-                    },
+                    "200": _linked(_result("The matrix, finished in time."), _JOB_LINKS),
+                    "202": _linked(
+                        {
+                            "description": "Accepted; poll the Location header.",
+                            "headers": {"Location": {"schema": {"type": "string"}}},
+                            "content": _json("JobStatus"),
+                        },
+                        _JOB_LINKS,
+                    ),
                     "400": _problem("The body is not JSON."),
                     "413": _problem("The body is above the size limit."),
                     "415": _problem("The Content-Type is not application/json."),
@@ -451,14 +583,17 @@ def _paths() -> dict[str, Any]:
             "get": {
                 "summary": "The process is up",
                 "operationId": "getHealth",
-                "responses": {"200": {"description": "Up."}},
+                "responses": {"200": {"description": "Up.", "content": _HEALTH}},
             }
         },
         "/readyz": {
             "get": {
                 "summary": "Redis answers and a live worker (one that beats) is registered",
                 "operationId": "getReady",
-                "responses": {"200": {"description": "Ready."}, "503": _problem("Not ready.")},
+                "responses": {
+                    "200": {"description": "Ready.", "content": _READY},
+                    "503": _problem("Not ready."),
+                },
             }
         },
         "/metrics": {

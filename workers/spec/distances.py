@@ -53,15 +53,47 @@ DiagramItem = Annotated[
 """One inline diagram: bare pairs, or a diagram object as results carry them."""
 
 
+def _given(name: str, kind: str) -> dict[str, Any]:
+    """JSON Schema: the field ``name`` is given and not null (a JSON ``kind``)."""
+    return {"required": [name], "properties": {name: {"type": kind}}}
+
+
+def _metric_in(metrics: tuple[str, ...]) -> dict[str, Any]:
+    return {"properties": {"metric": {"enum": list(metrics)}}}
+
+
+_SOURCES = ("diagrams", "vectors", "job_ids")
+
+_DISTANCE_RULES: dict[str, Any] = {
+    "oneOf": [_given(name, "array") for name in _SOURCES],
+    "allOf": [
+        {"if": _given("diagrams", "array"), "then": _metric_in(DIAGRAM_METRICS)},
+        {"if": _given("vectors", "array"), "then": _metric_in(VECTOR_METRICS)},
+        {"if": _given("order", "number"), "then": _metric_in(("wasserstein",))},
+        {"if": _given("directions", "integer"), "then": _metric_in(("sliced_wasserstein",))},
+        {"if": _given("dim", "integer"), "then": _metric_in(DIAGRAM_METRICS)},
+        {
+            "if": {"allOf": [_given("job_ids", "array"), _metric_in(DIAGRAM_METRICS)]},
+            "then": _given("dim", "integer"),
+        },
+    ],
+}
+"""The rules between fields that the OpenAPI document states (``distance_field_errors``
+checks the same): exactly one of diagrams, vectors or job_ids; diagrams take diagram
+metrics and vectors vector metrics; order only with wasserstein, directions only with
+sliced_wasserstein, dim only with diagram metrics and required with job_ids."""
+
+
 class DistanceRequest(BaseModel):
     """Body of ``POST /v1/distances``: a metric and N diagrams, vectors or finished jobs.
 
     Diagram metrics (bottleneck, wasserstein, sliced_wasserstein) use the L-infinity ground
     metric and match classes that never die only to each other. Vector metrics (euclidean,
     cosine) compare feature vectors: given inline, or the concatenated vectors of jobs.
+    Exactly one of ``diagrams``, ``vectors`` or ``job_ids``.
     """
 
-    model_config = ConfigDict(extra="forbid")
+    model_config = ConfigDict(extra="forbid", json_schema_extra=_DISTANCE_RULES)
 
     metric: Metric
     order: Annotated[
@@ -88,13 +120,29 @@ class DistanceRequest(BaseModel):
             description="Homology dimension compared; required with job_ids and a diagram metric."
         ),
     ] = None
-    diagrams: Annotated[list[DiagramItem] | None, Field(min_length=1)] = None
+    diagrams: Annotated[
+        list[DiagramItem] | None,
+        Field(
+            min_length=1,
+            description="Diagrams compared by a diagram metric; exactly one of diagrams, "
+            "vectors or job_ids.",
+        ),
+    ] = None
     vectors: Annotated[
-        list[Annotated[list[Coordinate], Field(min_length=1)]] | None, Field(min_length=1)
+        list[Annotated[list[Coordinate], Field(min_length=1)]] | None,
+        Field(
+            min_length=1,
+            description="Feature vectors of one length, compared by a vector metric; exactly "
+            "one of diagrams, vectors or job_ids.",
+        ),
     ] = None
     job_ids: Annotated[
         list[Annotated[str, Field(max_length=64)]] | None,
-        Field(min_length=1, description="Succeeded jobs of this owner, in matrix order."),
+        Field(
+            min_length=1,
+            description="Succeeded jobs of this owner, in matrix order; exactly one of "
+            "diagrams, vectors or job_ids.",
+        ),
     ] = None
 
     def field_errors(self, limits: Limits) -> list[FieldError]:

@@ -69,10 +69,18 @@ Range = Annotated[
 Count = Annotated[int, Field(strict=True, ge=1)]
 
 
+_CAP_GOES_WITH_INFINITE: dict[str, Any] = {
+    "if": {"required": ["infinite"], "properties": {"infinite": {"const": "cap"}}},
+    "then": {"required": ["cap"], "properties": {"cap": {"type": "number"}}},
+    "else": {"properties": {"cap": {"type": "null"}}},
+}
+"""The OpenAPI document's statement of ``_Feature._cap_goes_with_infinite``."""
+
+
 class _Feature(BaseModel):
     """Fields every feature spec has."""
 
-    model_config = ConfigDict(extra="forbid")
+    model_config = ConfigDict(extra="forbid", json_schema_extra=_CAP_GOES_WITH_INFINITE)
 
     dim: Dimension
     spec_id: Annotated[
@@ -207,7 +215,11 @@ class SummarySpec(_Feature):
     quantiles: Annotated[
         list[Annotated[FiniteFloat, Field(ge=0, le=1)]],
         AfterValidator(_distinct),
-        Field(max_length=64, description="Distinct levels in [0, 1]."),
+        Field(
+            max_length=64,
+            description="Distinct levels in [0, 1].",
+            json_schema_extra={"uniqueItems": True},
+        ),
     ] = list(DEFAULT_QUANTILES)
 
 

@@ -124,6 +124,16 @@ Directions = Annotated[
 before validation, so an error names the field itself, not one guess per form."""
 
 
+_ONE_DIRECTION_FORM: dict[str, Any] = {
+    "oneOf": [
+        {"required": ["direction"], "properties": {"direction": {"type": "array"}}},
+        {"required": ["directions"], "properties": {"directions": {"type": ["array", "integer"]}}},
+    ]
+}
+"""The OpenAPI document's statement of the rule ``direction_errors`` checks first: exactly one
+of ``direction`` and ``directions``."""
+
+
 class HeightFiltration(BaseModel):
     """A sweep by a line (2D) or plane (3D): foreground pixels, or graph nodes, enter at the
     projection of their centre on a unit direction (a graph edge with its later end). Give one
@@ -132,7 +142,7 @@ class HeightFiltration(BaseModel):
     2 pi k / K, k = 0..K-1, from the first axis toward the second. Vectors need not be unit:
     they are scaled to length 1, and results echo the unit vectors used."""
 
-    model_config = ConfigDict(extra="forbid")
+    model_config = ConfigDict(extra="forbid", json_schema_extra=_ONE_DIRECTION_FORM)
 
     type: Literal["height"]
     direction: Vector | None = None

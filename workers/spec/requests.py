@@ -1,6 +1,6 @@
 """The bodies of ``POST /v1/jobs`` and their checks that span several fields."""
 
-from typing import Annotated
+from typing import Annotated, Any
 
 from pydantic import BaseModel, ConfigDict, Field
 
@@ -16,7 +16,7 @@ from workers.spec.features import (
     spec_id_of,
     vector_length,
 )
-from workers.spec.filtrations import Filtration
+from workers.spec.filtrations import GRAPH_FILTRATIONS, MASK_FILTRATIONS, Filtration
 from workers.spec.inputs import Input
 from workers.spec.networks import DescriptorOptions, OutputKind
 from workers.spec.problems import FieldError
@@ -31,14 +31,99 @@ _SIZE_FIELD = {
 """The field that sets a spec's vector length, pointed at when it is too long."""
 
 
+def _input_is(input_type: str, **fields: Any) -> dict[str, Any]:
+    """JSON Schema: the request's input is of ``input_type`` (and has these field values)."""
+    properties = {"type": {"const": input_type}} | {k: {"const": v} for k, v in fields.items()}
+    return {
+        "required": ["input"],
+        "properties": {"input": {"required": list(properties), "properties": properties}},
+    }
+
+
+def _filtration_of(types: tuple[str, ...], required: bool = True) -> dict[str, Any]:
+    """JSON Schema: the filtration is one of ``types`` (and given, when ``required``)."""
+    of_type = {"type": "object", "properties": {"type": {"enum": list(types)}}}
+    if not required:
+        return {"properties": {"filtration": {"anyOf": [of_type, {"type": "null"}]}}}
+    return {"required": ["filtration"], "properties": {"filtration": of_type}}
+
+
+_ASKS_FOR_DIAGRAMS = {
+    "anyOf": [
+        {"not": {"required": ["output"]}},
+        {"properties": {"output": {"contains": {"const": "diagrams"}}}},
+    ]
+}
+"""JSON Schema: the request's output holds "diagrams" (the default)."""
+
+_SKELETON_FILTRATIONS = tuple(name for name in GRAPH_FILTRATIONS if name != "attribute")
+"""Filtrations of a mask's skeleton graph: its nodes exist only on the worker, so they cannot
+carry given values."""
+
+
+def _graph_filtration(types: tuple[str, ...]) -> dict[str, Any]:
+    """JSON Schema: a filtration of one of ``types``, required when diagrams are asked for."""
+    return {
+        **_filtration_of(types, required=False),
+        "if": _ASKS_FOR_DIAGRAMS,
+        "then": _filtration_of(types),
+    }
+
+
+_FILTRATION_BY_INPUT: list[dict[str, Any]] = [
+    {"if": _input_is("points"), "then": _filtration_of(("rips",))},
+    {"if": _input_is("image"), "then": _filtration_of(("cubical",))},
+    {
+        "if": {**_input_is("mask"), "not": _input_is("mask", skeletonize=True)},
+        "then": _filtration_of(MASK_FILTRATIONS),
+    },
+    {"if": _input_is("diagrams"), "then": {"properties": {"filtration": {"type": "null"}}}},
+    {"if": _input_is("graph"), "then": _graph_filtration(GRAPH_FILTRATIONS)},
+    {"if": _input_is("mask", skeletonize=True), "then": _graph_filtration(_SKELETON_FILTRATIONS)},
+]
+"""Which filtration each input takes, as the OpenAPI document states it (the input kinds in
+``workers.spec.kinds`` check the same; tests/spec/test_openapi.py holds the two together)."""
+
+_GRAPH_INPUT = {"anyOf": [_input_is("graph"), _input_is("mask", skeletonize=True)]}
+
+_OUTPUT_RULES: list[dict[str, Any]] = [
+    {
+        "if": {
+            "required": ["output"],
+            "properties": {"output": {"contains": {"enum": ["descriptors", "graph"]}}},
+        },
+        "then": _GRAPH_INPUT,
+    },
+    {
+        "if": {"required": ["descriptors"], "properties": {"descriptors": {"type": "object"}}},
+        "then": {
+            "required": ["output"],
+            "properties": {"output": {"contains": {"const": "descriptors"}}},
+        },
+    },
+]
+"""The rules of ``output_errors`` the document states: outputs other than "diagrams" need a
+graph (a graph input or a skeletonized mask); descriptor options need "descriptors" in output."""
+
+_FILTRATION_RULES: dict[str, Any] = {"allOf": _FILTRATION_BY_INPUT + _OUTPUT_RULES}
+
+
 class JobRequest(BaseModel):
     """One computation: an input, the filtration to build on it (none for given diagrams), and
     the feature vectors to make of the diagrams."""
 
-    model_config = ConfigDict(extra="forbid")
+    model_config = ConfigDict(extra="forbid", json_schema_extra=_FILTRATION_RULES)
 
     input: Input
-    filtration: Filtration | None = None
+    filtration: Annotated[
+        Filtration | None,
+        Field(
+            description='Required by "points" (rips), "image" (cubical) and "mask" (distance, '
+            'height or radial) inputs; left out for "diagrams"; for "graph" inputs (height, '
+            'radial, geodesic or attribute) and masks with "skeletonize" (height, radial or '
+            'geodesic) required unless "output" leaves out "diagrams".'
+        ),
+    ] = None
     features: Annotated[
         list[FeatureItem],
         Field(
@@ -51,6 +136,7 @@ class JobRequest(BaseModel):
         Field(
             min_length=1,
             max_length=3,
+            json_schema_extra={"uniqueItems": True},
             description='What the result holds: "diagrams" (the persistence diagrams and '
             'feature vectors), "descriptors" (network descriptors) and "graph" (the nodes '
             "and edges the job worked on); the last two for graph inputs and skeletonized "
