@@ -85,7 +85,7 @@ def scrape() -> Response:
         registry.register(HTTP_DURATION)
     registry.register(QueueCollector(current_app.extensions["lacuna"].queue.queue))
     # Text format 0.0.4: what every Prometheus version reads (our names need no escaping).
-    return Response(generate_latest(registry), mimetype=CONTENT_TYPE_PLAIN_0_0_4)
+    return Response(generate_latest(registry), content_type=CONTENT_TYPE_PLAIN_0_0_4)
 
 
 def _started() -> None:

@@ -302,7 +302,10 @@ _READY = {
     }
 }
 
-_UNAVAILABLE = _problem("Redis cannot be reached; retry after the Retry-After header.")
+_UNAVAILABLE = _problem(
+    "Redis cannot be reached, or (server-busy) this API process is parsing as many large "
+    "bodies as it may; retry after the Retry-After header."
+)
 _NOT_FOUND = _problem("No such job for this owner, or it has expired.")
 
 
@@ -643,17 +646,26 @@ _ACCESS_RESPONSES = {
 }
 
 
+_NOT_ACCEPTABLE = _problem(
+    "The Accept header allows none of the media types this operation answers with (RFC 9110 "
+    "section 12.5.1); problem+json is always sent for errors."
+)
+
+
 def _with_access(paths: dict[str, Any]) -> dict[str, Any]:
-    """Every operation with its security: a key (or none in open mode), 401 and 429 answers;
-    the open paths need nothing."""
+    """Every operation with its security: a key (or none in open mode), 401 and 429 answers,
+    and the 406 of content negotiation; the open paths need nothing."""
     for path, item in paths.items():
         for method, operation in item.items():
             if method == "parameters":
                 continue
+            responses = operation["responses"]
+            if path != "/metrics":  # plain text whatever the Accept header says
+                responses.setdefault("406", _NOT_ACCEPTABLE)
             if path in _OPEN_PATHS:
                 operation["security"] = []
+                operation["responses"] = dict(sorted(responses.items()))
                 continue
-            responses = operation["responses"]
             for status, response in _ACCESS_RESPONSES.items():
                 responses.setdefault(status, response)
             operation["responses"] = dict(sorted(responses.items()))
