@@ -1,5 +1,7 @@
 """Settings of the API process: one typed object, read from ``LACUNA_*`` environment variables."""
 
+from pathlib import Path
+
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
@@ -110,4 +112,11 @@ class Settings(BaseSettings):
     )
     local_workers: int = Field(
         2, ge=0, description="Job workers `lacuna serve` starts on its own machine (0: API only)."
+    )
+    # Durability of `lacuna serve`
+    data_dir: Path | None = Field(
+        None,
+        description="Folder of the embedded Redis's append-only file (`lacuna serve` without a "
+        "Redis URL): jobs, results, feature specs and Idempotency-Keys survive restarts there. "
+        "Unset: $XDG_STATE_HOME/lacuna, else ~/.local/state/lacuna.",
     )
