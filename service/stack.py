@@ -162,7 +162,14 @@ class _Child:
         return self.process
 
     def schedule_restart(self, code: int, now: float) -> None:
-        """Note a death; the next start waits longer the more often it died young."""
+        """Note a death, and end what the dead child left behind in its process group (a
+        gunicorn master's workers would keep the port, a worker's compute child its job);
+        the next start waits longer the more often it died young."""
+        if self.process is not None:
+            try:
+                os.killpg(self.process.pid, signal.SIGKILL)  # its own group: _child_setup
+            except OSError:  # nothing left in it
+                pass
         self.quick_deaths = self.quick_deaths + 1 if now - self.started_at < STABLE_S else 0
         delay = 0.0
         if self.quick_deaths > 1:  # it died young again: it keeps dying
@@ -353,7 +360,7 @@ def _supervise(stack: _Stack, base: str, redis_url: str, stopping: Callable[[], 
             ended = child.process.poll()
             if ended is not None and child.restart_at is None:
                 child.schedule_restart(ended, now)
-                if child is stack.http:
+                if child is stack.http and http_down_since is None:
                     http_down_since = now
             if child.restart_at is None or child.restart_at > now or stopping():
                 continue
@@ -369,23 +376,11 @@ def _supervise(stack: _Stack, base: str, redis_url: str, stopping: Callable[[], 
             http_down_since is not None
             and stack.http is not None
             and stack.http.restart_at is None
-            and _has_children(stack.http.process)
             and _answers(base, timeout=0.5)
         ):
             _say(f"HTTP answering again {time.monotonic() - http_down_since:.2f} s after it died")
             http_down_since = None
         time.sleep(POLL_S)
-
-
-def _has_children(process: subprocess.Popen[bytes] | None) -> bool:
-    """True once ``process`` has forked (a gunicorn master its workers): until then an answer
-    may still come from a worker of the master that died, serving out its last second."""
-    if process is None:
-        return False
-    try:
-        return bool(Path(f"/proc/{process.pid}/task/{process.pid}/children").read_text().split())
-    except OSError:  # not Linux: the answer is the best sign there is
-        return True
 
 
 def _stop_in_order(stack: _Stack) -> None:
