@@ -89,10 +89,11 @@ def redis_arguments(data_dir: Path, socket_path: Path) -> list[str]:
         str(data_dir),
         "--logfile",
         str(data_dir / "redis.log"),
-        # The AOF is the one persistence: every write is appended before Redis answers, so a
+        # The AOF is the one persistence: writes are appended before Redis answers, so a
         # killed redis-server loses nothing it acknowledged (the bytes are in the kernel's
-        # page cache); "everysec" fsyncs once a second, so a power cut or kernel crash loses
-        # at most about a second of writes, at a fraction of "always"'s cost per write.
+        # page cache; only on a disk where an fsync outlasts a second does Redis hold writes
+        # back, up to 2 s). "everysec" fsyncs once a second, so a power cut or kernel crash
+        # loses about a second of writes, at a fraction of "always"'s cost (an fsync each).
         # Redis rewrites the file in the background as it grows, and loads a file cut short
         # by a crash (aof-load-truncated, on by default).
         "--appendonly",
