@@ -203,6 +203,7 @@ class Soak:
         self.events: list[str] = []
         self.measured: dict[str, list[float]] = {"worker": [], "redis": [], "api": []}
         self.before_redis_kill: dict[str, str] = {}  # location -> digest
+        self.aof_at_kill = 0  # bytes of the append-only file when Redis was killed
         self.halt = threading.Event()
 
     def note(self, text: str) -> None:
@@ -334,7 +335,7 @@ class Soak:
         pid = random.choice(self.stack.children("worker"))
         os.kill(pid, signal.SIGKILL)
         took = self._wait(lambda: bool(self._workers() - before))
-        self.note(f"worker (pid {pid}) SIGKILLed; a new worker registered after {took} s")
+        self.note(f"worker (pid {pid}) SIGKILLed; a new worker registered after {_seconds(took)}")
         if took is not None:
             self.measured["worker"].append(took)
 
@@ -344,6 +345,7 @@ class Soak:
         self.before_redis_kill = {k: v for k, v in done.items() if k and v}
         aof = self.stack.data_dir / "appendonly.aof"
         size = aof.stat().st_size if aof.exists() else 0
+        self.aof_at_kill = size
         pid = self.stack.kill("redis")
         probe = next(iter(self.before_redis_kill), None)
 
@@ -358,7 +360,8 @@ class Soak:
         took = self._wait(readable)
         self.note(
             f"redis-server (pid {pid}) SIGKILLed with {len(self.before_redis_kill)} results "
-            f"and a {size / 1e6:.1f} MB AOF; a result read back through the API after {took} s"
+            f"and a {size / 1e6:.1f} MB AOF; a result read back through the API after "
+            + _seconds(took)
         )
         if took is not None:
             self.measured["redis"].append(took)
@@ -377,7 +380,9 @@ class Soak:
                 return False
 
         took = self._wait(answering)
-        self.note(f"gunicorn master (pid {pid}) SIGKILLed; a new one answered after {took} s")
+        self.note(
+            f"gunicorn master (pid {pid}) SIGKILLed; a new one answered after {_seconds(took)}"
+        )
         if took is not None:
             self.measured["api"].append(took)
 
@@ -388,17 +393,17 @@ class Soak:
         while self.ledger.pending() and time.monotonic() < end:
             time.sleep(0.5)
 
-    def reread_before_redis_kill(self) -> tuple[int, int]:
-        """(readable and equal, total) of the results that had succeeded before the kill."""
+    def reread(self, results: dict[str, str]) -> tuple[int, int]:
+        """(readable and equal, total) of ``results`` (job location -> digest)."""
         same = 0
         session = requests.Session()
-        for location, expected in self.before_redis_kill.items():
+        for location, expected in results.items():
             try:
                 answer = session.get(self.base + location + "/result", timeout=10)
             except requests.RequestException:
                 continue
             same += answer.status_code == 200 and digest(answer.json()) == expected
-        return same, len(self.before_redis_kill)
+        return same, len(results)
 
     def doubled(self) -> int:
         """Jobs in Redis that none of our submissions was answered with: a retried submission
@@ -411,6 +416,10 @@ class Soak:
             if ":" not in name:
                 found.add(name)
         return len(found - ours)
+
+
+def _seconds(took: float | None) -> str:
+    return "never (within 120 s)" if took is None else f"{took:.2f} s"
 
 
 def _problem_name(answer: requests.Response) -> str:
@@ -458,7 +467,13 @@ def _row(name: str, value: object) -> str:
     return f"| {name:<44} | {value!s:>10} |"
 
 
-def report(soak: Soak, reread: tuple[int, int], doubled: int, seconds: float) -> bool:
+def report(
+    soak: Soak,
+    reread: tuple[int, int],
+    at_end: tuple[int, int],
+    doubled: int,
+    seconds: float,
+) -> bool:
     jobs = soak.ledger.jobs
     states = Counter(job.state for job in jobs)
     reasons = Counter(job.reason for job in jobs if job.state == "failed")
@@ -482,6 +497,8 @@ def report(soak: Soak, reread: tuple[int, int], doubled: int, seconds: float) ->
         print(_row(f"  last seen {status}", count))
     print(_row("doubled (a second job for one submission)", doubled))
     print(_row("results from before the Redis kill, same", f"{reread[0]}/{reread[1]}"))
+    print(_row("  AOF size at the kill (MB)", f"{soak.aof_at_kill / 1e6:.1f}"))
+    print(_row("every succeeded result, read at the end", f"{at_end[0]}/{at_end[1]}"))
     by_kind = Counter(job.kind for job in jobs if job.state == "succeeded")
     print(_row("succeeded by kind", ", ".join(f"{k} {v}" for k, v in sorted(by_kind.items()))))
     for what, times in soak.measured.items():
@@ -494,6 +511,7 @@ def report(soak: Soak, reread: tuple[int, int], doubled: int, seconds: float) ->
         and stuck == 0
         and not_accepted == 0
         and reread[0] == reread[1]
+        and at_end[0] == at_end[1]
         and len(soak.measured["worker"]) == len(WORKER_KILLS)
         and len(soak.measured["redis"]) == 1
         and len(soak.measured["api"]) == 1
@@ -542,8 +560,17 @@ def main(argv: list[str] | None = None) -> int:
             if job.state == "lost":
                 job.state = "pending"
                 soak._poll(requests.Session(), job)
+        succeeded = {
+            j.location: j.result
+            for j in soak.ledger.jobs
+            if j.state == "succeeded" and j.location and j.result
+        }
         ok = report(
-            soak, soak.reread_before_redis_kill(), soak.doubled(), time.monotonic() - started
+            soak,
+            soak.reread(soak.before_redis_kill),
+            soak.reread(succeeded),
+            soak.doubled(),
+            time.monotonic() - started,
         )
         restarts = [line for line in stack.lines() if "lacuna serve:" in line]
         print("the supervisor said:")
