@@ -84,18 +84,18 @@ def workload(count: int, seed: int) -> list[tuple[str, str, Body]]:
     rng = np.random.default_rng(seed)
     pools: dict[str, list[tuple[str, Body]]] = {
         "points": [
-            ("/v1/jobs", rips_job(_rounded(noisy_circle(60, s)), max_dim=1)) for s in range(8)
+            ("/v1/jobs", rips_job(_rounded(noisy_circle(200, s)), max_dim=1)) for s in range(8)
         ]
-        + [("/v1/jobs", rips_job(_rounded(uniform(50, 3, s)), max_dim=2)) for s in range(4)]
+        + [("/v1/jobs", rips_job(_rounded(uniform(70, 3, s)), max_dim=2)) for s in range(4)]
         + [
-            ("/v1/jobs", rips_job(_rounded(cell_layout("mixed", s, count=80)[0], 2), max_dim=1))
+            ("/v1/jobs", rips_job(_rounded(cell_layout("mixed", s, count=300)[0], 2), max_dim=1))
             for s in range(4)
         ],
         "image": [
             (
                 "/v1/jobs",
                 {
-                    "input": {"type": "image", "values": _rounded(smooth_field((32, 32), 2.0, s))},
+                    "input": {"type": "image", "values": _rounded(smooth_field((96, 96), 2.0, s))},
                     "filtration": {"type": "cubical"},
                 },
             )
@@ -109,8 +109,8 @@ def workload(count: int, seed: int) -> list[tuple[str, str, Body]]:
                     "filtration": {"type": "distance"},
                 },
             )
-            for mask in [ring_mask((40, 40), (20.0, 20.0), 5.0 + s, 14.0) for s in range(4)]
-            + [cell_blobs((40, 40), 5, 4.0, s) for s in range(4)]
+            for mask in [ring_mask((96, 96), (48.0, 48.0), 12.0 + 3 * s, 34.0) for s in range(4)]
+            + [cell_blobs((96, 96), 12, 6.0, s) for s in range(4)]
         ],
         "graph": [
             (
@@ -120,9 +120,9 @@ def workload(count: int, seed: int) -> list[tuple[str, str, Body]]:
                         branch_probability=0.05,
                         fusion_probability=0.3,
                         seed=s,
-                        size=(300.0, 300.0),
-                        sprouts=4,
-                        max_steps=60,
+                        size=(600.0, 600.0),
+                        sprouts=6,
+                        max_steps=120,
                     )
                 ),
             )
@@ -133,7 +133,7 @@ def workload(count: int, seed: int) -> list[tuple[str, str, Body]]:
                 "/v1/distances",
                 {
                     "metric": metric,
-                    "diagrams": [_random_diagram(rng, 12) for _ in range(6)],
+                    "diagrams": [_random_diagram(rng, 40) for _ in range(8)],
                 },
             )
             for metric in ("bottleneck", "wasserstein", "sliced_wasserstein")
@@ -405,9 +405,9 @@ class Soak:
             same += answer.status_code == 200 and digest(answer.json()) == expected
         return same, len(results)
 
-    def doubled(self) -> int:
-        """Jobs in Redis that none of our submissions was answered with: a retried submission
-        that made a second job."""
+    def doubled(self) -> Counter[str]:
+        """Jobs in Redis that none of our submissions was answered with (a retried submission
+        that made a second job), by their description."""
         ours = {j.location.rsplit("/", 1)[-1] for j in self.ledger.jobs if j.location}
         connection = Redis.from_url(self.stack.redis_url)
         found = set()
@@ -415,7 +415,11 @@ class Soak:
             name = key.decode()[len("rq:job:") :]
             if ":" not in name:
                 found.add(name)
-        return len(found - ours)
+        described: Counter[str] = Counter()
+        for name in found - ours:
+            raw = connection.hget(f"rq:job:{name}", "description")
+            described[raw.decode() if isinstance(raw, bytes) else str(raw)] += 1
+        return described
 
 
 def _seconds(took: float | None) -> str:
@@ -471,7 +475,7 @@ def report(
     soak: Soak,
     reread: tuple[int, int],
     at_end: tuple[int, int],
-    doubled: int,
+    doubled: Counter[str],
     seconds: float,
 ) -> bool:
     jobs = soak.ledger.jobs
@@ -495,7 +499,9 @@ def report(
     last = Counter(job.last_status or "never seen" for job in jobs if job.state == "pending")
     for status, count in sorted(last.items()):
         print(_row(f"  last seen {status}", count))
-    print(_row("doubled (a second job for one submission)", doubled))
+    print(_row("doubled (a second job for one submission)", doubled.total()))
+    for description, count in sorted(doubled.items()):
+        print(_row(f"  {description[:42]}", count))
     print(_row("results from before the Redis kill, same", f"{reread[0]}/{reread[1]}"))
     print(_row("  AOF size at the kill (MB)", f"{soak.aof_at_kill / 1e6:.1f}"))
     print(_row("every succeeded result, read at the end", f"{at_end[0]}/{at_end[1]}"))
