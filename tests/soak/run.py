@@ -41,7 +41,9 @@ from typing import Any
 import numpy as np
 import requests
 from redis import Redis
-from rq import Worker
+from rq import Queue, Worker
+from rq.intermediate_queue import IntermediateQueue
+from rq.registry import StartedJobRegistry
 
 from tests.support.bodies import rips_job
 from tests.support.ports import free_port
@@ -405,6 +407,26 @@ class Soak:
             same += answer.status_code == 200 and digest(answer.json()) == expected
         return same, len(results)
 
+    def where_stuck(self) -> Counter[str]:
+        """Where each stuck job is in RQ's bookkeeping: on the queue, in the intermediate queue
+        (taken by a worker that did not get to start it), in the started registry (running
+        on a worker, alive or not) or nowhere."""
+        connection = Redis.from_url(self.stack.redis_url)
+        queue = Queue(self.args.queue, connection=connection)
+        places = {
+            "on the queue": set(queue.get_job_ids()),
+            "in the intermediate queue": set(
+                IntermediateQueue(queue.key, connection=connection).get_job_ids()
+            ),
+            "in the started registry": set(StartedJobRegistry(queue=queue).get_job_ids()),
+        }
+        found: Counter[str] = Counter()
+        for job in self.ledger.pending():
+            assert job.location is not None
+            job_id = job.location.rsplit("/", 1)[-1]
+            found[next((p for p, ids in places.items() if job_id in ids), "nowhere")] += 1
+        return found
+
     def doubled(self) -> Counter[str]:
         """Jobs in Redis that none of our submissions was answered with (a retried submission
         that made a second job), by their description."""
@@ -463,6 +485,7 @@ def parse(argv: list[str] | None) -> argparse.Namespace:
         "--driver-memory-mb", type=int, default=3072, help="RLIMIT_AS of this process"
     )
     parser.add_argument("--seed", type=int, default=2026)
+    parser.add_argument("--queue", default="soak", help="the stack's queue (LACUNA_QUEUE)")
     parser.add_argument("--keep", action="store_true", help="keep the data directory")
     return parser.parse_args(argv)
 
@@ -499,6 +522,8 @@ def report(
     last = Counter(job.last_status or "never seen" for job in jobs if job.state == "pending")
     for status, count in sorted(last.items()):
         print(_row(f"  last seen {status}", count))
+    for place, count in sorted(soak.where_stuck().items()):
+        print(_row(f"  {place}", count))
     print(_row("doubled (a second job for one submission)", doubled.total()))
     for description, count in sorted(doubled.items()):
         print(_row(f"  {description[:42]}", count))
@@ -541,6 +566,7 @@ def main(argv: list[str] | None = None) -> int:
         folder / "data",
         free_port(),
         workers=args.workers,
+        env={"LACUNA_QUEUE": args.queue},
         preexec=_cap_memory(args.stack_memory_mb),
         log=log,
     )
