@@ -38,7 +38,7 @@ from typing import IO
 from redis import Redis
 from redis.exceptions import RedisError
 
-__all__ = ["StackOptions", "default_data_dir", "redis_arguments", "run_stack"]
+__all__ = ["StackError", "StackOptions", "default_data_dir", "redis_arguments", "run_stack"]
 
 GRACE_S = 10.0
 """How long a child gets after SIGTERM before SIGKILL."""
@@ -106,6 +106,10 @@ def redis_arguments(data_dir: Path, socket_path: Path) -> list[str]:
         "--save",
         "",
     ]
+
+
+class StackError(RuntimeError):
+    """The stack cannot start: its data directory is taken, or its Redis does not answer."""
 
 
 def _child_setup() -> None:
@@ -215,7 +219,7 @@ def _lock(data_dir: Path) -> IO[bytes]:
         fcntl.flock(handle, fcntl.LOCK_EX | fcntl.LOCK_NB)
     except OSError:
         handle.close()
-        raise RuntimeError(f"another lacuna serve is using the data directory {data_dir}") from None
+        raise StackError(f"another lacuna serve is using the data directory {data_dir}") from None
     return handle
 
 
@@ -305,7 +309,7 @@ def run_stack(options: StackOptions) -> int:
                 ),
             )
             if not _wait_for_redis(stack.redis.launch(), redis_url, lambda: stopping):
-                raise RuntimeError(
+                raise StackError(
                     f"the embedded redis-server did not answer (see {data_dir / 'redis.log'})"
                 )
             print(f"data directory {data_dir} (append-only, fsync every second)", flush=True)
@@ -334,6 +338,9 @@ def run_stack(options: StackOptions) -> int:
         print(f"lacuna is up at {base}  (docs: {base}/v1/openapi.json)", flush=True)
         print("research use only: results are not for diagnosis or treatment decisions", flush=True)
         _supervise(stack, base, redis_url, lambda: stopping)
+    except StackError as error:
+        _say(f"{error}; stopping")
+        code = 1
     finally:
         signal.signal(signal.SIGINT, signal.SIG_IGN)
         signal.signal(signal.SIGTERM, signal.SIG_IGN)
