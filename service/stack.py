@@ -11,12 +11,12 @@ two stacks off one data directory.
 
 Supervision: a child that dies while the stack runs is started again: a worker as a new
 worker, Redis on the same data directory and socket (it reloads the AOF), gunicorn on the same
-address. A child is restarted at once; one that keeps dying within STABLE_S of its start waits
-longer each time (BACKOFF_S, doubled up to MAX_BACKOFF_S); one that lived STABLE_S is back to
-an immediate restart. Each
-restart is logged on stderr. Each child runs in its own session, so a Ctrl-C in the terminal
-reaches only this supervisor: only SIGINT or SIGTERM stop the stack, in order: HTTP first,
-then workers, then Redis.
+address; what the dead child left in its process group goes with it. A child is restarted at
+once; one that keeps dying within STABLE_S of its start waits longer each time (BACKOFF_S,
+doubled up to MAX_BACKOFF_S); one that lived STABLE_S is back to an immediate restart. Each
+death and restart is logged on stderr. Each child runs in its own session, so a Ctrl-C in the
+terminal reaches only this supervisor: only SIGINT or SIGTERM stop the stack, in order: HTTP
+first, then workers, then Redis.
 """
 
 import ctypes
