@@ -552,9 +552,7 @@ def report(
 def main(argv: list[str] | None = None) -> int:
     args = parse(argv)
     _cap_memory(args.driver_memory_mb)()
-    started = time.monotonic()
     folder = Path(tempfile.mkdtemp(prefix="lacuna-soak-"))
-    log = open(folder / "stack.log", "w")  # noqa: SIM115 (closed in finally)
 
     def out_of_time(signum: int, frame: FrameType | None) -> None:
         raise TimeoutError("the soak ran past its time limit")
@@ -562,66 +560,76 @@ def main(argv: list[str] | None = None) -> int:
     # A backstop behind the deadlines the loops check: a hang still ends, the stack stopped.
     signal.signal(signal.SIGALRM, out_of_time)
     signal.alarm(int(args.time_limit) + 120)
-    stack = ServedStack(
-        folder / "data",
-        free_port(),
-        workers=args.workers,
-        env={"LACUNA_QUEUE": args.queue},
-        preexec=_cap_memory(args.stack_memory_mb),
-        log=log,
-    )
-    soak = Soak(stack, args)
     ok = False
     try:
-        wait_ready(stack.base, workers=args.workers, seconds=120)
-        soak.note(f"stack up at {stack.base}, data in {stack.data_dir}, log {log.name}")
-        threads = [threading.Thread(target=soak.submit_all) for _ in range(args.clients)]
-        threads += [threading.Thread(target=soak.poll_all), threading.Thread(target=soak.chaos)]
-        for thread in threads:
-            thread.start()
-        for thread in threads[: args.clients]:
-            thread.join()
-        soak.note(f"all submitted after {time.monotonic() - started:.0f} s; draining")
-        soak.drain(120)
-        threads[-1].join(max(0.0, soak.deadline - time.monotonic()))  # chaos ends its plan
-        soak.halt.set()
-        for thread in threads:
-            thread.join(30)
-        # Look once more at what seemed lost: a 404 must hold with everything up.
-        for job in soak.ledger.jobs:
-            if job.state == "lost":
-                job.state = "pending"
-                soak._poll(requests.Session(), job)
-        succeeded = {
-            j.location: j.result
-            for j in soak.ledger.jobs
-            if j.state == "succeeded" and j.location and j.result
-        }
-        ok = report(
-            soak,
-            soak.reread(soak.before_redis_kill),
-            soak.reread(succeeded),
-            soak.doubled(),
-            time.monotonic() - started,
-        )
-        restarts = [line for line in stack.lines() if "lacuna serve:" in line]
-        print("the supervisor said:")
-        for line in restarts:
-            print("  " + line)
+        with open(folder / "stack.log", "w") as log:
+            stack = ServedStack(
+                folder / "data",
+                free_port(),
+                workers=args.workers,
+                env={"LACUNA_QUEUE": args.queue},
+                preexec=_cap_memory(args.stack_memory_mb),
+                log=log,
+            )
+            soak = Soak(stack, args)
+            try:
+                ok = _run(soak, log.name)
+            finally:
+                soak.halt.set()
+                left = stack.stop(signal.SIGTERM)
+            if left:
+                print(f"processes left after the stack stopped: {sorted(left)}", file=sys.stderr)
+                ok = False
     finally:
         signal.alarm(0)
-        soak.halt.set()
-        left = stack.stop(signal.SIGTERM)
-        log.close()
-        if left:
-            print(f"processes left after the stack stopped: {sorted(left)}", file=sys.stderr)
-            ok = False
         if args.keep:
             print(f"kept {folder}")
         else:
             shutil.rmtree(folder, ignore_errors=True)
     print("soak passed" if ok else "soak FAILED")
     return 0 if ok else 1
+
+
+def _run(soak: Soak, log_name: str) -> bool:
+    """Submit, kill, drain and count; True if the soak passed."""
+    started = time.monotonic()
+    stack, args = soak.stack, soak.args
+    wait_ready(stack.base, workers=args.workers, seconds=120)
+    soak.note(f"stack up at {stack.base}, data in {stack.data_dir}, log {log_name}")
+    threads = [threading.Thread(target=soak.submit_all) for _ in range(args.clients)]
+    threads += [threading.Thread(target=soak.poll_all), threading.Thread(target=soak.chaos)]
+    for thread in threads:
+        thread.start()
+    for thread in threads[: args.clients]:
+        thread.join()
+    soak.note(f"all submitted after {time.monotonic() - started:.0f} s; draining")
+    soak.drain(120)
+    threads[-1].join(max(0.0, soak.deadline - time.monotonic()))  # chaos ends its plan
+    soak.halt.set()
+    for thread in threads:
+        thread.join(30)
+    # Look once more at what seemed lost: a 404 must hold with everything up.
+    for job in soak.ledger.jobs:
+        if job.state == "lost":
+            job.state = "pending"
+            soak._poll(requests.Session(), job)
+    succeeded = {
+        j.location: j.result
+        for j in soak.ledger.jobs
+        if j.state == "succeeded" and j.location and j.result
+    }
+    ok = report(
+        soak,
+        soak.reread(soak.before_redis_kill),
+        soak.reread(succeeded),
+        soak.doubled(),
+        time.monotonic() - started,
+    )
+    print("the supervisor said:")
+    for line in stack.lines():
+        if "lacuna serve:" in line:
+            print("  " + line)
+    return ok
 
 
 if __name__ == "__main__":
