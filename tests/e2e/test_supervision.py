@@ -19,6 +19,7 @@ from rq import Worker
 
 from tests.support.bodies import rips_job
 from tests.support.ports import free_port
+from tests.support.processes import descendants, running
 from tests.support.stack import wait_ready
 from tests.support.supervised import ServedStack
 from tests.support.synthetic import noisy_circle
@@ -100,9 +101,13 @@ def test_killed_workers_and_gunicorn_are_restarted(tmp_path: Path) -> None:
         assert prober.failures == [] and prober.answered > 0
         assert stack.count("was killed by SIGKILL; restarting") == 2
 
+        # A killed gunicorn master leaves its workers holding the port: they go with it.
+        orphans = descendants(first_http[0])
+        assert orphans
         stack.kill("http")
         stack.wait_for_lines("HTTP answering again", 1, 60)
         assert stack.children("http") != first_http
+        assert not any(running(pid) for pid in orphans)
         _hexagon_h2(requests.post(stack.base + "/v1/jobs", json=rips_job(max_dim=2), headers=WAIT))
     finally:
         left = stack.stop(signal.SIGINT)

@@ -63,6 +63,9 @@ API_KILL = 0.75
 
 IN_FLIGHT_S = 60.0
 
+GATE_S = 2.0
+"""Longest a client holds a submission back because too many jobs are in flight."""
+
 _RETRIED = {502, 503, 504}
 _ENDED = {"succeeded", "failed", "cancelled"}
 
@@ -177,7 +180,7 @@ class Ledger:
     jobs: list[Job]
     lock: threading.Lock = field(default_factory=threading.Lock)
     accepted: int = 0
-    retried_submissions: int = 0
+    retried: Counter[str] = field(default_factory=Counter)  # why submissions were sent again
 
     def pending(self) -> list[Job]:
         with self.lock:
@@ -223,10 +226,14 @@ class Soak:
             if index >= len(self.bodies) or time.monotonic() > self.deadline:
                 return
             # Closed loop: as many jobs in flight as the workers can take, so the run (and
-            # the faults spread over it) lasts as long as the work does.
+            # the faults spread over it) lasts as long as the work does; but a client waits at
+            # most GATE_S, so submissions go on while the API is down (and are sent again).
+            gate = time.monotonic() + GATE_S
             while self.ledger.in_flight(time.monotonic()) >= self.args.in_flight:
                 if self.halt.wait(0.05) or time.monotonic() > self.deadline:
                     return
+                if time.monotonic() > gate:
+                    break
             self._submit(session, index)
 
     def _submit(self, session: requests.Session, index: int) -> None:
@@ -242,11 +249,12 @@ class Soak:
                     headers={"Idempotency-Key": job.key},
                     timeout=(5, 90),
                 )
-            except requests.RequestException:
-                answer = None
+                why = str(answer.status_code)
+            except requests.RequestException as error:
+                answer, why = None, type(error).__name__
             if answer is None or answer.status_code in _RETRIED:
                 with self.ledger.lock:
-                    self.ledger.retried_submissions += 1
+                    self.ledger.retried[why] += 1
                 time.sleep(delay)
                 delay = min(delay * 2, 5.0)
                 continue
@@ -510,7 +518,9 @@ def report(
     print(f"|{'-' * 46}|{'-' * 12}|")
     print(_row("jobs planned", len(jobs)))
     print(_row("submitted (accepted by the API)", soak.ledger.accepted))
-    print(_row("  submissions sent again (connection, 503)", soak.ledger.retried_submissions))
+    print(_row("  submissions sent again, same key", soak.ledger.retried.total()))
+    for why, count in sorted(soak.ledger.retried.items()):
+        print(_row(f"    after {why}", count))
     not_accepted = states["not accepted"] + states["unsent"]
     print(_row("not accepted (none before the time limit)", not_accepted))
     print(_row("succeeded", states["succeeded"]))
