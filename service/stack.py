@@ -11,7 +11,7 @@ two stacks off one data directory.
 
 Supervision: a child that dies while the stack runs is started again: a worker as a new
 worker, Redis on the same data directory and socket (it reloads the AOF), gunicorn on the same
-address; what the dead child left in its process group goes with it. A child is restarted at
+address; what the dead child left in its process group is stopped. A child is restarted at
 once; one that keeps dying within STABLE_S of its start waits longer each time (BACKOFF_S,
 doubled up to MAX_BACKOFF_S); one that lived STABLE_S is back to an immediate restart. Each
 death and restart is logged on stderr. Each child runs in its own session, so a Ctrl-C in the
@@ -167,12 +167,15 @@ class _Child:
         return self.process
 
     def schedule_restart(self, code: int, now: float) -> None:
-        """Note a death, and end what the dead child left behind in its process group (a
-        gunicorn master's workers would keep the port, a worker's compute child its job);
-        the next start waits longer the more often it died young."""
+        """Note a death, and stop what the dead child left behind in its process group; the
+        next start waits longer the more often it died young.
+
+        SIGTERM, not SIGKILL: a dead gunicorn master's workers then close the port at once
+        but finish the requests they hold (a submission answered, not cut off after it was
+        queued); a worker's compute child has its own death signal."""
         if self.process is not None:
             try:
-                os.killpg(self.process.pid, signal.SIGKILL)  # its own group: _child_setup
+                os.killpg(self.process.pid, signal.SIGTERM)  # its own group: _child_setup
             except OSError:  # nothing left in it
                 pass
         self.quick_deaths = self.quick_deaths + 1 if now - self.started_at < STABLE_S else 0
