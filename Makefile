@@ -8,7 +8,7 @@ HASH   := $(shell cat pyproject.toml docker/constraints.txt | cksum | cut -d' ' 
 STAMP  := $(VENV)/.installed-$(HASH)
 DEV    := $(VENV)/.installed-dev-$(HASH)
 
-.PHONY: install install-dev browser serve test lint bench estimates fuzz openapi lock clean
+.PHONY: install install-dev browser serve test lint bench estimates fuzz soak openapi lock clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -65,6 +65,14 @@ estimates: install-dev
 # wall clock capped (tests/fuzz/run.py; it prints where its reports are).
 fuzz: install-dev
 	$(BIN)/python -m tests.fuzz.run
+
+# A bounded soak of a real stack with its own Redis and data directory on 127.0.0.1 while
+# workers, Redis and gunicorn are SIGKILLed (tests/soak/run.py; about 5 minutes on 2 cores).
+# RLIMIT_AS caps each process (set inside), `timeout` the whole run. SOAK_ARGS="--jobs 150"
+# for a short one.
+SOAK_ARGS ?=
+soak: install-dev
+	timeout 900 $(BIN)/python -m tests.soak.run $(SOAK_ARGS)
 
 # The committed OpenAPI document and the README's example picture, both generated.
 openapi: install-dev

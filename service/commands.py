@@ -79,6 +79,7 @@ def _serve(args: argparse.Namespace, settings: Settings) -> int:
             queue=settings.queue,
             # a waiting request must not be killed as a stuck worker
             http_timeout_s=settings.max_wait_s + 60,
+            data_dir=args.data_dir,
         )
     )
 
@@ -209,6 +210,13 @@ def build_parser(settings: Settings) -> argparse.ArgumentParser:
         "--redis",
         default=settings.redis_url,
         help="shared Redis URL (LACUNA_REDIS_URL); unset: embedded Redis",
+    )
+    serve.add_argument(
+        "--data-dir",
+        type=Path,
+        default=settings.data_dir,
+        help="folder the embedded Redis keeps its append-only file in (LACUNA_DATA_DIR); "
+        "unset: $XDG_STATE_HOME/lacuna or ~/.local/state/lacuna",
     )
     serve.add_argument("--host", default=settings.host, help="listen address (LACUNA_HOST)")
     serve.add_argument("--port", type=int, default=settings.port, help="port (LACUNA_PORT)")

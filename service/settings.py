@@ -1,5 +1,6 @@
 """Settings of the API process: one typed object, read from ``LACUNA_*`` environment variables."""
 
+from pathlib import Path
 from typing import Literal
 
 from pydantic import Field
@@ -213,4 +214,12 @@ class Settings(BaseSettings):
         description="/readyz counts a registered worker as live only if its last heartbeat is "
         "at most this old. The workers read the same variable (LACUNA_DEAD_AFTER_S): a worker "
         "silent this long is dead to them too, and its running job is requeued or failed.",
+    )
+
+    # Durability of `lacuna serve`
+    data_dir: Path | None = Field(
+        None,
+        description="Folder of the embedded Redis's append-only file (`lacuna serve` without a "
+        "Redis URL): jobs, results, feature specs and Idempotency-Keys survive restarts there. "
+        "Unset: $XDG_STATE_HOME/lacuna, else ~/.local/state/lacuna.",
     )

@@ -1,6 +1,7 @@
 """docker/: no Docker engine runs here, so the files are checked for what can be checked
 without one: compose.yaml parses (YAML, PyYAML as the reference parser), names redis, the API
-and two workers with health checks wired to /readyz, and every command it runs is one the
+and two workers with health checks wired to /readyz, publishes the API on loopback only, runs
+Redis with its append-only file on a named volume, and every command it runs is one the
 lacuna command line accepts; the Dockerfile's base is pinned, it copies every package the
 project installs, installs the server and runs as a non-root user."""
 
@@ -15,6 +16,7 @@ import yaml
 from lacuna_client.cli import PROGRAMS
 from service.commands import build_parser
 from service.settings import Settings
+from service.stack import redis_arguments
 from workers.runner import worker_parser
 from workers.settings import WorkerSettings
 
@@ -57,8 +59,73 @@ def test_health_checks_are_wired_to_readyz(compose: dict[str, Any]) -> None:
     assert any("/readyz" in part for part in api["healthcheck"]["test"])
     port = api["command"][api["command"].index("--port") + 1]
     assert f"127.0.0.1:{port}/readyz" in " ".join(api["healthcheck"]["test"])
-    assert api["ports"] == [f"{port}:{port}"]
+    assert api["ports"] == [f"127.0.0.1:{port}:{port}"]
     assert "redis-cli" in compose["services"]["redis"]["healthcheck"]["test"]
+
+
+def _published_address(port: str) -> tuple[str, str, str]:
+    """(host ip, host port, container port) of a ports entry in the short syntax of the
+    Compose Specification, "[HOST:]CONTAINER" or "HOST_IP:HOST_PORT:CONTAINER"; an entry
+    without a host ip is published on every interface (0.0.0.0)."""
+    parts = port.rsplit(":", 2)
+    if len(parts) == 3:
+        return parts[0], parts[1], parts[2]
+    if len(parts) == 2:
+        return "0.0.0.0", parts[0], parts[1]
+    return "0.0.0.0", parts[0], parts[0]
+
+
+def test_every_published_port_is_on_loopback(compose: dict[str, Any]) -> None:
+    published = [p for s in compose["services"].values() for p in s.get("ports", [])]
+    assert published, "the API publishes its port"
+    for port in published:
+        assert isinstance(port, str), "the short syntax, so the host ip is visible in one place"
+        assert _published_address(port)[0] == "127.0.0.1", port
+    # The parser above must see what Compose sees: a bare "8000:8000" is all interfaces.
+    assert _published_address("8000:8000")[0] == "0.0.0.0"
+    assert _published_address("8000")[0] == "0.0.0.0"
+
+
+def _options(arguments: list[str]) -> dict[str, str]:
+    """redis-server's command-line options ("--name value" pairs, as redis.conf directives)."""
+    found: dict[str, str] = {}
+    for i, word in enumerate(arguments):
+        if word.startswith("--"):
+            found[word[2:]] = arguments[i + 1]
+    return found
+
+
+def test_redis_keeps_an_append_only_file_on_a_named_volume(compose: dict[str, Any]) -> None:
+    redis = compose["services"]["redis"]
+    assert redis["command"][0] == "redis-server"
+    options = _options(redis["command"][1:])
+    # redis.conf: appendonly yes turns the AOF on; appendfsync everysec fsyncs once a second.
+    assert options["appendonly"] == "yes"
+    assert options["appendfsync"] == "everysec"
+    assert options["dir"] == "/data"
+    volume, _, target = redis["volumes"][0].partition(":")
+    assert target == options["dir"]
+    assert volume in compose["volumes"], "a named volume (a bare path would be a bind mount)"
+    assert redis["restart"] == "unless-stopped"
+
+
+def test_the_embedded_redis_persists_like_the_container(
+    compose: dict[str, Any], tmp_path: Path
+) -> None:
+    embedded = _options(redis_arguments(tmp_path, tmp_path / "redis.sock"))
+    container = _options(compose["services"]["redis"]["command"][1:])
+    for option in ("appendonly", "appendfsync", "save"):
+        assert embedded[option] == container[option], option
+    assert embedded["dir"] == str(tmp_path)
+
+
+def test_the_image_names_a_data_directory_settings_read(monkeypatch: pytest.MonkeyPatch) -> None:
+    text = (DOCKER / "Dockerfile").read_text()
+    found = re.search(r"^ENV LACUNA_DATA_DIR=(\S+)$", text, re.MULTILINE)
+    assert found is not None
+    assert found.group(1).startswith("/home/lacuna/"), "inside the home of the image's user"
+    monkeypatch.setenv("LACUNA_DATA_DIR", found.group(1))
+    assert Settings().data_dir == Path(found.group(1))
 
 
 def test_every_command_is_one_the_cli_accepts(compose: dict[str, Any]) -> None:

@@ -7,6 +7,7 @@ import os
 import signal
 import subprocess
 import uuid
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -29,10 +30,11 @@ pytestmark = [pytest.mark.e2e, pytest.mark.slow]
 JOB = rips_job(max_dim=2)  # the regular hexagon
 
 
-def test_embedded_stack_answers_and_stops_cleanly() -> None:
+def test_embedded_stack_answers_and_stops_cleanly(tmp_path: Path) -> None:
     port = free_port()
     env = {k: v for k, v in os.environ.items() if k != "LACUNA_REDIS_URL"}
     env["LACUNA_PORT"] = str(port)
+    env["LACUNA_DATA_DIR"] = str(tmp_path / "data")  # never the user's own state folder
     process = subprocess.Popen([LACUNA, "serve"], env=env, stdout=subprocess.PIPE)
     base = f"http://127.0.0.1:{port}"
     try:
@@ -55,6 +57,8 @@ def test_embedded_stack_answers_and_stops_cleanly() -> None:
         assert f"lacuna is up at http://127.0.0.1:{port}" in printed
         assert "not for diagnosis" in printed
         assert printed.rstrip().endswith("lacuna stopped")  # the orderly shutdown ran
+        assert f"data directory {tmp_path / 'data'}" in printed
+        assert (tmp_path / "data" / "appendonly.aof").stat().st_size > 0
     finally:
         if process.poll() is None:
             process.kill()
