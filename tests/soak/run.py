@@ -23,6 +23,7 @@ import itertools
 import json
 import os
 import random
+import re
 import resource
 import shutil
 import signal
@@ -301,7 +302,7 @@ class Soak:
                         job.state, job.result = "succeeded", digest(result.json())
             elif status["status"] in _ENDED:
                 problem = status.get("problem") or {}
-                name = str(problem.get("type", status["status"])).rsplit("/", 1)[-1]
+                name = _kind_of(str(problem.get("type", status["status"])))
                 with self.ledger.lock:
                     job.state, job.reason = "failed", f"{name}: {problem.get('title', '')}"
         except (requests.RequestException, ValueError):
@@ -452,13 +453,18 @@ class Soak:
         return described
 
 
+def _kind_of(problem_type: str) -> str:
+    """The last word of a problem type, a URL or a URN ("...:worker-lost")."""
+    return re.split(r"[/:]", problem_type)[-1]
+
+
 def _seconds(took: float | None) -> str:
     return "never (within 120 s)" if took is None else f"{took:.2f} s"
 
 
 def _problem_name(answer: requests.Response) -> str:
     try:
-        return str(answer.json().get("type", "")).rsplit("/", 1)[-1]
+        return _kind_of(str(answer.json().get("type", "")))
     except ValueError:
         return ""
 
