@@ -498,7 +498,7 @@ def _paths() -> dict[str, Any]:
                 "answer 202 with the job, whose status shows progress, unless Prefer: wait "
                 "says otherwise.",
                 "operationId": "submitDistances",
-                "parameters": [_PREFER_WAIT],
+                "parameters": [_PREFER_WAIT, _IDEMPOTENCY_KEY],
                 "requestBody": {
                     "required": True,
                     "content": _json_examples("DistanceRequest", _DISTANCE_EXAMPLES),
@@ -513,12 +513,13 @@ def _paths() -> dict[str, Any]:
                         },
                         _JOB_LINKS,
                     ),
-                    "400": _problem("The body is not JSON."),
+                    "400": _problem("The body is not JSON, or the Idempotency-Key is unusable."),
                     "413": _problem("The body is above the size limit."),
                     "415": _problem("The Content-Type is not application/json."),
                     "422": _problem(
                         "The request is invalid, or a job id is unknown, unfinished or failed; "
-                        "`errors` points at each field. Or the matrix is estimated to cost "
+                        "`errors` points at each field. Or the Idempotency-Key was used with "
+                        "another request. Or the matrix is estimated to cost "
                         "more than the limits allow (too-costly, with `estimate`)."
                     ),
                     "503": _UNAVAILABLE,

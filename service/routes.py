@@ -189,6 +189,8 @@ def _answer(job: Job, wait: int) -> tuple[Response, int, dict[str, str]]:
     headers = {"Location": f"/v1/jobs/{job.id}"}
     _release_large_parse()  # the body's arrays are on the queue; waiting costs no memory
     result = _waited(job, wait)
+    if result is None and queue.state(job) is JobState.succeeded:
+        result = queue.result(job)  # a retried Idempotency-Key naming a job that has ended
     if result is not None:
         return _result_response(result), 200, headers
     return jsonify(queue.status(job).model_dump(mode="json")), 202, headers
@@ -302,7 +304,8 @@ def feature_spec(spec_id: str) -> Response:
 
 @v1.post("/distances")
 def submit_distances() -> tuple[Response, int, dict[str, str]]:
-    """Queue a distance matrix; small ones are waited for and answered with 200."""
+    """Queue a distance matrix; small ones are waited for and answered with 200. An
+    ``Idempotency-Key`` header makes a retried submission answer the first one's job."""
     state = _state()
     distance_request = DistanceRequest.model_validate(_json_body())
     errors = distance_request.field_errors(state.limits)
@@ -315,7 +318,7 @@ def submit_distances() -> tuple[Response, int, dict[str, str]]:
     submission = distance_submission(distance_request, results)
     items = items_pointer(distance_request)
     refuse_if_too_costly(estimate_of(submission, state.settings, items=items), state.settings)
-    job = state.queue.submit(submission, owner)
+    job = state.queue.submit(submission, owner, _idempotency_key())
     wait = _requested_wait()
     count = submission.task.count if isinstance(submission.task, DistanceTask) else 0
     if _WAIT.search(request.headers.get("Prefer", "")) is None and (

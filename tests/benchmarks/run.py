@@ -29,6 +29,7 @@ import signal
 import statistics
 import subprocess
 import sys
+import tempfile
 import time
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
@@ -125,6 +126,9 @@ class Stack:
         port = free_port()
         env = {k: v for k, v in os.environ.items() if k != "LACUNA_REDIS_URL"}
         env["LACUNA_PORT"] = str(port)
+        # A data directory of its own: never the user's (nor its lock), gone after the run.
+        self.data_dir = tempfile.TemporaryDirectory(prefix="lacuna-bench-")
+        env["LACUNA_DATA_DIR"] = self.data_dir.name
         lacuna_command = str(Path(sys.executable).with_name("lacuna"))
         self.process = subprocess.Popen(
             [lacuna_command, "serve"], env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL
@@ -144,6 +148,7 @@ class Stack:
     def __exit__(self, *exc: object) -> None:
         self.process.send_signal(signal.SIGTERM)
         self.process.wait(30)
+        self.data_dir.cleanup()
 
 
 def _job(points: np.ndarray) -> dict[str, Any]:

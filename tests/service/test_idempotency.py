@@ -1,4 +1,5 @@
-"""Idempotency-Key on POST /v1/jobs: a retried submission answers the first one's job.
+"""Idempotency-Key on POST /v1/jobs and /v1/distances: a retried submission answers the first
+one's job.
 
 The behaviour checked is the one the IETF httpapi draft "The Idempotency-Key HTTP Header
 Field" describes (from memory): the same key with the same request is the same operation, the
@@ -16,7 +17,7 @@ import pytest
 from flask.testing import FlaskClient
 
 from service.queue import IDEMPOTENCY_PREFIX
-from tests.support.api import JOBS, post, problem_of, stored_jobs
+from tests.support.api import JOBS, WAIT, post, problem_of, stored_jobs
 from tests.support.bodies import rips_job
 from workers.spec.arrays import to_npy_bytes
 from workers.spec.problems import PROBLEM_TYPE
@@ -130,3 +131,33 @@ def test_an_unusable_key_is_400(client: FlaskClient, key: str) -> None:
     assert problem["type"] == PROBLEM_TYPE + "idempotency-key-invalid"
     assert "Idempotency-Key" in problem["detail"]
     assert stored_jobs(client) == 0
+
+
+def test_distances_take_the_key_too(client: FlaskClient) -> None:
+    # Without a worker the small matrix is waited for in vain (Prefer: wait=0 answers at once).
+    body = {"diagrams": [[[0.0, 1.0]], [[0.0, 2.0]]], "metric": "bottleneck"}
+    key = str(uuid.uuid4())
+    headers = {"Idempotency-Key": key, "Prefer": "wait=0"}
+    first = post(client, "/v1/distances", body, headers=headers)
+    again = post(client, "/v1/distances", body, headers=headers)
+    assert first.status_code == again.status_code == 202
+    assert first.get_json()["job_id"] == again.get_json()["job_id"]
+    assert stored_jobs(client) == 1
+    other = dict(body, metric="wasserstein")
+    problem = problem_of(post(client, "/v1/distances", other, headers=headers), 422)
+    assert problem["type"] == PROBLEM_TYPE + "idempotency-key-reused"
+
+
+def test_a_key_retried_after_its_job_succeeded_answers_the_result(
+    served_client: FlaskClient,
+) -> None:
+    # A retry (a lost answer, say) gets what an answer in time would have been: the result.
+    key = str(uuid.uuid4())
+    body = rips_job([[0.0, 0.0], [3.0, 4.0]])
+    first = post(served_client, JOBS, body, headers={"Idempotency-Key": key, **WAIT})
+    assert first.status_code == 200, first.get_data(as_text=True)
+    again = post(served_client, JOBS, body, headers={"Idempotency-Key": key})
+    assert again.status_code == 200
+    assert again.get_json() == first.get_json()
+    # 3-4-5 right triangle (Pythagoras): the two points merge at distance 5.
+    assert again.get_json()["diagrams"][0]["pairs"] == [[0.0, 5.0], [0.0, None]]
