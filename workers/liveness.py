@@ -33,7 +33,7 @@ from rq.registry import StartedJobRegistry
 from rq.utils import as_text, current_timestamp, now, utcformat
 from rq.worker import BaseWorker
 
-from workers.reaper import Reaped, reap_claim, reap_lapsed, reaper_lock_key
+from workers.reaper import Reaped, reap_claim, reap_lapsed, reap_stranded, reaper_lock_key
 from workers.reconnect import LOST, Backoff
 from workers.settings import WorkerSettings
 
@@ -131,7 +131,8 @@ class Heartbeat(threading.Thread):
                 again.execute()
 
     def reap(self) -> None:
-        """Reap lapsed claims on each queue, if no other worker did within the interval."""
+        """Reap lapsed claims and stranded jobs (``workers.reaper``) on each queue, if no other
+        worker did within the interval."""
         settings = self._settings
         for queue in self._queues:
             lock_ms = max(1, int(settings.heartbeat_interval_s * 1000))
@@ -141,6 +142,9 @@ class Heartbeat(threading.Thread):
                 continue
             why = f"no heartbeat for over {settings.dead_after_s} s"
             self.reaped.extend(reap_lapsed(queue, settings.lost_job_retries, why))
+            self.reaped.extend(
+                reap_stranded(queue, settings.lost_job_retries, settings.dead_after_s)
+            )
 
 
 def _process_gone(pid: int) -> bool:

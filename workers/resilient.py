@@ -127,8 +127,9 @@ class ResilientWorker(SimpleWorker):
             log.warning("worker %s: maintenance skipped, Redis unreachable (%s)", self.name, error)
 
     def clean_registries(self) -> None:
-        """RQ's registry maintenance without the StartedJobRegistry, which the reaper owns
-        (RQ's own cleanup would fail a lapsed job without a retry or a reason)."""
+        """RQ's registry maintenance without the StartedJobRegistry and the intermediate queue,
+        which the reaper owns (RQ's own cleanup of either fails the job without a retry or a
+        reason)."""
         for queue in self.queues:
             if not queue.acquire_maintenance_lock():
                 continue
@@ -140,7 +141,6 @@ class ResilientWorker(SimpleWorker):
             ):
                 registry(queue=queue).cleanup()
             worker_registration.clean_worker_registry(queue)
-            queue.intermediate_queue.cleanup(self, queue)
             queue.release_maintenance_lock()
         self.last_cleaned_at = now()  # type: ignore[assignment]  # RQ annotates it None
 
