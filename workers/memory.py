@@ -82,11 +82,13 @@ _FREE = _glibc_function("free")
 if _MALLOC_TRIM is not None:
     _MALLOC_TRIM.argtypes = [ctypes.c_size_t]
     _MALLOC_TRIM.restype = ctypes.c_int
-if _MALLOC_INFO is not None and _OPEN_MEMSTREAM is not None and _FCLOSE is not None:
+if _OPEN_MEMSTREAM is not None:
     _OPEN_MEMSTREAM.argtypes = [ctypes.POINTER(ctypes.c_void_p), ctypes.POINTER(ctypes.c_size_t)]
     _OPEN_MEMSTREAM.restype = ctypes.c_void_p
+if _MALLOC_INFO is not None:
     _MALLOC_INFO.argtypes = [ctypes.c_int, ctypes.c_void_p]
     _MALLOC_INFO.restype = ctypes.c_int
+if _FCLOSE is not None:
     _FCLOSE.argtypes = [ctypes.c_void_p]
 if _FREE is not None:
     _FREE.argtypes = [ctypes.c_void_p]
@@ -94,9 +96,8 @@ if _FREE is not None:
 
 def _malloc_info() -> str:
     """glibc's malloc_info(3) report (XML, one <heap> per arena); "" where there is none."""
-    if None in (_MALLOC_INFO, _OPEN_MEMSTREAM, _FCLOSE, _FREE):
+    if _MALLOC_INFO is None or _OPEN_MEMSTREAM is None or _FCLOSE is None or _FREE is None:
         return ""
-    assert _MALLOC_INFO and _OPEN_MEMSTREAM and _FCLOSE and _FREE
     buffer, size = ctypes.c_void_p(), ctypes.c_size_t()
     stream = _OPEN_MEMSTREAM(ctypes.byref(buffer), ctypes.byref(size))
     if not stream:
