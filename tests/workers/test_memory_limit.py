@@ -196,7 +196,7 @@ def test_the_worker_ceiling_lowers_the_jobs_limit() -> None:
 
 def _random_diagram(n: int, rng: np.random.Generator) -> np.ndarray:
     births = rng.uniform(size=n)
-    return np.c_[births, births + rng.uniform(size=n)]
+    return np.column_stack((births, births + rng.uniform(size=n)))
 
 
 def _matrix_on_two_processes(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
