@@ -248,14 +248,27 @@ class _Tags:
         self.hyperedge = prefix + "hyperedge"
 
 
+_DECLARED_ENCODING = re.compile(rb"""<\?xml[^>]*?\sencoding\s*=\s*["']([^"']{1,40})["']""")
+
+
 def _events(stream: IO[bytes]) -> Iterator[tuple[str, Element]]:
     """defusedxml's iterparse with DTDs refused, its errors as refusals at /data."""
+    start = stream.tell()
     try:
         yield from iterparse(stream, events=("start", "end"), forbid_dtd=True)
     except DefusedXmlException:
         raise _refused(
             "the GraphML file has a DOCTYPE or ENTITY declaration; GraphML needs none, and "
             "they are refused"
+        ) from None
+    except (ValueError, LookupError):
+        # DefusedXmlException is a ValueError, so it goes first. expat reads no multi-byte but
+        # UTF-8/16 (ValueError); a name Python has no codec for is a LookupError.
+        stream.seek(start)
+        declared = _DECLARED_ENCODING.match(stream.read(200))
+        name = declared.group(1).decode("ascii", "replace") if declared else "declared"
+        raise _refused(
+            f"the GraphML file's encoding {name!r} is not supported; send it as UTF-8"
         ) from None
     except ParseError as error:
         text = re.sub(r"<[^<>]*>", "...", str(error))

@@ -505,6 +505,31 @@ UPLOADS = [
             "data": b'<?xml version="1.0"?><!DOCTYPE graphml><graphml/>',
         },
     ),
+    # XML 1.0 section 4.3.3: a processor need read only UTF-8 and UTF-16; an encoding the
+    # parser cannot read (expat refuses multi-byte ones, an unknown name has no codec) is
+    # refused at the file, like any other unreadable GraphML.
+    Case(
+        "graphml in a multi-byte encoding",
+        "POST",
+        "/v1/jobs",
+        422,
+        "/data",
+        parts={
+            "request": GRAPH_REQUEST,
+            "data": graphml(node("a"), GRAPHML.replace("UTF-8", "shift_jis")),
+        },
+    ),
+    Case(
+        "graphml in an unknown encoding",
+        "POST",
+        "/v1/jobs",
+        422,
+        "/data",
+        parts={
+            "request": GRAPH_REQUEST,
+            "data": graphml(node("a"), GRAPHML.replace("UTF-8", "bogus-enc")),
+        },
+    ),
     Case(
         "graphml edge to no node",
         "POST",
