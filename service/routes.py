@@ -26,7 +26,7 @@ from service.pages import job_page, wants_html
 from service.pictures import draw
 from service.queue import Job
 from service.quotas import quotas_of
-from service.submissions import distance_submission, job_submission
+from service.submissions import Submission, distance_submission, job_submission
 from service.uploads import decode_array, multipart_parts, stream_size
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, JobState
 from workers.spec.capabilities import Caller, Limits, TenantUsage
@@ -187,7 +187,7 @@ def _answer(job: Job, wait: int) -> tuple[Response, int, dict[str, str]]:
     status; Location names the job either way."""
     queue = _state().queue
     headers = {"Location": f"/v1/jobs/{job.id}"}
-    _release_large_parse()  # the body's arrays are on the queue; waiting costs no memory
+    _release_large_parse()  # the callers hold only the Job: the body is gone by now
     result = _waited(job, wait)
     if result is None and queue.state(job) is JobState.succeeded:
         result = queue.result(job)  # a retried Idempotency-Key naming a job that has ended
@@ -258,22 +258,38 @@ def submit_job() -> tuple[Response, int, dict[str, str]]:
     part: .npy, TIFF or PNG holding the array of an image or mask input, or GraphML holding a
     graph. An ``Idempotency-Key`` header makes a retried submission answer the first one's
     job."""
-    state = _state()
     wait = _requested_wait()
+    return _answer(_queued_job(), wait)
+
+
+def _queued_job() -> Job:
+    """The request's job, checked and queued. Only the Job comes back: the body, its
+    arrays and its submission die here, before any wait (the large-parse slot that bounds
+    their memory is given back then)."""
+    state = _state()
     job_request, data, uploaded = _job_request()
-    errors = request_errors(job_request, state.limits, data, uploaded)
-    if errors:
-        raise RequestInvalid(errors)
+    submission, estimate = _checked_job_submission(job_request, data, uploaded)
     if wants_npy(request) and not job_request.features:  # refused before it is queued
         raise NotAcceptable(
             f"a job without features has no vector to send as {NPY_MEDIA_TYPE}; add features "
             "or ask for application/json"
         )
     key = _idempotency_key()
+    refuse_if_too_costly(estimate, state.settings)
+    return state.queue.submit(submission, owner_of(request), key)
+
+
+def _checked_job_submission(
+    job_request: JobRequest, data: InputData | None, uploaded: bool
+) -> tuple[Submission, CostEstimate]:
+    """A job request checked against the limits (RequestInvalid), as a submission with its
+    estimate."""
+    state = _state()
+    errors = request_errors(job_request, state.limits, data, uploaded)
+    if errors:
+        raise RequestInvalid(errors)
     submission = job_submission(job_request, data, uploaded)
-    refuse_if_too_costly(estimate_of(submission, state.settings, uploaded=uploaded), state.settings)
-    job = state.queue.submit(submission, owner_of(request), key)
-    return _answer(job, wait)
+    return submission, estimate_of(submission, state.settings, uploaded=uploaded)
 
 
 @v1.post("/feature-specs")
@@ -306,51 +322,30 @@ def feature_spec(spec_id: str) -> Response:
 def submit_distances() -> tuple[Response, int, dict[str, str]]:
     """Queue a distance matrix; small ones are waited for and answered with 200. An
     ``Idempotency-Key`` header makes a retried submission answer the first one's job."""
-    state = _state()
-    distance_request = DistanceRequest.model_validate(_json_body())
-    errors = distance_request.field_errors(state.limits)
-    if errors:
-        raise RequestInvalid(errors)
-    owner = owner_of(request)
-    results = None
-    if distance_request.job_ids is not None:
-        results = state.queue.results_of(distance_request.job_ids, owner, "/job_ids")
-    submission = distance_submission(distance_request, results)
-    items = items_pointer(distance_request)
-    refuse_if_too_costly(estimate_of(submission, state.settings, items=items), state.settings)
-    job = state.queue.submit(submission, owner, _idempotency_key())
-    wait = _requested_wait()
-    count = submission.task.count if isinstance(submission.task, DistanceTask) else 0
-    if _WAIT.search(request.headers.get("Prefer", "")) is None and (
-        count * (count - 1) // 2 <= state.settings.inline_distance_pairs
-    ):
-        wait = state.settings.max_wait_s
+    settings = _state().settings
+    asked = _WAIT.search(request.headers.get("Prefer", ""))
+    job, pairs = _queued_distances()
+    if asked is not None:
+        wait = min(int(asked.group(1)), settings.max_wait_s)
+    else:
+        wait = settings.max_wait_s if pairs <= settings.inline_distance_pairs else 0
     return _answer(job, wait)
 
 
-@v1.post("/estimates")
-def estimate_job() -> Response:
-    """What a job or distance request would cost, and whether it would be refused; nothing
-    is queued. The body is that of POST /v1/jobs (JSON with `input`, or multipart) or of
-    POST /v1/distances (JSON without `input`)."""
+def _queued_distances() -> tuple[Job, int]:
+    """The request's distance matrix, checked and queued, and its count of pairs. As in
+    ``_queued_job``, nothing of the body outlives the call."""
     state = _state()
-    if request.mimetype == "multipart/form-data":
-        job_request, data, uploaded = _job_request()
-    else:
-        body = _json_body(", or as multipart/form-data with request and data parts")
-        if not (isinstance(body, dict) and "input" in body):
-            return jsonify(_distance_estimate(body).model_dump(mode="json"))
-        job_request, data, uploaded = _json_job_request(body)
-    errors = request_errors(job_request, state.limits, data, uploaded)
-    if errors:
-        raise RequestInvalid(errors)
-    submission = job_submission(job_request, data, uploaded)
-    estimate = estimate_of(submission, state.settings, uploaded=uploaded)
-    return jsonify(estimate.model_dump(mode="json"))
+    submission, estimate = _checked_distance_submission(_json_body())
+    refuse_if_too_costly(estimate, state.settings)
+    job = state.queue.submit(submission, owner_of(request), _idempotency_key())
+    count = submission.task.count if isinstance(submission.task, DistanceTask) else 0
+    return job, count * (count - 1) // 2
 
 
-def _distance_estimate(body: Any) -> CostEstimate:
-    """The estimate of a distance request's body."""
+def _checked_distance_submission(body: Any) -> tuple[Submission, CostEstimate]:
+    """A distance request's body checked (RequestInvalid), with the results of the jobs it
+    names read, as a submission with its estimate."""
     state = _state()
     distance_request = DistanceRequest.model_validate(body)
     errors = distance_request.field_errors(state.limits)
@@ -360,7 +355,24 @@ def _distance_estimate(body: Any) -> CostEstimate:
     if distance_request.job_ids is not None:
         results = state.queue.results_of(distance_request.job_ids, owner_of(request), "/job_ids")
     submission = distance_submission(distance_request, results)
-    return estimate_of(submission, state.settings, items=items_pointer(distance_request))
+    items = items_pointer(distance_request)
+    return submission, estimate_of(submission, state.settings, items=items)
+
+
+@v1.post("/estimates")
+def estimate_job() -> Response:
+    """What a job or distance request would cost, and whether it would be refused; nothing
+    is queued. The body is that of POST /v1/jobs (JSON with `input`, or multipart) or of
+    POST /v1/distances (JSON without `input`)."""
+    if request.mimetype == "multipart/form-data":
+        _, estimate = _checked_job_submission(*_job_request())
+    else:
+        body = _json_body(", or as multipart/form-data with request and data parts")
+        if isinstance(body, dict) and "input" in body:
+            _, estimate = _checked_job_submission(*_json_job_request(body))
+        else:
+            _, estimate = _checked_distance_submission(body)
+    return jsonify(estimate.model_dump(mode="json"))
 
 
 @v1.get("/jobs/<job_id>")

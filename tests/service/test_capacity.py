@@ -6,18 +6,23 @@ up; the answer is then what the request would have got without waiting (a 202 wi
 status for a submission, RFC 9110 section 15.3.3).
 """
 
+import sys
 import threading
 from typing import Any
 
+import numpy as np
+import pytest
 import requests
 
 from service.app import create_app
 from service.settings import Settings
+from service.submissions import Submission
 from tests.support.api import JOBS, WAIT, fresh_queue, post
 from tests.support.bodies import rips_job
 from tests.support.http_server import gunicorn_api
 from tests.support.waiting import finishes, wait_until
 from tests.support.worker_process import start_worker, stop_worker
+from workers.spec import DistanceRequest, JobRequest
 
 
 def test_past_the_waiter_cap_a_submission_answers_202_at_once(settings: Settings) -> None:
@@ -72,3 +77,56 @@ def test_health_answers_while_more_requests_wait_than_the_cap(redis_url: str) ->
             assert [a["status"] for a in answers[waiting - cap :]] == ["succeeded"] * cap
         finally:
             stop_worker(worker)
+
+
+_BODY_TYPES = (JobRequest, DistanceRequest, Submission, np.ndarray)
+"""What a decoded body is made of: its request model, its submission and its arrays."""
+
+
+def _stack_locals(thread: threading.Thread) -> list[Any] | None:
+    """The locals of every frame of ``thread`` once it waits in ``queue.wait``, else None."""
+    frame = sys._current_frames().get(thread.ident or -1)
+    frames = []
+    while frame is not None:
+        frames.append(frame)
+        frame = frame.f_back
+    if not any(
+        f.f_code.co_name == "wait" and f.f_code.co_filename.endswith("queue.py") for f in frames
+    ):
+        return None
+    return [value for f in frames for value in f.f_locals.values()]
+
+
+# A large-parse slot (max_large_parses) bounds the memory of the bodies being handled: the
+# slot is given back when the wait begins, so by then nothing of the body may be held.
+@pytest.mark.parametrize(
+    ("path", "body"),
+    [
+        (JOBS, rips_job()),
+        ("/v1/distances", {"metric": "bottleneck", "diagrams": [[[0.0, 1.0]], [[0.0, 2.0]]]}),
+    ],
+    ids=["job", "distances"],
+)
+def test_a_waiting_submission_holds_nothing_of_its_body(
+    settings: Settings, path: str, body: dict[str, Any]
+) -> None:
+    client = create_app(settings).test_client()
+    answers: list[int] = []
+    # No worker runs: the request waits its whole 10 s (ended early by nothing).
+    thread = threading.Thread(
+        target=lambda: answers.append(
+            post(client, path, body, headers={"Prefer": "wait=10"}).status_code
+        )
+    )
+    thread.start()
+    held: list[Any] = []
+
+    def waiting() -> bool:
+        held[:] = _stack_locals(thread) or []
+        return bool(held)
+
+    wait_until(waiting, 20, "the request waits in queue.wait")
+    kept = [value for value in held if isinstance(value, _BODY_TYPES)]
+    assert kept == []
+    thread.join(30)
+    assert answers == [202]
