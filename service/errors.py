@@ -16,7 +16,8 @@ Tree::
     ├── QuotaExceeded        the tenant holds as many jobs or feature specs as it may
     ├── TooCostly            the job's estimated cost is beyond the limits
     ├── NotReady             no Redis or no worker
-    └── ServerBusy           this process is parsing as many large bodies as it may
+    └── ServerBusy           this process is parsing as many large bodies, or waiting on as
+                             many jobs (for pictures), as it may
 """
 
 from workers.spec import FieldError

@@ -3,11 +3,12 @@ self-contained document, pictures inlined as data: URIs, no script and no extern
 
 import base64
 import json
+import threading
 from typing import Any
 
 from flask import Request, render_template
 
-from service.errors import NotReady, RequestInvalid
+from service.errors import NotReady, RequestInvalid, ServerBusy
 from service.extension import ServiceState
 from service.pictures import draw
 from service.queue import Job
@@ -29,7 +30,8 @@ def wants_html(request: Request) -> bool:
     return accept.best_match(["application/json", "text/html"]) == "text/html"
 
 
-def job_page(state: ServiceState, job: Job, owner: str) -> str:
+def job_page(state: ServiceState, job: Job, owner: str, waiters: threading.BoundedSemaphore) -> str:
+    """The page of ``job``; its pictures are drawn through ``waiters`` (see ``draw``)."""
     status = state.queue.status(job)
     payload = state.queue.payload_of(job)
     result = state.queue.result(job) if status.status is JobState.succeeded else None
@@ -43,10 +45,10 @@ def job_page(state: ServiceState, job: Job, owner: str) -> str:
         for kind, caption in _PICTURES:
             query = PlotQuery(kind=kind, direction=direction)
             try:
-                picture, _ = draw(state, job, query, owner)
+                picture, _ = draw(state, job, query, owner, waiters)
             except RequestInvalid:  # nothing of this kind in the result
                 continue
-            except NotReady as error:
+            except (NotReady, ServerBusy) as error:
                 note = f"Some pictures were not drawn: {error.detail}"
                 break
             pictures.append(

@@ -86,26 +86,34 @@ class JobQueue:
         self.queue = Queue(settings.queue, connection=redis, serializer=JSONSerializer)
         self.unfinished = UnfinishedJobs(redis, settings)
 
-    def submit(self, submission: Submission, owner: str, idempotency_key: str | None = None) -> Job:
+    def submit(
+        self,
+        submission: Submission,
+        owner: str,
+        idempotency_key: str | None = None,
+        *,
+        counted: bool = True,
+    ) -> Job:
         """Store the input array next to the job and enqueue ``workers.jobs.run``.
 
         With ``idempotency_key``, a request equal to the one first sent under that key (the
         same request hash) within ``Settings.idempotency_ttl_s`` gets that job back instead of
         a new one; a different request under the key is IdempotencyKeyReused. A new job
-        counts against the owner's ``max_unfinished_jobs`` (QuotaExceeded when it is full).
+        counts against the owner's ``max_unfinished_jobs`` (QuotaExceeded when it is full)
+        unless not ``counted`` (the API's own plot jobs).
         """
         input_sha = array_sha256(submission.array)
         request_sha = canonical_sha256({"request": submission.described, "input_sha256": input_sha})
         job_id = str(uuid.uuid4())
         if idempotency_key is None:
-            return self._enqueue(submission, owner, job_id, input_sha, request_sha)
+            return self._enqueue(submission, owner, job_id, input_sha, request_sha, counted)
         record = f"{IDEMPOTENCY_PREFIX}{owner}:{idempotency_key}"
         claim = f"{job_id} {request_sha}"
         earlier = self._claim(record, claim, idempotency_key, owner)
         if earlier is not None:
             return earlier
         try:
-            return self._enqueue(submission, owner, job_id, input_sha, request_sha)
+            return self._enqueue(submission, owner, job_id, input_sha, request_sha, counted)
         except BaseException:
             self._release(record, claim)  # a retry under the key may queue the job anew
             raise
@@ -145,7 +153,13 @@ class JobQueue:
         )
 
     def _enqueue(
-        self, submission: Submission, owner: str, job_id: str, input_sha: str, request_sha: str
+        self,
+        submission: Submission,
+        owner: str,
+        job_id: str,
+        input_sha: str,
+        request_sha: str,
+        counted: bool = True,
     ) -> Job:
         request_id = current_request_id()
         payload = JobPayload(
@@ -159,6 +173,8 @@ class JobQueue:
             request_id=request_id,
         )
         keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)
+        if not counted:
+            return self._enqueue_reserved(submission, owner, job_id, payload, keep)
         reservation = self.unfinished.reserve(owner, job_id)
         if not reservation.added:
             raise QuotaExceeded(

@@ -386,7 +386,7 @@ def job_status(job_id: str) -> Response:
     if _waited(job, _requested_wait()) is not None:  # it succeeded meanwhile: read it anew
         job = state.queue.find(job_id, owner)
     if wants_html(request):
-        return Response(job_page(state, job, owner), mimetype="text/html")
+        return Response(job_page(state, job, owner, _gates().waiters), mimetype="text/html")
     return jsonify(state.queue.status(job).model_dump(mode="json"))
 
 
@@ -406,7 +406,8 @@ def job_plot(job_id: str) -> Response:
     query = PlotQuery.model_validate(request.args.to_dict())
     state = _state()
     owner = owner_of(request)
-    picture, media_type = draw(state, state.queue.find(job_id, owner), query, owner)
+    job = state.queue.find(job_id, owner)
+    picture, media_type = draw(state, job, query, owner, _gates().waiters)
     return Response(picture, mimetype=media_type)
 
 

@@ -228,3 +228,43 @@ def test_page_of_a_failed_job_shows_its_problem(served: tuple[FlaskClient, Setti
     assert page.status_code == 200 and "failed" in text
     assert answer.get_json()["problem"]["title"] in text
     assert "Research use only" in text and "<img" not in text
+
+
+# RFC 9110 section 15.6.4: 503 with Retry-After (section 10.2.3) when the server is overloaded.
+# A picture is drawn by waiting on a plot job, so it takes a waiter like Prefer: wait does.
+def test_past_the_waiter_cap_a_plot_is_503_and_queues_nothing(
+    served: tuple[FlaskClient, Settings], circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    _, settings = served
+    app = app_with(redis_url=settings.redis_url, queue=settings.queue, max_waiters=1)
+    waiters = app.extensions["lacuna.gates"].waiters
+    redis = app.extensions["lacuna"].queue.redis
+    before = sum(1 for _ in redis.scan_iter("rq:job:*"))
+    assert waiters.acquire(blocking=False)  # another request is waiting
+    try:
+        answer = plot(app.test_client(), circle_job[0], "kind=diagram")
+    finally:
+        waiters.release()
+    problem = problem_of(answer, 503)
+    assert problem["type"].endswith(":server-busy") and int(answer.headers["Retry-After"]) > 0
+    assert sum(1 for _ in redis.scan_iter("rq:job:*")) == before
+
+
+def test_a_plot_does_not_count_against_the_unfinished_jobs_quota(
+    served: tuple[FlaskClient, Settings], circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    # The tenant's last unfinished job allowed is taken by a job no worker serves.
+    client, settings = served
+    full = call(client, "GET", "/v1/capabilities").get_json()["caller"]["usage"]
+    limit = full["unfinished_jobs"] + 1
+    idle = app_with(redis_url=settings.redis_url, queue=fresh_queue(), max_unfinished_jobs=limit)
+    queued = post(idle.test_client(), JOBS, rips_job())
+    assert queued.status_code == 202
+    drawing = app_with(
+        redis_url=settings.redis_url, queue=settings.queue, max_unfinished_jobs=limit
+    )
+    try:
+        answer = plot(drawing.test_client(), circle_job[0], "kind=diagram")
+        assert answer.status_code == 200, answer.get_data(as_text=True)
+    finally:
+        call(idle.test_client(), "DELETE", queued.headers["Location"])
