@@ -3,16 +3,19 @@ distance lookup is scoped by this owner: another owner's id is simply not found.
 
 Two access modes (``Settings.auth``, see ``access_of``):
 
-- ``open``: no keys; every request acts for the one owner ``public``. The default when the
-  service listens on a loopback address (one user on their own machine).
+- ``open``: no keys; every request acts for the one owner ``public``. ``lacuna serve``
+  chooses it on a loopback address (one user on their own machine; the bind rule is
+  ``service.commands.access_decision``, which always sets ``LACUNA_AUTH``).
 - ``keys``: a request sends ``Authorization: Bearer <key>`` (RFC 6750 section 2.1) and acts
   for the key's tenant (``service.keys``); without a key, or with an unknown or revoked one,
-  it is a 401 with a ``WWW-Authenticate: Bearer`` challenge (RFC 6750 section 3). The default
-  on any other address. (In open mode a key that is sent is ignored.)
+  it is a 401 with a ``WWW-Authenticate: Bearer`` challenge (RFC 6750 section 3). The app's
+  default when ``auth`` is unset: the app cannot know the address gunicorn binds, so run
+  other than through ``lacuna serve`` it is never open by accident. (In open mode a key that
+  is sent is ignored.)
 
 Either way the tenant's request rate is checked in the same Redis round trip
 (``service.quotas.Admission``): a 429 with Retry-After (RFC 6585 section 4). The health
-routes and the OpenAPI document need no key and use no rate.
+routes (/healthz, /readyz), the OpenAPI document and /metrics need no key and use no rate.
 """
 
 import ipaddress
@@ -51,11 +54,8 @@ def is_loopback(host: str) -> bool:
 
 
 def access_of(settings: Settings) -> Access:
-    """The access mode: ``settings.auth``, or by default open on a loopback ``host`` and keys
-    on any other."""
-    if settings.auth is not None:
-        return settings.auth
-    return "open" if is_loopback(settings.host) else "keys"
+    """The access mode: ``settings.auth``, keys when unset (see the module docstring)."""
+    return settings.auth or "keys"
 
 
 def owner_of(request: Request) -> str:

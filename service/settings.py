@@ -126,10 +126,11 @@ class Settings(BaseSettings):
     # service/keys.py, service/quotas.py)
     auth: Literal["keys", "open"] | None = Field(
         None,
-        description='"keys": every request but the health routes and the OpenAPI document '
-        'needs an API key (Authorization: Bearer, RFC 6750); "open": no keys, every request '
-        'acts for the one owner "public". Unset: open when `host` is a loopback address, keys '
-        "otherwise.",
+        description='"keys": every request but the health routes (/healthz, /readyz), the '
+        "OpenAPI document and /metrics needs an API key (Authorization: Bearer, RFC 6750); "
+        '"open": no keys, every request acts for the one owner "public". Unset: keys (the '
+        "app cannot see the address it is bound to); `lacuna serve` always sets it, open on a "
+        "loopback address.",
     )
     open_access: bool = Field(
         False,

@@ -45,7 +45,9 @@ def _gunicorn(port: int, redis_url: str, cap_bytes: int, config: str) -> subproc
     argv += ["--bind", f"127.0.0.1:{port}", "--workers", "1", "--threads", "16"]
     argv += ["--timeout", "300", "--no-control-socket"]
     argv += ["--config", config] if config else []
-    env = dict(os.environ, LACUNA_REDIS_URL=redis_url, LACUNA_QUEUE="upload-memory")
+    env = dict(
+        os.environ, LACUNA_REDIS_URL=redis_url, LACUNA_QUEUE="upload-memory", LACUNA_AUTH="open"
+    )
     return subprocess.Popen(["prlimit", f"--as={cap_bytes}", *argv], env=env)
 
 

@@ -17,8 +17,9 @@ from tests.support.worker_process import served_on, start_worker, stop_worker
 
 @pytest.fixture
 def settings(redis_url: str) -> Settings:
-    """Settings on the test database with a queue of the test's own (no cross-talk)."""
-    return Settings(redis_url=redis_url, queue=fresh_queue())
+    """Settings on the test database with a queue of the test's own (no cross-talk), in
+    open access (no keys; tests of keys ask for them)."""
+    return Settings(redis_url=redis_url, queue=fresh_queue(), auth="open")
 
 
 @pytest.fixture

@@ -265,7 +265,11 @@ def test_failed_job_is_422(redis_url: str) -> None:
     # A real failure: a job that overruns a short time limit is killed by its worker.
     # refuse_costly_jobs=False: the estimate would refuse the job up front.
     settings = Settings(
-        redis_url=redis_url, queue=fresh_queue(), job_time_limit_s=0.5, refuse_costly_jobs=False
+        redis_url=redis_url,
+        queue=fresh_queue(),
+        job_time_limit_s=0.5,
+        refuse_costly_jobs=False,
+        auth="open",
     )
     client = app_with(**settings.model_dump()).test_client()
     worker = start_worker(redis_url, settings.queue)
@@ -531,7 +535,9 @@ def test_distances_between_jobs(client: FlaskClient, worker: subprocess.Popen[by
 @pytest.fixture
 def few_inline(redis_url: str) -> Iterator[FlaskClient]:
     """An app that answers inline only up to 10 pairs, with a worker on its queue."""
-    settings = Settings(redis_url=redis_url, queue=fresh_queue(), inline_distance_pairs=10)
+    settings = Settings(
+        redis_url=redis_url, queue=fresh_queue(), inline_distance_pairs=10, auth="open"
+    )
     worker = start_worker(redis_url, settings.queue)
     try:
         yield app_with(**settings.model_dump()).test_client()

@@ -161,7 +161,11 @@ def test_time_limit_stops_native_code(redis_url: str) -> None:
     # refuse_costly_jobs=False: the estimate would refuse the job up front; the runtime
     # limit is what this tests.
     settings = Settings(
-        redis_url=redis_url, queue=fresh_queue(), job_time_limit_s=1.0, refuse_costly_jobs=False
+        redis_url=redis_url,
+        queue=fresh_queue(),
+        job_time_limit_s=1.0,
+        refuse_costly_jobs=False,
+        auth="open",
     )
     client = create_app(settings).test_client()
     worker = start_worker(redis_url, settings.queue)

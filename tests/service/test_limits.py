@@ -11,7 +11,7 @@ JOB = {
 
 
 def test_feature_count_limit_comes_from_the_settings(redis_url: str) -> None:
-    app = create_app(Settings(redis_url=redis_url, queue="limits", max_features=2))
+    app = create_app(Settings(redis_url=redis_url, queue="limits", max_features=2, auth="open"))
     client = app.test_client()
     assert client.get("/v1/capabilities").get_json()["limits"]["max_features"] == 2
     answer = client.post("/v1/jobs", json={**JOB, "features": [SUMMARY] * 3})

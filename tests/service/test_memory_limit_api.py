@@ -43,6 +43,7 @@ def served(redis_url: str) -> Iterator[tuple[FlaskClient, int]]:
             queue=fresh_queue(),
             job_memory_limit_mb=LIMIT_MB,
             refuse_costly_jobs=False,
+            auth="open",
         )
         worker = start_worker(redis_url, settings.queue)
         try:

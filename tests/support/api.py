@@ -31,8 +31,8 @@ def fresh_queue() -> str:
 
 
 def app_with(**overrides: Any) -> Flask:
-    """An app in testing mode on ``Settings(**overrides)``."""
-    app = create_app(Settings(**overrides))
+    """An app in testing mode on ``Settings(**overrides)``, open access unless they say."""
+    app = create_app(Settings(**{"auth": "open", **overrides}))
     app.testing = True
     return app
 

@@ -53,7 +53,9 @@ class FaultLab:
     def __init__(self, redis: RestartableRedis) -> None:
         self.redis = redis
         self.queue = fresh_queue()
-        self.settings = Settings(redis_url=redis.url, queue=self.queue, dead_after_s=DEAD_AFTER_S)
+        self.settings = Settings(
+            redis_url=redis.url, queue=self.queue, dead_after_s=DEAD_AFTER_S, auth="open"
+        )
         app = create_app(self.settings)
         app.testing = True
         self.client: FlaskClient = app.test_client()

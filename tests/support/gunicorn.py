@@ -28,6 +28,7 @@ def running_gunicorn(
         os.environ,
         LACUNA_REDIS_URL=redis_url,
         LACUNA_QUEUE=queue,
+        LACUNA_AUTH="open",
         LACUNA_LOG_FORMAT="json",
         PROMETHEUS_MULTIPROC_DIR=str(metrics_dir),
     )

@@ -22,7 +22,9 @@ def gunicorn_api(redis_url: str, queue: str, threads: int = 4, **env: str) -> It
     argv = [sys.executable, "-m", "gunicorn", "service.wsgi:app"]
     argv += ["--config", "python:service.gunicorn_config", "--bind", f"127.0.0.1:{port}"]
     argv += ["--workers", "1", "--threads", str(threads), "--no-control-socket"]
-    variables = dict(os.environ, LACUNA_REDIS_URL=redis_url, LACUNA_QUEUE=queue, **env)
+    variables = dict(
+        os.environ, LACUNA_REDIS_URL=redis_url, LACUNA_QUEUE=queue, LACUNA_AUTH="open", **env
+    )
     process = subprocess.Popen(argv, env=variables, stderr=subprocess.DEVNULL)
     base = f"http://127.0.0.1:{port}"
     try:

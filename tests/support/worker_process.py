@@ -78,7 +78,7 @@ def served_on(redis_url: str) -> Iterator[tuple[FlaskClient, Settings]]:
     worker costs about a second); the database is not flushed per test, so the worker keeps
     its registration."""
     Redis.from_url(redis_url).flushdb()
-    settings = Settings(redis_url=redis_url, queue=fresh_queue())
+    settings = Settings(redis_url=redis_url, queue=fresh_queue(), auth="open")
     worker = start_worker(redis_url, settings.queue)
     app = create_app(settings)
     app.testing = True
