@@ -37,7 +37,11 @@ __all__ = ["ProblemThreadWorker", "problem_answer", "status_of"]
 
 _STATUSES: tuple[tuple[type[BaseException] | tuple[type[BaseException], ...], int, str], ...] = (
     # A header the application tried to send is the application's fault (gunicorn's rule).
-    ((InvalidResponseHeader, InvalidResponseHeaderName, ConfigurationProblem), 500, ""),
+    (
+        (InvalidResponseHeader, InvalidResponseHeaderName, ConfigurationProblem),
+        500,
+        "Internal Server Error",
+    ),
     (LimitRequestLine, 414, "URI Too Long"),
     (LimitRequestHeaders, 431, "Request Header Fields Too Large"),
     (ExpectationFailed, 417, "Expectation Failed"),
@@ -56,18 +60,20 @@ def status_of(error: BaseException) -> tuple[int, str]:
     """The status and reason phrase gunicorn answers ``error`` with (500 for its own)."""
     for kinds, status, reason in _STATUSES:
         if isinstance(error, kinds):
-            return (status, reason) if status != 500 else (500, "Internal Server Error")
+            return status, reason
     return 500, "Internal Server Error"
 
 
-def problem_answer(error: BaseException) -> tuple[int, bytes]:
-    """The status and the whole HTTP/1.1 answer (head and problem+json body) to ``error``."""
+def problem_answer(error: BaseException, request_id: str) -> tuple[int, bytes]:
+    """The status and the whole HTTP/1.1 answer (head and problem+json body) to ``error``;
+    a 500 quotes ``request_id`` (which the caller logs) instead of the error's words."""
     status, reason = status_of(error)
     problem: Problem
     if status == 500:
         problem = problem_of_kind(
             "internal-error",
-            f"an unexpected error occurred; quote request id {uuid.uuid4().hex}",
+            f"an unexpected error occurred; quote request id {request_id}",
+            request_id=request_id,
         )
     else:
         detail = str(error) or reason
@@ -86,9 +92,11 @@ class ProblemThreadWorker(ThreadWorker):  # type: ignore[misc]  # gunicorn has n
     """gunicorn's gthread worker whose own error answers are problem+json."""
 
     def handle_error(self, req: Any, client: Any, addr: Any, exc: BaseException) -> None:
-        status, answer = problem_answer(exc)
+        request_id = uuid.uuid4().hex
+        status, answer = problem_answer(exc, request_id)
         if status == 500:
-            self.log.exception("Error handling request %s", getattr(req, "uri", "(no URI read)"))
+            uri = getattr(req, "uri", "(no URI read)")
+            self.log.exception("Error handling request %s (request id %s)", uri, request_id)
         else:
             host = addr[0] if addr else ""
             self.log.warning("Invalid request from ip=%s: %s", host, str(exc)[:_DETAIL_CHARACTERS])

@@ -5,12 +5,13 @@ import json
 import logging
 import ssl
 from types import SimpleNamespace
+from typing import Any
 
 import pytest
 from gunicorn.http import errors
 from gunicorn.workers.base import Worker
 
-from service.http_worker import problem_answer
+from service.http_worker import ProblemThreadWorker, problem_answer
 
 CLIENT_ERRORS = [
     errors.InvalidRequestLine("GARBAGE"),
@@ -61,7 +62,7 @@ def _stock_status(error: BaseException) -> int:
 
 @pytest.mark.parametrize("error", CLIENT_ERRORS, ids=[type(e).__name__ for e in CLIENT_ERRORS])
 def test_statuses_are_gunicorns_and_bodies_are_problems(error: BaseException) -> None:
-    status, answer = problem_answer(error)
+    status, answer = problem_answer(error, "0" * 32)
     assert status == _stock_status(error)
     head, _, body = answer.partition(b"\r\n\r\n")
     lines = head.decode("latin-1").split("\r\n")
@@ -77,5 +78,19 @@ def test_statuses_are_gunicorns_and_bodies_are_problems(error: BaseException) ->
 
 
 def test_a_long_request_line_is_not_echoed_whole() -> None:
-    _, answer = problem_answer(errors.InvalidRequestLine("G" * 20_000))
+    _, answer = problem_answer(errors.InvalidRequestLine("G" * 20_000), "0" * 32)
     assert len(answer) < 1000
+
+
+def test_the_request_id_a_500_quotes_is_in_the_log(caplog: pytest.LogCaptureFixture) -> None:
+    # What an operator is asked about must be findable: the id the client quotes is logged.
+    sock = _Socket()
+    log = logging.getLogger("tests.problem-worker")
+    with caplog.at_level(logging.ERROR, logger=log.name):
+        worker: Any = SimpleNamespace(log=log)  # handle_error uses only the worker's log
+        ProblemThreadWorker.handle_error(
+            worker, None, sock, ("127.0.0.1", 1), RuntimeError("a bug")
+        )
+    problem = json.loads(sock.sent.partition(b"\r\n\r\n")[2])
+    assert problem["status"] == 500 and problem["request_id"] in problem["detail"]
+    assert problem["request_id"] in caplog.text
