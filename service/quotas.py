@@ -23,9 +23,10 @@ from typing import Any
 from redis import Redis
 from rq.job import Job
 from rq.job import JobStatus as RQStatus
+from rq.utils import as_text
 
 from service.keys import tenant_record_name
-from service.settings import Settings
+from service.settings import MIN_REQUESTS_PER_S, Settings
 from workers.spec.capabilities import TenantQuotas
 
 __all__ = [
@@ -53,13 +54,9 @@ RESERVATION_GRACE_S = 60
 _ENDED = [RQStatus.FINISHED, RQStatus.FAILED, RQStatus.STOPPED, RQStatus.CANCELED]
 
 
-def _text(value: bytes | str) -> str:
-    return value.decode() if isinstance(value, bytes) else value
-
-
 def quotas_of(redis: Redis, settings: Settings, tenant: str) -> TenantQuotas:
     """The tenant's quotas: the settings' defaults, under its record's overrides."""
-    stored = {_text(k): _text(v) for k, v in redis.hgetall(tenant_record_name(tenant)).items()}
+    stored = {as_text(k): as_text(v) for k, v in redis.hgetall(tenant_record_name(tenant)).items()}
     values: dict[str, Any] = {name: getattr(settings, name) for name in QUOTA_OVERRIDES}
     for name, kind in QUOTA_OVERRIDES.items():
         if name in stored:
@@ -69,12 +66,15 @@ def quotas_of(redis: Redis, settings: Settings, tenant: str) -> TenantQuotas:
 
 def set_overrides(redis: Redis, tenant: str, overrides: dict[str, float | int | None]) -> None:
     """Store the tenant's quota overrides; a None value removes that override. ValueError for
-    an unknown quota or a value that is not positive (a rate of 0 would never refill)."""
+    an unknown quota or a value that is not positive (a rate of 0 would never refill), and
+    for a rate below ``MIN_REQUESTS_PER_S``."""
     for key, value in overrides.items():
         if key not in QUOTA_OVERRIDES:
             raise ValueError(f"no quota {key!r}; the quotas are {', '.join(QUOTA_OVERRIDES)}")
         if value is not None and not value > 0:
             raise ValueError(f"{key} must be positive, not {value}")
+        if key == "requests_per_s" and value is not None and value < MIN_REQUESTS_PER_S:
+            raise ValueError(f"{key} must be at least {MIN_REQUESTS_PER_S}, not {value}")
     name = tenant_record_name(tenant)
     given: dict[Any, Any] = {k: str(v) for k, v in overrides.items() if v is not None}
     if given:
@@ -113,7 +113,8 @@ tokens = math.min(burst, tokens + math.max(0, now - at) * rate)
 local outcome, wait = 1, 0
 if tokens >= 1 then tokens = tokens - 1 else outcome, wait = 2, (1 - tokens) / rate end
 redis.call('HSET', bucket, 'tokens', tostring(tokens), 'at', tostring(now))
-redis.call('EXPIRE', bucket, math.ceil(burst / rate) + 1)
+-- At most a year: a rate stored before its bound (or by hand) must not overflow EXPIRE.
+redis.call('EXPIRE', bucket, math.min(math.ceil(burst / rate) + 1, 31536000))
 return {outcome, tenant, tostring(wait), tostring(rate), tostring(burst)}
 """
 """Outcomes: 1 admitted, 2 rate-limited (after ``wait`` seconds a token is back), 0 no such

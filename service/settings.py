@@ -8,7 +8,11 @@ from pydantic_settings import BaseSettings, SettingsConfigDict
 
 from workers.spec.jobs import DEFAULT_MAX_RESULT_PAIRS, DEFAULT_QUEUE
 
-__all__ = ["Settings"]
+__all__ = ["MIN_REQUESTS_PER_S", "Settings"]
+
+MIN_REQUESTS_PER_S = 0.001
+"""Slowest request rate a tenant may be given (one request per 1000 s): the token bucket's
+Redis key lives burst / rate seconds, and a far smaller rate overflows EXPIRE."""
 
 
 class Settings(BaseSettings):
@@ -143,7 +147,9 @@ class Settings(BaseSettings):
     # Generous enough for one user's batch (`make bench` sends 400 requests in about 2 s),
     # tight enough that a runaway loop of one tenant cannot crowd out the others.
     requests_per_s: float = Field(
-        100.0, gt=0, description="Requests per second one tenant may sustain (token bucket)."
+        100.0,
+        ge=MIN_REQUESTS_PER_S,
+        description="Requests per second one tenant may sustain (token bucket).",
     )
     request_burst: int = Field(
         1000, ge=1, description="Requests one tenant may send at once above the sustained rate."
@@ -186,7 +192,7 @@ class Settings(BaseSettings):
         "refused (estimates assume one core and the machine the model was fitted on).",
     )
 
-    # Bounds on the API process's own memory and threads (issue 15: edges).
+    # Bounds on the API process's own memory and threads.
     max_large_parses: int = Field(
         2,
         ge=1,
@@ -197,8 +203,9 @@ class Settings(BaseSettings):
     large_body_bytes: int = Field(
         8 * 1024 * 1024,
         ge=0,
-        description="Bodies above this many bytes (or chunked, of unknown length) count as "
-        "large parses for max_large_parses.",
+        description="Bodies above this many bytes count as large parses for "
+        "max_large_parses: a JSON body by the bytes read, an upload by its data part's size "
+        "(a chunked body, of unknown length, counts once read).",
     )
     max_waiters: int = Field(
         8,

@@ -13,11 +13,12 @@ from typing import Any
 
 import pytest
 from flask.testing import FlaskClient
+from pydantic import ValidationError
 from redis import Redis
 from werkzeug.test import TestResponse
 
 from service.app import create_app
-from service.keys import KeyStore
+from service.keys import KeyStore, tenant_record_name
 from service.quotas import set_overrides, unfinished_key
 from service.settings import Settings
 from tests.support.api import (
@@ -317,3 +318,18 @@ def test_concurrent_submissions_never_exceed_the_unfinished_jobs_quota(
         thread.join()
     assert sorted(statuses) == [202] * 3 + [429] * 5
     assert stored_jobs(client) == 3
+
+
+def test_a_rate_too_small_to_refill_is_refused_and_a_stored_one_is_survived(
+    client: FlaskClient, keys: dict[str, str], redis_url: str
+) -> None:
+    # Redis EXPIRE takes at most about 9.2e15 s (LLONG_MAX milliseconds; redis.io EXPIRE,
+    # from memory): burst / 1e-13 is beyond it.
+    with pytest.raises(ValidationError):
+        Settings(requests_per_s=1e-13)
+    with pytest.raises(ValueError, match="requests_per_s"):
+        set_overrides(Redis.from_url(redis_url), "lab-a", {"requests_per_s": 1e-13})
+    # One stored by hand (or before the bound) still answers, never a 500.
+    Redis.from_url(redis_url).hset(tenant_record_name("lab-a"), "requests_per_s", "1e-13")
+    answer = call(client, "GET", "/v1/capabilities", headers=bearer(keys["lab-a"]))
+    assert answer.status_code == 200, answer.get_data(as_text=True)
