@@ -26,6 +26,7 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 
 from redis import Redis
+from rq.utils import as_text
 
 __all__ = [
     "CreatedKey",
@@ -99,12 +100,8 @@ class CreatedKey:
     record: KeyRecord
 
 
-def _text(value: bytes | str) -> str:
-    return value.decode() if isinstance(value, bytes) else value
-
-
 def _record_of(fields: dict[bytes | str, bytes | str]) -> KeyRecord:
-    record = {_text(k): _text(v) for k, v in fields.items()}
+    record = {as_text(k): as_text(v) for k, v in fields.items()}
     return KeyRecord(
         key_id=record["key_id"],
         tenant=record["tenant"],
@@ -138,7 +135,7 @@ class KeyStore:
 
     def list(self) -> list[KeyRecord]:
         """Every key ever created (revoked ones too), oldest first."""
-        digests = [_text(d) for d in self.redis.hvals(_KEY_IDS)]
+        digests = [as_text(d) for d in self.redis.hvals(_KEY_IDS)]
         with self.redis.pipeline(transaction=False) as pipe:
             for digest in digests:
                 pipe.hgetall(key_record_name(digest))
@@ -152,7 +149,7 @@ class KeyStore:
         digest = self.redis.hget(_KEY_IDS, key_id)
         if digest is None:
             return None
-        name = key_record_name(_text(digest))
+        name = key_record_name(as_text(digest))
         if not self.redis.exists(name):
             return None
         self.redis.hset(name, "revoked", "1")

@@ -34,6 +34,7 @@ from prometheus_client.registry import Collector
 from prometheus_client.utils import floatToGoString
 from redis.exceptions import RedisError
 from rq import Queue
+from rq.utils import as_text
 
 from workers.spec.jobs import JobState
 from workers.spec.metrics import (
@@ -176,7 +177,7 @@ class QueueCollector(Collector):
             (JobState.cancelled, canceled + cancelled_running),
         ):
             states.add_metric([state.value], count)
-        reasons = {_text(k): int(v) for k, v in failures.items()}
+        reasons = {as_text(k): int(v) for k, v in failures.items()}
         by_reason = CounterMetricFamily(
             "lacuna_job_failures",
             "Jobs that ended without a result, by reason (the problem kind).",
@@ -192,10 +193,6 @@ class QueueCollector(Collector):
         return [depth, states, _durations(durations), by_reason, memory]
 
 
-def _text(value: bytes | str) -> str:
-    return value.decode() if isinstance(value, bytes) else value
-
-
 def _durations(fields: dict[bytes, bytes]) -> HistogramMetricFamily:
     """The histogram from the workers' per-bucket counts (``workers.spec.metrics``)."""
     family = HistogramMetricFamily(
@@ -205,7 +202,7 @@ def _durations(fields: dict[bytes, bytes]) -> HistogramMetricFamily:
     )
     counts: dict[tuple[str, ...], dict[str, float]] = defaultdict(dict)
     for field, value in fields.items():
-        kind, _, part = _text(field).rpartition("|")
+        kind, _, part = as_text(field).rpartition("|")
         counts[tuple(kind.split("|"))][part] = float(value)
     # (field name the workers write, bucket label prometheus_client would write)
     bounds = [(repr(b), floatToGoString(b)) for b in DURATION_BUCKETS_S] + [("+Inf", "+Inf")]

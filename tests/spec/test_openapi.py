@@ -51,6 +51,21 @@ def test_every_route_is_documented() -> None:
     assert routed == documented
 
 
+def test_the_routes_open_without_a_key_are_the_ones_documented_open(redis_url: str) -> None:
+    # The document marks an open operation with `security: []` (OpenAPI 3.1 section 4.8.10:
+    # an empty list removes the requirement); in keys mode every other one is a 401 without
+    # a key (RFC 6750 section 3), whatever else is wrong with the request.
+    client = app_with(redis_url=redis_url, queue=fresh_queue(), auth="keys").test_client()
+    for path, item in openapi_document()["paths"].items():
+        for method, operation in item.items():
+            if method == "parameters":
+                continue
+            url = re.sub(r"\{\w+\}", "00000000-0000-4000-8000-000000000000", path)
+            answered = client.open(url, method=method.upper()).status_code
+            documented_open = operation.get("security") == []
+            assert (answered != 401) == documented_open, (method, path, answered)
+
+
 # --- The rules between fields, as the document states them ------------------------------------
 # Each rule is checked twice: the document's schema (validated with jsonschema, the reference
 # JSON Schema 2020-12 implementation) refuses a body breaking it, and the app refuses the same
