@@ -212,7 +212,8 @@ class Settings(BaseSettings):
         ge=0,
         description="Requests of one API process that may block on `Prefer: wait` at once; "
         "past it a request answers at once (202 for a submission), so threads stay free for "
-        "other requests and health checks. Keep it below http_threads.",
+        "other requests and health checks. A picture (/plot, the job page) waits on its plot "
+        "job as one of them: past it, 503 with Retry-After. Keep it below http_threads.",
     )
 
     # Worker liveness (what /readyz counts; workers/settings.py has the worker's side)
