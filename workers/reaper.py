@@ -16,8 +16,9 @@ reaps: it stays stateless. RQ's own cleanup of that registry (every 10 minutes, 
 lapsed job without saying why) is left out of the workers' maintenance
 (``workers.resilient``), so there is one rule.
 
-Each job is reaped in one MULTI/EXEC watched on the job's hash: if its worker stores a
-result meanwhile, the transaction fails and the job is left alone. A worker that comes back
+Each job is reaped in one MULTI/EXEC watched on the job's hash and the registry: if its
+worker renews its claim or stores a result meanwhile, the transaction fails and the job is
+left alone. A worker that comes back
 after its claim was reaped finds the claim gone and drops its result (the job is another
 worker's now).
 
@@ -102,7 +103,8 @@ def reap_claim(
     registry_key = queue.started_job_registry.key
     job_id, _ = parse_composite_key(claim)
     with connection.pipeline() as pipe:
-        pipe.watch(Job.key_for(job_id))  # type: ignore[no-untyped-call]
+        # The registry too: a worker renewing its claim before storing aborts this reap.
+        pipe.watch(Job.key_for(job_id), registry_key)  # type: ignore[no-untyped-call]
         score = connection.zscore(registry_key, claim)
         if score is None or (lapsed_before is not None and score > lapsed_before):
             return None  # ended or renewed meanwhile

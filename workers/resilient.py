@@ -9,9 +9,9 @@ computed result waits for Redis, however long). Maintenance is skipped while Red
 
 Liveness is ``workers.liveness``: a heartbeat thread, registrations and claims that lapse
 after ``dead_after_s``, a name taken over from a dead predecessor. Before storing what a job
-ended with, the worker checks it still holds the job's claim; one reaped meanwhile
-(``workers.reaper``: the worker was cut off too long) belongs to another attempt, and this
-one's result is dropped.
+ended with, the worker renews the job's claim if it still holds it (one MULTI/EXEC, which
+aborts a reap that read the old score); one reaped meanwhile (``workers.reaper``: the worker
+was cut off too long) belongs to another attempt, and this one's outcome is dropped.
 """
 
 import logging
@@ -30,7 +30,7 @@ from rq.registry import (
     ReadyJobRegistry,
     StartedJobRegistry,
 )
-from rq.utils import now
+from rq.utils import current_timestamp, now
 
 from workers.liveness import Heartbeat, claim_name, release_name
 from workers.reconnect import LOST, Backoff, until_answered
@@ -43,6 +43,10 @@ log = logging.getLogger(__name__)
 
 _DEATH_ATTEMPTS = 3
 """Tries at registering death on shutdown; after them the registration lapses by itself."""
+
+_FAILURE_ATTEMPTS = 8
+"""Tries at storing a failure Redis answered but did not keep (not an outage: a refused
+command); after them the job is left to the reaper."""
 
 
 class ResilientWorker(SimpleWorker):
@@ -182,22 +186,31 @@ class ResilientWorker(SimpleWorker):
             lambda: super(ResilientWorker, self).handle_execution_ended(job, queue, heartbeat_ttl),
         )
 
-    def _holds(self, job: Job, execution: Execution) -> bool:
-        """Is the claim of ``execution`` still ours (not reaped, not lost with Redis's data)?"""
+    def _renew_claim(self, job: Job, execution: Execution) -> bool:
+        """Renew the claim of ``execution`` for one lifetime iff it is still there; is it ours?
+
+        One MULTI/EXEC (renew only if present, then read it), run right before a store: a reap
+        that read the old score is aborted by the renewal (the reaper watches the registry),
+        and a reap done before it leaves nothing to renew."""
         key = StartedJobRegistry(job.origin, self.connection).key
-        held = self._until_answered(
-            f"checking the claim of job {job.id}",
-            lambda: self.connection.zscore(key, execution.composite_key) is not None,
-        )
-        if not held:
-            log.warning(
-                "worker %s: job %s was reaped while this worker was cut off; its outcome here "
-                "is dropped (the job was queued again or failed as worker-lost)",
-                self.name,
-                job.id,
+        with self.connection.pipeline() as pipe:
+            pipe.zadd(
+                key,
+                {execution.composite_key: current_timestamp() + self.settings.dead_after_s},
+                xx=True,
             )
-            self.executions.pop(execution.id, None)
-        return bool(held)
+            pipe.zscore(key, execution.composite_key)
+            held = pipe.execute()[1] is not None
+        return held
+
+    def _dropped(self, job: Job, execution: Execution) -> None:
+        log.warning(
+            "worker %s: job %s was reaped while this worker was cut off; its outcome here "
+            "is dropped (the job was queued again or failed as worker-lost)",
+            self.name,
+            job.id,
+        )
+        self.executions.pop(execution.id, None)
 
     def _drop_input(self, job: Job) -> None:
         """The input stays while a job runs, so a retry after a crash finds it."""
@@ -209,14 +222,17 @@ class ResilientWorker(SimpleWorker):
     def handle_job_success(
         self, job: Job, queue: Queue, started_job_registry: StartedJobRegistry, execution: Execution
     ) -> None:
-        if not self._holds(job, execution):
-            return
-        self._until_answered(
-            f"storing the result of job {job.id}",
-            lambda: super(ResilientWorker, self).handle_job_success(
+        def store() -> bool:
+            if not self._renew_claim(job, execution):
+                return False
+            super(ResilientWorker, self).handle_job_success(
                 job, queue, started_job_registry, execution
-            ),
-        )
+            )
+            return True
+
+        if not self._until_answered(f"storing the result of job {job.id}", store):
+            self._dropped(job, execution)
+            return
         self._drop_input(job)
 
     def handle_job_failure(
@@ -227,21 +243,34 @@ class ResilientWorker(SimpleWorker):
         exc_string: str = "",
         execution: Execution | None = None,
     ) -> None:
-        if execution is not None and not self._holds(job, execution):
-            return
-        backoff = Backoff(self.settings.redis_backoff_max_s)
-        while True:
-            # RQ logs a failure it could not store and goes on: look whether it was stored.
-            self._until_answered(
-                f"storing the failure of job {job.id}",
-                lambda: super(ResilientWorker, self).handle_job_failure(
-                    job, queue, started_job_registry, exc_string, execution
-                ),
+        def store() -> bool:
+            if execution is not None and not self._renew_claim(job, execution):
+                return False
+            super(ResilientWorker, self).handle_job_failure(
+                job, queue, started_job_registry, exc_string, execution
             )
+            return True
+
+        backoff = Backoff(self.settings.redis_backoff_max_s)
+        for _ in range(_FAILURE_ATTEMPTS):
+            # RQ logs a failure it could not store and goes on: look whether it was stored.
+            if not self._until_answered(f"storing the failure of job {job.id}", store):
+                if execution is not None:
+                    self._dropped(job, execution)
+                return
             if self._failure_stored(job):
-                break
+                self._drop_input(job)
+                return
             time.sleep(backoff.next_wait())
-        self._drop_input(job)
+        log.error(
+            "worker %s: the failure of job %s could not be stored after %d attempts; its claim "
+            "lapses and the reaper takes the job",
+            self.name,
+            job.id,
+            _FAILURE_ATTEMPTS,
+        )
+        if execution is not None:
+            self.executions.pop(execution.id, None)
 
     def _failure_stored(self, job: Job) -> bool:
         try:
