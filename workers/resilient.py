@@ -102,6 +102,14 @@ class ResilientWorker(SimpleWorker):
             self.heartbeat_thread.stop()
         super().teardown()  # type: ignore[no-untyped-call]
 
+    def set_shutdown_requested_date(self) -> None:
+        # Called from RQ's SIGTERM handler, so an error here lands in whatever the main thread
+        # was doing (waiting on the computation) and fails the job; the field is informational.
+        try:
+            super().set_shutdown_requested_date()  # type: ignore[no-untyped-call]
+        except LOST as error:
+            log.warning("worker %s: stop request not recorded, Redis away (%s)", self.name, error)
+
     def register_death(self) -> None:
         for _ in range(_DEATH_ATTEMPTS):
             try:

@@ -1,7 +1,9 @@
 """Redis goes away while a worker computes, and comes back on the same port with its data."""
 
+import signal
 import time
 
+import numpy as np
 import pytest
 
 from tests.support.api import JOBS, call
@@ -76,3 +78,30 @@ def test_a_worker_registers_again_after_redis_restarts_empty(lab: FaultLab) -> N
     job_id = lab.submit(rips_job())
     assert lab.wait_for(job_id, {"succeeded", "failed"})["status"] == "succeeded"
     assert lab.job(job_id).worker_name == worker
+
+
+REDIS_PY_RETRIES_S = 8.0
+"""Longer than redis-py's own retries of a refused command (3 retries, waits of at most 1, 2
+and 4 s: redis-py's default ``Retry(ExponentialWithJitterBackoff(base=1, cap=10), 3)``), so
+a write made when the stop is asked has given up before Redis comes back."""
+
+
+def test_a_stop_asked_while_redis_is_away_lets_the_computation_finish(lab: FaultLab) -> None:
+    worker = lab.start_worker()
+    # 1800 uniform points in the unit cube up to H2: well over REDIS_PY_RETRIES_S here (1600
+    # points took about 11 s, measured).
+    points = np.random.default_rng(4).uniform(size=(1800, 3))
+    job_id = lab.submit(rips_job(points.tolist(), max_dim=2))
+    lab.runner_of(job_id)
+    wait_until(lambda: lab.computing(worker), BOUND_S, "the computation under way")
+    lab.redis.stop()
+    lab.workers[worker].send_signal(signal.SIGTERM)  # a warm stop: finish the job first
+    time.sleep(REDIS_PY_RETRIES_S)
+    # RQ records the stop request in Redis from its signal handler; the child computes on.
+    assert lab.computing(worker), "the stop request during the outage ended the computation"
+    lab.redis.start()
+
+    ended = lab.wait_for(job_id, {"succeeded", "failed"})
+    assert ended["status"] == "succeeded", ended
+    assert lab.job(job_id).meta.get("lost_attempts") is None  # this worker stored it
+    lab.workers[worker].wait(timeout=BOUND_S)  # and then stopped
