@@ -69,7 +69,11 @@ class ResilientWorker(SimpleWorker):
         self._abandoned: list[Execution] = []
 
     def _until_answered(self, what: str, call: Any) -> Any:
-        return until_answered(call, what, self.settings.redis_backoff_max_s)
+        return until_answered(call, what, self.settings.redis_backoff_max_s, self.stop_asked)
+
+    def stop_asked(self) -> bool:
+        """Was this worker asked to stop (a first SIGTERM, or a stop command)?"""
+        return bool(self._stop_requested)
 
     # Liveness: one lifetime for the registration and every claim, renewed by the thread.
 

@@ -105,3 +105,24 @@ def test_a_stop_asked_while_redis_is_away_lets_the_computation_finish(lab: Fault
     assert ended["status"] == "succeeded", ended
     assert lab.job(job_id).meta.get("lost_attempts") is None  # this worker stored it
     lab.workers[worker].wait(timeout=BOUND_S)  # and then stopped
+
+
+def test_a_worker_holding_a_result_while_redis_is_away_stops_on_the_first_sigterm(
+    lab: FaultLab,
+) -> None:
+    worker = lab.start_worker()
+    job_id = lab.submit(slow_rips_job(seed=3))
+    lab.runner_of(job_id)
+    wait_until(lambda: lab.computing(worker), BOUND_S, "the computation under way")
+    lab.redis.stop()
+    wait_until(lambda: not lab.computing(worker), BOUND_S, "the computation ended")
+    process = lab.workers.pop(worker)
+    process.send_signal(signal.SIGTERM)
+    # It gives the unstored result up and exits; the input stays in Redis for a retry.
+    process.wait(timeout=BOUND_S)
+    lab.redis.start()
+
+    lab.start_worker()
+    ended = lab.wait_for(job_id, {"succeeded", "failed"})
+    assert ended["status"] == "succeeded", ended
+    assert lab.job(job_id).meta.get("lost_attempts") == 1  # the claim lapsed, the job ran again
