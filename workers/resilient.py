@@ -32,6 +32,7 @@ from rq.registry import (
 )
 from rq.utils import current_timestamp, now
 
+from workers.claim import Claim, holding
 from workers.liveness import Heartbeat, claim_name, release_name
 from workers.reconnect import LOST, Backoff, until_answered
 from workers.settings import WorkerSettings
@@ -183,6 +184,16 @@ class ResilientWorker(SimpleWorker):
                 "dropping half-made claims", lambda: self.connection.zrem(registry, *stale)
             )
         return execution
+
+    def perform_job(self, job: Job, queue: Queue, execution: Execution) -> bool:
+        claim = Claim(
+            connection=self.connection,
+            registry_key=StartedJobRegistry(job.origin, self.connection).key,
+            member=execution.composite_key,
+            stop_asked=self.stop_asked,
+        )
+        with holding(claim):
+            return bool(super().perform_job(job, queue, execution))
 
     def prepare_job_execution(self, job: Job, remove_from_intermediate_queue: bool = False) -> None:
         self._until_answered(
