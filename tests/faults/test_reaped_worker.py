@@ -10,7 +10,6 @@ import numpy as np
 import pytest
 from rq import Queue
 from rq.serializers import JSONSerializer
-from rq.utils import as_text
 
 from tests.support.api import post
 from tests.support.faults import BOUND_S, FaultLab
@@ -42,10 +41,11 @@ def test_a_reaped_jobs_old_worker_does_not_write_over_its_next_attempt(lab: Faul
     wait_until(lambda: "progress" in lab.job(job_id).meta, BOUND_S, "the job showing its progress")
     connection = lab.connection()
     queue = Queue(lab.queue, connection=connection, serializer=JSONSerializer)
+    members = connection.zrange(queue.started_job_registry.key, 0, -1)
     claims = [
-        as_text(member)
-        for member in connection.zrange(queue.started_job_registry.key, 0, -1)
-        if as_text(member).startswith(f"{job_id}:")
+        m.decode()
+        for m in members
+        if isinstance(m, bytes) and m.startswith(b"%s:" % job_id.encode())
     ]
     assert len(claims) == 1
     reaped = reap_claim(queue, claims[0], retries=1, why="reaped by the test")
