@@ -45,8 +45,10 @@ from rq.job import Job, JobStatus
 from rq.job_lifecycle import record_job_failure
 from rq.utils import as_text, current_timestamp, now, parse_composite_key
 
+from workers.metrics import count_end
 from workers.spec import failures
 from workers.spec.jobs import cancel_key, input_key
+from workers.spec.metrics import failure_reason
 
 __all__ = [
     "LOST_ATTEMPTS",
@@ -164,6 +166,7 @@ def _requeue_or_fail(
     pipe.hset(job.key, "meta", queue.serializer.dumps(job.meta))
     job.ended_at = now()
     record_job_failure(job, f"worker {dead_worker} lost: {why}", pipe)
+    count_end(pipe, job, failure_reason(job.meta["problem"]))  # as the failure callback would
     pipe.delete(input_key(job.id))
     return ("cancelled" if cancelled else "failed"), attempts
 
