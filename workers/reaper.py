@@ -50,15 +50,7 @@ from workers.spec import failures
 from workers.spec.jobs import cancel_key, input_key
 from workers.spec.metrics import failure_reason
 
-__all__ = [
-    "LOST_ATTEMPTS",
-    "Reaped",
-    "reap_claim",
-    "reap_lapsed",
-    "reap_stranded",
-    "reaper_lock_key",
-    "unclaimed_key",
-]
+__all__ = ["Reaped", "reap_claim", "reap_lapsed", "reap_stranded", "reaper_lock_key"]
 
 log = logging.getLogger(__name__)
 
