@@ -55,5 +55,7 @@ def test_a_reaped_jobs_old_worker_does_not_write_over_its_next_attempt(lab: Faul
     # The old attempt stops (its claim is gone) and the worker runs the job again.
     ended = lab.wait_for(job_id, {"succeeded", "failed"})
     assert ended["status"] == "succeeded", ended
-    assert lab.job(job_id).meta.get("lost_attempts") == 1
-    assert lab.job(job_id).worker_name == worker
+    job = lab.job(job_id)
+    assert job.meta.get("lost_attempts") == 1
+    assert job.worker_name == worker
+    assert len(job.results()) == 1  # the reaped attempt stored nothing: one result, one run
