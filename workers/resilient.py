@@ -227,13 +227,25 @@ class ResilientWorker(SimpleWorker):
         return held
 
     def _dropped(self, job: Job, execution: Execution) -> None:
+        """The claim was gone at the store: reaped, or removed by our own store whose answer
+        Redis lost (the retry then finds the job ended). An ended job's input is not needed
+        by any attempt; a requeued one's is."""
+        self.executions.pop(execution.id, None)
+        try:
+            status = self._until_answered(
+                f"reading the state of job {job.id}", lambda: job.get_status(refresh=True)
+            )
+        except InvalidJobOperation:  # expired meanwhile
+            return
+        if status in (JobStatus.FINISHED, JobStatus.FAILED):
+            self._drop_input(job)
+            return
         log.warning(
             "worker %s: job %s was reaped while this worker was cut off; its outcome here "
-            "is dropped (the job was queued again or failed as worker-lost)",
+            "is dropped (the job was queued again)",
             self.name,
             job.id,
         )
-        self.executions.pop(execution.id, None)
 
     def _drop_input(self, job: Job) -> None:
         """The input stays while a job runs, so a retry after a crash finds it."""
