@@ -8,7 +8,9 @@ new one (cheap: the imports are already in memory).
 
 A job's memory limit (``JobPayload.memory_limit_mb``, lowered to the worker's
 ``job_memory_ceiling_mb``) caps the child's address space while the job runs
-(``workers.memory``). A job over it fails with a memory-limit problem however the child
+(``workers.memory``); a used child whose malloc holds much free room (which counts against
+the limit) asks to be replaced by a fresh fork before a capped job, so the job gets its
+limit as new memory. A job over it fails with a memory-limit problem however the child
 gives way: a ``MemoryError`` (numpy, CPython, C++ ``std::bad_alloc`` through pybind11 or
 Cython), or death by SIGSEGV, SIGBUS or SIGABRT, which is how native code that does not
 check an allocation ends under the cap. After a memory-limit the child is killed and the
@@ -33,7 +35,14 @@ from typing import Any
 
 from workers import defaults
 from workers.core.errors import CoreError, RequestError
-from workers.memory import MEMORY_SIGNALS, MIB, address_space_cap
+from workers.memory import (
+    MEMORY_SIGNALS,
+    MIB,
+    ROOM_SHARE,
+    address_space_cap,
+    reusable_address_space,
+    trim,
+)
 from workers.settings import WorkerSettings
 from workers.spec import JobPayload, Problem, failures
 
@@ -103,6 +112,7 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
     # The parent owns shutdown: SIGINT/SIGTERM sent to the group must not kill a job halfway.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.signal(signal.SIGTERM, signal.SIG_DFL)
+    fresh = True
     while True:
         try:
             header = json.loads(connection.recv_bytes())
@@ -110,6 +120,10 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
         except EOFError:
             return
         limit_mb: int | None = header.get("memory_limit_mb")
+        if limit_mb is not None and not fresh and _room_too_large(limit_mb):
+            connection.send_bytes(json.dumps({"fresh_child_needed": True}).encode("utf-8"))
+            continue
+        fresh = False
         try:
             # The reply is encoded under the cap too: a large result is part of the job.
             with address_space_cap(None if limit_mb is None else limit_mb * MIB):
@@ -126,6 +140,14 @@ def _child_main(connection: Connection, parent_end: Connection, handler: Handler
         except Exception as error:  # reported as the job's problem; the child lives on
             reply = _problem_reply(problem_for(error), refork=False)
         connection.send_bytes(reply)
+
+
+def _room_too_large(limit_mb: int) -> bool:
+    """Does malloc's reusable room here (free chunks left by earlier jobs) take more than
+    ``ROOM_SHARE`` of the limit? It counts against the limit (``workers.memory``), so the job
+    would get less than its limit of new memory."""
+    trim()
+    return reusable_address_space() > ROOM_SHARE * limit_mb * MIB
 
 
 def _problem_reply(problem: Problem, *, refork: bool) -> bytes:
@@ -207,14 +229,22 @@ class ComputeProcess:
             "memory_limit_mb": limit_mb,
         }
         deadline = time.monotonic() + time_limit_s
+        encoded_header = json.dumps(header).encode("utf-8")
         try:
-            self._connection.send_bytes(json.dumps(header).encode("utf-8"))
+            self._connection.send_bytes(encoded_header)
             self._connection.send_bytes(input_bytes)
             while True:
                 if self._connection.poll(
                     max(0.0, min(defaults.POLL_INTERVAL_S, deadline - time.monotonic()))
                 ):
                     reply = json.loads(self._connection.recv_bytes())
+                    if reply.get("fresh_child_needed"):
+                        # A fresh child never asks again, so this happens once per job.
+                        self.kill()
+                        self._start()
+                        self._connection.send_bytes(encoded_header)
+                        self._connection.send_bytes(input_bytes)
+                        continue
                     if "progress" not in reply:
                         break
                     if on_progress is not None:

@@ -33,7 +33,7 @@ from rq.registry import StartedJobRegistry
 from rq.utils import as_text, current_timestamp, now, utcformat
 from rq.worker import BaseWorker
 
-from workers.reaper import Reaped, reap_claim, reap_lapsed, reap_stranded, reaper_lock_key
+from workers.reaper import reap_claim, reap_lapsed, reap_stranded, reaper_lock_key
 from workers.reconnect import LOST, Backoff
 from workers.settings import WorkerSettings
 
@@ -63,7 +63,6 @@ class Heartbeat(threading.Thread):
         self._queues = [
             Queue(q.name, connection=connection, serializer=q.serializer) for q in worker.queues
         ]
-        self.reaped: list[Reaped] = []
 
     def stop(self) -> None:
         self._stop_event.set()
@@ -141,10 +140,8 @@ class Heartbeat(threading.Thread):
             ):
                 continue
             why = f"no heartbeat for over {settings.dead_after_s} s"
-            self.reaped.extend(reap_lapsed(queue, settings.lost_job_retries, why))
-            self.reaped.extend(
-                reap_stranded(queue, settings.lost_job_retries, settings.dead_after_s)
-            )
+            reap_lapsed(queue, settings.lost_job_retries, why)
+            reap_stranded(queue, settings.lost_job_retries, settings.dead_after_s)
 
 
 def _process_gone(pid: int) -> bool:
@@ -180,7 +177,7 @@ def _still_beating(
     return False
 
 
-def claim_name(worker: BaseWorker, settings: WorkerSettings) -> list[Reaped]:
+def claim_name(worker: BaseWorker, settings: WorkerSettings) -> None:
     """Make ``worker.name`` free to register: NameInUse when a live worker holds it; else
     clear a dead predecessor's registration and reap the jobs it was running.
 
@@ -205,7 +202,7 @@ def claim_name(worker: BaseWorker, settings: WorkerSettings) -> list[Reaped]:
 
     holder = read()
     if not holder or "death" in holder:
-        return []
+        return
     if not _known_dead(holder, worker) and _still_beating(read, holder, settings):
         connection.delete(lock)
         raise NameInUse(
@@ -219,16 +216,12 @@ def claim_name(worker: BaseWorker, settings: WorkerSettings) -> list[Reaped]:
         holder.get("pid"),
     )
     claims = [as_text(c) for c in connection.smembers(worker.executions_key)]
-    reaped = []
     for claim in claims:
         for queue in worker.queues:
-            outcome = reap_claim(
+            reap_claim(
                 queue, claim, settings.lost_job_retries, "it was restarted under the same name"
             )
-            if outcome is not None:
-                reaped.append(outcome)
     connection.delete(worker.key, worker.executions_key)
-    return reaped
 
 
 def release_name(worker: BaseWorker) -> None:

@@ -11,7 +11,10 @@ process with 110 MiB of such room got 143 MiB under a 30 MiB cap (measured). So 
 limit starts from is the address space in use: what is mapped, after ``malloc_trim(3)`` has
 given back what it can, less what malloc can still reuse. Where that reusable room is larger
 than the limit the cap sits below the mapped size: the job may use that room (memory the
-process already holds) but map nothing more.
+process already holds) but map nothing more, and room in pieces smaller than what it asks
+for is no use to it. So the compute child (``workers.compute``) asks to be replaced by a
+fresh fork of the lean worker process before a capped job when its room exceeds
+``ROOM_SHARE`` of the limit: the job then gets most of its limit as new memory.
 The cap is ``RLIMIT_AS`` (setrlimit(2)): an allocation past it fails with
 ENOMEM, which numpy and CPython raise as ``MemoryError`` and C++ code as ``std::bad_alloc``
 (pybind11 and Cython turn that into ``MemoryError`` too); native code that does not check
@@ -30,15 +33,22 @@ from contextlib import contextmanager
 __all__ = [
     "MIB",
     "MEMORY_SIGNALS",
+    "ROOM_SHARE",
     "address_space",
     "address_space_cap",
     "address_space_in_use",
     "headroom",
     "reusable_address_space",
     "split_cap",
+    "trim",
 ]
 
 MIB = 1 << 20
+
+ROOM_SHARE = 1 / 8
+"""The most of a job's limit a used compute child's reusable room may take before the job
+is run in a fresh child instead (our own choice: a job keeps at least 7/8 of its limit as
+new memory; a fresh child is forked in milliseconds)."""
 
 MEMORY_SIGNALS = frozenset({signal.SIGSEGV, signal.SIGBUS, signal.SIGABRT})
 """How native code dies when an allocation it did not check fails (a null pointer written
@@ -130,11 +140,16 @@ def reusable_address_space() -> int:
     return main + roomiest_other
 
 
+def trim() -> None:
+    """Give back to the kernel what malloc can (``malloc_trim(3)``); nothing off glibc."""
+    if _MALLOC_TRIM is not None:
+        _MALLOC_TRIM(0)
+
+
 def address_space_in_use() -> int:
     """Bytes of address space this process uses now: mapped (after malloc has given back to
     the kernel what it can) less what malloc can reuse. What a limit is counted from."""
-    if _MALLOC_TRIM is not None:
-        _MALLOC_TRIM(0)
+    trim()
     return max(0, address_space() - reusable_address_space())
 
 

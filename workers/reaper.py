@@ -16,8 +16,9 @@ reaps: it stays stateless. RQ's own cleanup of that registry (every 10 minutes, 
 lapsed job without saying why) is left out of the workers' maintenance
 (``workers.resilient``), so there is one rule.
 
-Each job is reaped in one MULTI/EXEC watched on the job's hash: if its worker stores a
-result meanwhile, the transaction fails and the job is left alone. A worker that comes back
+Each job is reaped in one MULTI/EXEC watched on the job's hash and the registry: if its
+worker renews its claim or stores a result meanwhile, the transaction fails and the job is
+left alone. A worker that comes back
 after its claim was reaped finds the claim gone and drops its result (the job is another
 worker's now).
 
@@ -44,18 +45,12 @@ from rq.job import Job, JobStatus
 from rq.job_lifecycle import record_job_failure
 from rq.utils import as_text, current_timestamp, now, parse_composite_key
 
+from workers.metrics import count_end
 from workers.spec import failures
 from workers.spec.jobs import cancel_key, input_key
+from workers.spec.metrics import failure_reason
 
-__all__ = [
-    "LOST_ATTEMPTS",
-    "Reaped",
-    "reap_claim",
-    "reap_lapsed",
-    "reap_stranded",
-    "reaper_lock_key",
-    "unclaimed_key",
-]
+__all__ = ["Reaped", "reap_claim", "reap_lapsed", "reap_stranded", "reaper_lock_key"]
 
 log = logging.getLogger(__name__)
 
@@ -102,7 +97,8 @@ def reap_claim(
     registry_key = queue.started_job_registry.key
     job_id, _ = parse_composite_key(claim)
     with connection.pipeline() as pipe:
-        pipe.watch(Job.key_for(job_id))  # type: ignore[no-untyped-call]
+        # The registry too: a worker renewing its claim before storing aborts this reap.
+        pipe.watch(Job.key_for(job_id), registry_key)  # type: ignore[no-untyped-call]
         score = connection.zscore(registry_key, claim)
         if score is None or (lapsed_before is not None and score > lapsed_before):
             return None  # ended or renewed meanwhile
@@ -162,6 +158,7 @@ def _requeue_or_fail(
     pipe.hset(job.key, "meta", queue.serializer.dumps(job.meta))
     job.ended_at = now()
     record_job_failure(job, f"worker {dead_worker} lost: {why}", pipe)
+    count_end(pipe, job, failure_reason(job.meta["problem"]))  # as the failure callback would
     pipe.delete(input_key(job.id))
     return ("cancelled" if cancelled else "failed"), attempts
 

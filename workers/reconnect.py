@@ -1,7 +1,9 @@
 """Reaching Redis again after it went away: a capped exponential backoff, two ways.
 
 ``until_answered`` is for what must happen (registering, taking a job's input, storing a
-result or a failure): it tries until Redis answers, waiting longer each time. ``Gate`` is for
+result or a failure): it tries until Redis answers, waiting longer each time, or until the
+worker is asked to stop (a result then stays unstored: its claim lapses and the reaper
+queues the job again, its input still in Redis). ``Gate`` is for
 what may be skipped while Redis is away (the cancel check a running job polls every 50 ms,
 its progress): it lets a call through only when the backoff allows, and answers a default
 meanwhile, so a job keeps computing through an outage instead of failing.
@@ -17,8 +19,9 @@ from typing import TypeVar
 
 from redis.exceptions import ConnectionError as RedisConnectionError
 from redis.exceptions import TimeoutError as RedisTimeoutError
+from rq.exceptions import StopRequested
 
-__all__ = ["LOST", "Backoff", "Gate", "until_answered"]
+__all__ = ["LOST", "Backoff", "Gate", "GaveUp", "until_answered"]
 
 log = logging.getLogger(__name__)
 
@@ -47,13 +50,25 @@ class Backoff:
         self.failures = 0
 
 
-def until_answered(call: Callable[[], T], what: str, cap_s: float) -> T:
-    """``call()``'s value once Redis answers it; retried with backoff while Redis is away."""
+class GaveUp(StopRequested):
+    """Redis was away and the worker was asked to stop: what was being done is left undone.
+
+    A StopRequested, so RQ's work loop ends on it as on a stop (rq.worker.BaseWorker.work)."""
+
+
+def until_answered(
+    call: Callable[[], T], what: str, cap_s: float, give_up: Callable[[], bool] | None = None
+) -> T:
+    """``call()``'s value once Redis answers it; retried with backoff while Redis is away,
+    unless ``give_up()`` says to stop trying (then ``GaveUp``)."""
     backoff = Backoff(cap_s)
     while True:
         try:
             value = call()
         except LOST as error:
+            if give_up is not None and give_up():
+                log.warning("Redis unreachable while %s (%s); giving up: stop asked", what, error)
+                raise GaveUp(what) from error
             wait = backoff.next_wait()
             log.warning("Redis unreachable while %s (%s); retrying in %.1f s", what, error, wait)
             time.sleep(wait)

@@ -9,9 +9,9 @@ computed result waits for Redis, however long). Maintenance is skipped while Red
 
 Liveness is ``workers.liveness``: a heartbeat thread, registrations and claims that lapse
 after ``dead_after_s``, a name taken over from a dead predecessor. Before storing what a job
-ended with, the worker checks it still holds the job's claim; one reaped meanwhile
-(``workers.reaper``: the worker was cut off too long) belongs to another attempt, and this
-one's result is dropped.
+ended with, the worker renews the job's claim if it still holds it (one MULTI/EXEC, which
+aborts a reap that read the old score); one reaped meanwhile (``workers.reaper``: the worker
+was cut off too long) belongs to another attempt, and this one's outcome is dropped.
 """
 
 import logging
@@ -30,8 +30,9 @@ from rq.registry import (
     ReadyJobRegistry,
     StartedJobRegistry,
 )
-from rq.utils import now
+from rq.utils import current_timestamp, now
 
+from workers.claim import Claim, holding
 from workers.liveness import Heartbeat, claim_name, release_name
 from workers.reconnect import LOST, Backoff, until_answered
 from workers.settings import WorkerSettings
@@ -43,6 +44,10 @@ log = logging.getLogger(__name__)
 
 _DEATH_ATTEMPTS = 3
 """Tries at registering death on shutdown; after them the registration lapses by itself."""
+
+_FAILURE_ATTEMPTS = 8
+"""Tries at storing a failure Redis answered but did not keep (not an outage: a refused
+command); after them the job is left to the reaper."""
 
 
 class ResilientWorker(SimpleWorker):
@@ -65,7 +70,11 @@ class ResilientWorker(SimpleWorker):
         self._abandoned: list[Execution] = []
 
     def _until_answered(self, what: str, call: Any) -> Any:
-        return until_answered(call, what, self.settings.redis_backoff_max_s)
+        return until_answered(call, what, self.settings.redis_backoff_max_s, self.stop_asked)
+
+    def stop_asked(self) -> bool:
+        """Was this worker asked to stop (a first SIGTERM, or a stop command)?"""
+        return bool(self._stop_requested)
 
     # Liveness: one lifetime for the registration and every claim, renewed by the thread.
 
@@ -97,6 +106,14 @@ class ResilientWorker(SimpleWorker):
         if self.heartbeat_thread.is_alive():
             self.heartbeat_thread.stop()
         super().teardown()  # type: ignore[no-untyped-call]
+
+    def set_shutdown_requested_date(self) -> None:
+        # Called from RQ's SIGTERM handler, so an error here lands in whatever the main thread
+        # was doing (waiting on the computation) and fails the job; the field is informational.
+        try:
+            super().set_shutdown_requested_date()  # type: ignore[no-untyped-call]
+        except LOST as error:
+            log.warning("worker %s: stop request not recorded, Redis away (%s)", self.name, error)
 
     def register_death(self) -> None:
         for _ in range(_DEATH_ATTEMPTS):
@@ -168,6 +185,16 @@ class ResilientWorker(SimpleWorker):
             )
         return execution
 
+    def perform_job(self, job: Job, queue: Queue, execution: Execution) -> bool:
+        claim = Claim(
+            connection=self.connection,
+            registry_key=StartedJobRegistry(job.origin, self.connection).key,
+            member=execution.composite_key,
+            stop_asked=self.stop_asked,
+        )
+        with holding(claim):
+            return bool(super().perform_job(job, queue, execution))
+
     def prepare_job_execution(self, job: Job, remove_from_intermediate_queue: bool = False) -> None:
         self._until_answered(
             f"starting job {job.id}",
@@ -182,22 +209,43 @@ class ResilientWorker(SimpleWorker):
             lambda: super(ResilientWorker, self).handle_execution_ended(job, queue, heartbeat_ttl),
         )
 
-    def _holds(self, job: Job, execution: Execution) -> bool:
-        """Is the claim of ``execution`` still ours (not reaped, not lost with Redis's data)?"""
+    def _renew_claim(self, job: Job, execution: Execution) -> bool:
+        """Renew the claim of ``execution`` for one lifetime iff it is still there; is it ours?
+
+        One MULTI/EXEC (renew only if present, then read it), run right before a store: a reap
+        that read the old score is aborted by the renewal (the reaper watches the registry),
+        and a reap done before it leaves nothing to renew."""
         key = StartedJobRegistry(job.origin, self.connection).key
-        held = self._until_answered(
-            f"checking the claim of job {job.id}",
-            lambda: self.connection.zscore(key, execution.composite_key) is not None,
-        )
-        if not held:
-            log.warning(
-                "worker %s: job %s was reaped while this worker was cut off; its outcome here "
-                "is dropped (the job was queued again or failed as worker-lost)",
-                self.name,
-                job.id,
+        with self.connection.pipeline() as pipe:
+            pipe.zadd(
+                key,
+                {execution.composite_key: current_timestamp() + self.settings.dead_after_s},
+                xx=True,
             )
-            self.executions.pop(execution.id, None)
-        return bool(held)
+            pipe.zscore(key, execution.composite_key)
+            held = pipe.execute()[1] is not None
+        return held
+
+    def _dropped(self, job: Job, execution: Execution) -> None:
+        """The claim was gone at the store: reaped, or removed by our own store whose answer
+        Redis lost (the retry then finds the job ended). An ended job's input is not needed
+        by any attempt; a requeued one's is."""
+        self.executions.pop(execution.id, None)
+        try:
+            status = self._until_answered(
+                f"reading the state of job {job.id}", lambda: job.get_status(refresh=True)
+            )
+        except InvalidJobOperation:  # expired meanwhile
+            return
+        if status in (JobStatus.FINISHED, JobStatus.FAILED):
+            self._drop_input(job)
+            return
+        log.warning(
+            "worker %s: job %s was reaped while this worker was cut off; its outcome here "
+            "is dropped (the job was queued again)",
+            self.name,
+            job.id,
+        )
 
     def _drop_input(self, job: Job) -> None:
         """The input stays while a job runs, so a retry after a crash finds it."""
@@ -209,14 +257,17 @@ class ResilientWorker(SimpleWorker):
     def handle_job_success(
         self, job: Job, queue: Queue, started_job_registry: StartedJobRegistry, execution: Execution
     ) -> None:
-        if not self._holds(job, execution):
-            return
-        self._until_answered(
-            f"storing the result of job {job.id}",
-            lambda: super(ResilientWorker, self).handle_job_success(
+        def store() -> bool:
+            if not self._renew_claim(job, execution):
+                return False
+            super(ResilientWorker, self).handle_job_success(
                 job, queue, started_job_registry, execution
-            ),
-        )
+            )
+            return True
+
+        if not self._until_answered(f"storing the result of job {job.id}", store):
+            self._dropped(job, execution)
+            return
         self._drop_input(job)
 
     def handle_job_failure(
@@ -227,21 +278,34 @@ class ResilientWorker(SimpleWorker):
         exc_string: str = "",
         execution: Execution | None = None,
     ) -> None:
-        if execution is not None and not self._holds(job, execution):
-            return
-        backoff = Backoff(self.settings.redis_backoff_max_s)
-        while True:
-            # RQ logs a failure it could not store and goes on: look whether it was stored.
-            self._until_answered(
-                f"storing the failure of job {job.id}",
-                lambda: super(ResilientWorker, self).handle_job_failure(
-                    job, queue, started_job_registry, exc_string, execution
-                ),
+        def store() -> bool:
+            if execution is not None and not self._renew_claim(job, execution):
+                return False
+            super(ResilientWorker, self).handle_job_failure(
+                job, queue, started_job_registry, exc_string, execution
             )
+            return True
+
+        backoff = Backoff(self.settings.redis_backoff_max_s)
+        for _ in range(_FAILURE_ATTEMPTS):
+            # RQ logs a failure it could not store and goes on: look whether it was stored.
+            if not self._until_answered(f"storing the failure of job {job.id}", store):
+                if execution is not None:
+                    self._dropped(job, execution)
+                return
             if self._failure_stored(job):
-                break
+                self._drop_input(job)
+                return
             time.sleep(backoff.next_wait())
-        self._drop_input(job)
+        log.error(
+            "worker %s: the failure of job %s could not be stored after %d attempts; its claim "
+            "lapses and the reaper takes the job",
+            self.name,
+            job.id,
+            _FAILURE_ATTEMPTS,
+        )
+        if execution is not None:
+            self.executions.pop(execution.id, None)
 
     def _failure_stored(self, job: Job) -> bool:
         try:

@@ -39,15 +39,27 @@ def build_worker(
     """A worker bound to ``queue_name`` that never unpickles (JSONSerializer throughout);
     waits for Redis if it is not there yet."""
     settings = settings or WorkerSettings()
-    connection = Redis.from_url(redis_url)
+    beat_timeout = max(1.0, settings.dead_after_s / 3)
+    # A half-open TCP connection (a peer gone without a FIN) would block a read forever: TCP
+    # keepalive and a socket timeout end it. The timeout must outlast RQ's blocking dequeue
+    # (BLMOVE for worker_ttl - 15 s, rq.worker.BaseWorker.dequeue_timeout, worker_ttl being
+    # dead_after_s + 15 here), or an idle worker would time out and quit: RQ's own
+    # connection_timeout, dequeue timeout + 10 s, which RQ would raise it to anyway.
+    connection = Redis.from_url(
+        redis_url,
+        socket_timeout=settings.dead_after_s + 10,
+        socket_connect_timeout=beat_timeout,
+        socket_keepalive=True,
+        health_check_interval=settings.dead_after_s,
+    )
     # The heartbeat's own connection: no retries inside redis-py, so the thread sees every
     # failed beat, and a socket timeout well inside a lifetime.
-    beat_timeout = max(1.0, settings.dead_after_s / 3)
     beat_connection = Redis.from_url(
         redis_url,
         retry=Retry(NoBackoff(), 0),
         socket_timeout=beat_timeout,
         socket_connect_timeout=beat_timeout,
+        socket_keepalive=True,
     )
     queue = Queue(queue_name, connection=connection, serializer=JSONSerializer)
     worker_name = name or f"lacuna-{socket.gethostname()}-{uuid.uuid4().hex[:8]}"

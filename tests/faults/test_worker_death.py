@@ -11,6 +11,7 @@ from tests.support.bodies import rips_job
 from tests.support.faults import BOUND_S, FaultLab, ready_workers, slow_rips_job
 from tests.support.waiting import wait_until
 from tests.support.worker_process import start_worker
+from workers.spec.metrics import cancelled_key, failures_key
 
 pytestmark = pytest.mark.slow
 
@@ -45,6 +46,8 @@ def test_a_job_whose_every_attempt_is_killed_fails_worker_lost(lab: FaultLab) ->
     assert problem["type"].endswith(WORKER_LOST)
     assert "each of its 2 attempts" in problem["detail"]
     assert lab.job(job_id).meta["lost_attempts"] == 2
+    # Counted for /metrics like any failure, though no worker's failure callback ran.
+    assert lab.connection().hget(failures_key(lab.queue), WORKER_LOST) == b"1"
 
 
 def test_readyz_counts_only_live_workers(lab: FaultLab) -> None:
@@ -102,3 +105,4 @@ def test_a_job_cancelled_after_its_worker_died_ends_cancelled_not_run_again(
     ended = lab.wait_for(job_id, {"succeeded", "failed", "cancelled"})
     assert ended["status"] == "cancelled", ended
     assert lab.job(job_id).worker_name == victim  # never taken by the survivor
+    assert lab.connection().zscore(cancelled_key(lab.queue), job_id) is not None  # counted

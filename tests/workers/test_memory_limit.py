@@ -279,3 +279,30 @@ def test_cap_is_lifted_after_the_block() -> None:
             np.ones(4 * 16 * MIB // 8)
     assert resource.getrlimit(resource.RLIMIT_AS)[0] == soft
     assert np.ones(4 * 16 * MIB // 8).sum() == 4 * 16 * MIB // 8
+
+
+_KEPT: list[bytearray] = []
+"""What the first job of ``_fragments_then_new_mmap`` leaves behind in its child."""
+
+
+def _fragments_then_new_mmap(header: dict[str, Any], data: bytes, report: Report) -> dict[str, Any]:
+    """Uncapped: leave 80 MiB of 64 KiB free chunks, each between two kept ones, so malloc
+    can neither give them back nor fit a large block in one (malloc(3): free chunks are
+    reused, a block above the mmap threshold gets a mapping of its own). Capped: 4 MiB of
+    new memory in one array."""
+    if header["memory_limit_mb"] is None:
+        chunks = [bytearray(64 * 1024) for _ in range(2 * 1280)]
+        _KEPT.extend(chunks[1::2])
+        del chunks
+        return {"kept": len(_KEPT)}
+    return {"sum": float(np.ones(4 * MIB // 8).sum())}
+
+
+def test_a_child_holding_free_chunks_still_gives_a_capped_job_its_limit() -> None:
+    compute = ComputeProcess(_fragments_then_new_mmap)
+    try:
+        assert run(compute, None) == {"kept": 1280}
+        # 20 MiB of limit, 4 MiB asked: the 80 MiB malloc keeps must not make it fail.
+        assert run(compute, 20) == {"sum": 4 * MIB // 8}
+    finally:
+        compute.close()

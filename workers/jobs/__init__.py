@@ -17,9 +17,12 @@ from typing import Any, cast
 
 import numpy as np
 from pydantic import ValidationError
+from redis.exceptions import WatchError
 from rq import get_current_job
 from rq.job import Job
 
+from workers.claim import Claim
+from workers.claim import current as current_claim
 from workers.compute import ComputeProcess, JobAborted, Report, problem_for
 from workers.core.errors import pointing_into
 from workers.jobs import distances
@@ -112,10 +115,59 @@ def _backoff_cap_s() -> float:
     return WorkerSettings().redis_backoff_max_s
 
 
-def _save_progress(job: Job, gate: Gate, done: int, total: int) -> None:
+_META_WRITE_ATTEMPTS = 5
+"""Tries at one meta field when the job's hash or the registry changed under the write (a
+heartbeat renewing claims touches the registry every interval)."""
+
+
+def _write_meta_field(job: Job, claim: Claim | None, field: str, value: Any) -> bool:
+    """Set ``job.meta[field]`` in Redis, leaving the other fields as Redis has them, and only
+    while ``claim`` is held: RQ keeps the meta as one serialized field, and a worker that was
+    reaped must not write the copy it holds over the next attempt's (its ``lost_attempts``).
+    False when the claim is gone or the write kept colliding. Raises when Redis is away."""
+    connection = job.connection
+    for _ in range(_META_WRITE_ATTEMPTS):
+        with connection.pipeline() as pipe:
+            watched = [job.key] if claim is None else [job.key, claim.registry_key]
+            pipe.watch(*watched)  # type: ignore[no-untyped-call]
+            if claim is not None and pipe.zscore(claim.registry_key, claim.member) is None:
+                return False
+            raw = pipe.hget(job.key, "meta")
+            meta = (
+                job.serializer.loads(raw.encode() if isinstance(raw, str) else raw) if raw else {}
+            )
+            meta[field] = value
+            pipe.multi()
+            pipe.hset(job.key, "meta", job.serializer.dumps(meta))
+            try:
+                pipe.execute()
+            except WatchError:
+                continue
+        job.meta = meta
+        return True
+    return False
+
+
+def _save_progress(job: Job, claim: Claim | None, gate: Gate, done: int, total: int) -> None:
     """Progress is shown, not needed: while Redis is away it is skipped, not waited for."""
-    job.meta["progress"] = {"done": done, "total": total}
-    gate.call(job.save_meta, None)
+    gate.call(
+        lambda: _write_meta_field(job, claim, "progress", {"done": done, "total": total}), False
+    )
+
+
+def _should_stop(job: Job, claim: Claim | None, gate: Gate) -> bool:
+    """Was the job asked to cancel, or reaped (its claim gone: another attempt owns it)?
+    While Redis is away: neither, and the computation goes on."""
+
+    def look() -> bool:
+        pipe = job.connection.pipeline(transaction=False)
+        pipe.exists(cancel_key(job.id))
+        if claim is not None:
+            pipe.zscore(claim.registry_key, claim.member)
+        answers = pipe.execute()
+        return bool(answers[0]) or (claim is not None and answers[1] is None)
+
+    return bool(gate.call(look, False))
 
 
 def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
@@ -124,13 +176,16 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
     The input stays in Redis until the worker has stored how the job ended
     (``workers.resilient``), so an attempt after a crash finds it. Redis going away does not
     stop a computation: the cancel check and progress wait for it (``workers.reconnect``),
-    and the worker stores the outcome once it is back.
+    and the worker stores the outcome once it is back. Progress and the problem are written
+    only while the job's claim is held (``workers.claim``), and a reaped job stops.
     """
     job = get_current_job()
     if job is None:
         raise RuntimeError("workers.jobs.run must run inside an RQ worker")
     connection = job.connection
     cap_s = _backoff_cap_s()
+    claim = current_claim()
+    give_up = None if claim is None else claim.stop_asked
     try:
         try:
             payload = JobPayload.model_validate(raw_payload)
@@ -144,7 +199,9 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
             pipe.get(input_key(job.id))
             return list(pipe.execute())
 
-        cancelled, stored = until_answered(cancelled_and_input, f"reading job {job.id}", cap_s)
+        cancelled, stored = until_answered(
+            cancelled_and_input, f"reading job {job.id}", cap_s, give_up
+        )
         if cancelled:
             raise JobAborted(failures.cancelled())
         array = _checked_input(stored, payload)
@@ -161,13 +218,16 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
             payload=payload,
             input_bytes=stored,
             time_limit_s=payload.time_limit_s,
-            should_stop=lambda: bool(
-                cancel_gate.call(lambda: connection.exists(cancel_key(job.id)), 0)
-            ),
-            on_progress=lambda done, total: _save_progress(job, progress_gate, done, total),
+            should_stop=lambda: _should_stop(job, claim, cancel_gate),
+            on_progress=lambda done, total: _save_progress(job, claim, progress_gate, done, total),
         )
     except JobAborted as aborted:
         problem: Problem = aborted.problem
-        job.meta["problem"] = problem.model_dump(mode="json", exclude_none=True)
-        until_answered(job.save_meta, f"storing the problem of job {job.id}", cap_s)
+        body = problem.model_dump(mode="json", exclude_none=True)
+        until_answered(
+            lambda: _write_meta_field(job, claim, "problem", body),
+            f"storing the problem of job {job.id}",
+            cap_s,
+            give_up,
+        )
         raise JobFailed(problem.detail or problem.title) from None
