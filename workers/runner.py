@@ -45,12 +45,14 @@ def build_worker(
     # (BLMOVE for worker_ttl - 15 s, rq.worker.BaseWorker.dequeue_timeout, worker_ttl being
     # dead_after_s + 15 here), or an idle worker would time out and quit: RQ's own
     # connection_timeout, dequeue timeout + 10 s, which RQ would raise it to anyway.
+    # TCP keepalive is a TCP option: a unix socket (the embedded Redis) takes none.
+    keepalive = {"socket_keepalive": True} if not redis_url.startswith("unix:") else {}
     connection = Redis.from_url(
         redis_url,
         socket_timeout=settings.dead_after_s + 10,
         socket_connect_timeout=beat_timeout,
-        socket_keepalive=True,
         health_check_interval=settings.dead_after_s,
+        **keepalive,
     )
     # The heartbeat's own connection: no retries inside redis-py, so the thread sees every
     # failed beat, and a socket timeout well inside a lifetime.
@@ -59,7 +61,7 @@ def build_worker(
         retry=Retry(NoBackoff(), 0),
         socket_timeout=beat_timeout,
         socket_connect_timeout=beat_timeout,
-        socket_keepalive=True,
+        **keepalive,
     )
     queue = Queue(queue_name, connection=connection, serializer=JSONSerializer)
     worker_name = name or f"lacuna-{socket.gethostname()}-{uuid.uuid4().hex[:8]}"
