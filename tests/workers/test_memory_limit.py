@@ -19,13 +19,15 @@ import gudhi
 import numpy as np
 import pytest
 
+from tests.support.bodies import rips_payload
 from tests.support.processes import running
 from workers.compute import ComputeProcess, JobAborted, Report
 from workers.jobs import execute_bytes, pairwise
+from workers.jobs import points as _points  # noqa: F401  (imported before forking, as a worker does)
 from workers.memory import MIB, address_space, address_space_cap, headroom
 from workers.settings import WorkerSettings
-from workers.spec import SCHEMA_VERSION, DistanceTask, JobPayload
-from workers.spec.arrays import array_sha256, to_npy_bytes
+from workers.spec import DistanceTask, JobPayload
+from workers.spec.arrays import to_npy_bytes
 
 LIMIT_MB = 64
 MEMORY_LIMIT = "urn:lacuna:problem:memory-limit"
@@ -41,20 +43,7 @@ def capped_test_process() -> Iterator[None]:
 
 
 def payload(points: np.ndarray, limit_mb: int | None, max_dim: int = 0) -> JobPayload:
-    return JobPayload.model_validate(
-        {
-            "schema_version": SCHEMA_VERSION,
-            "input": {
-                "type": "points",
-                "shape": list(points.shape),
-                "sha256": array_sha256(points),
-            },
-            "task": {"type": "persistence", "filtration": {"type": "rips", "max_dim": max_dim}},
-            "request_sha256": "0" * 64,
-            "time_limit_s": 60,
-            "memory_limit_mb": limit_mb,
-        }
-    )
+    return rips_payload(points, max_dim=max_dim, time_limit_s=60, memory_limit_mb=limit_mb)
 
 
 def run(

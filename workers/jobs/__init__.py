@@ -12,6 +12,7 @@ plot tasks to ``workers.pictures``.
 
 import functools
 import importlib
+import pkgutil
 import time
 from typing import Any, cast
 
@@ -79,6 +80,11 @@ def compute_process() -> ComputeProcess:
     """This worker's compute child, forked on first use (the runner forks it at start-up)."""
     global _compute
     if _compute is None:
+        # The kind modules are imported lazily by kind_worker; import them all before the fork,
+        # so the child inherits them and no job maps a library (gudhi, scikit-image) under its
+        # memory cap, in every fresh child again.
+        for module in pkgutil.iter_modules(__path__):
+            importlib.import_module(f"{__name__}.{module.name}")
         _compute = ComputeProcess(execute_bytes)
     return _compute
 
