@@ -17,7 +17,7 @@ import requests
 from redis import Redis
 from rq import Worker
 
-from tests.support.bodies import rips_job
+from tests.support.bodies import PERSISTENCE_IMAGE_SPEC, rips_job
 from tests.support.ports import free_port
 from tests.support.processes import descendants, running
 from tests.support.stack import wait_ready
@@ -29,15 +29,7 @@ pytestmark = [pytest.mark.e2e, pytest.mark.slow]
 
 WAIT = {"Prefer": "wait=30"}
 
-SPEC: dict[str, Any] = {
-    "type": "persistence_image",
-    "dim": 1,
-    "birth_range": [0.0, 1.0],
-    "persistence_range": [0.0, 2.0],
-    "resolution": [4, 8],
-    "sigma": 0.1,
-    "weight": {"type": "power", "exponent": 1.0},
-}
+SPEC = PERSISTENCE_IMAGE_SPEC
 
 
 def _hexagon_h2(answer: requests.Response) -> None:

@@ -32,7 +32,7 @@ from tests.support.api import (
     said,
     stored_jobs,
 )
-from tests.support.bodies import rips_job
+from tests.support.bodies import PERSISTENCE_IMAGE_SPEC, rips_job
 from tests.support.references import landscape_by_definition
 from tests.support.synthetic import noisy_circle
 from workers.jobs.features import feature_values
@@ -43,15 +43,7 @@ from workers.spec.features import FEATURE_SPEC_VERSION, spec_id_of
 SPECS = "/v1/feature-specs"
 NPY = "application/x-npy"
 
-IMAGE: dict[str, Any] = {
-    "type": "persistence_image",
-    "dim": 1,
-    "birth_range": [0.0, 1.0],
-    "persistence_range": [0.0, 2.0],
-    "resolution": [4, 8],
-    "sigma": 0.1,
-    "weight": {"type": "power", "exponent": 1.0},
-}
+IMAGE = PERSISTENCE_IMAGE_SPEC
 LANDSCAPE: dict[str, Any] = {
     "type": "landscape",
     "dim": 1,

@@ -1,9 +1,24 @@
-"""Request bodies many tests send, written once so that a change to the request format is
-made in one place."""
+"""Request bodies (and queue payloads) many tests send, written once so that a change to the
+request format is made in one place."""
 
 from typing import Any
 
+import numpy as np
+
 from tests.support.synthetic import HEXAGON
+from workers.spec import SCHEMA_VERSION, JobPayload
+from workers.spec.arrays import array_sha256
+
+PERSISTENCE_IMAGE_SPEC: dict[str, Any] = {
+    "type": "persistence_image",
+    "dim": 1,
+    "birth_range": [0.0, 1.0],
+    "persistence_range": [0.0, 2.0],
+    "resolution": [4, 8],
+    "sigma": 0.1,
+    "weight": {"type": "power", "exponent": 1.0},
+}
+"""A small persistence image feature spec (32 values), valid everywhere."""
 
 
 def rips_job(
@@ -25,3 +40,24 @@ def rips_job(
     if features is not None:
         body["features"] = features
     return body
+
+
+def rips_payload(
+    points: np.ndarray, *, max_dim: int, time_limit_s: float, memory_limit_mb: int | None = None
+) -> JobPayload:
+    """The queue payload of a Rips job on ``points``, as the API would store it (for tests that
+    drive the compute child directly, without Redis)."""
+    return JobPayload.model_validate(
+        {
+            "schema_version": SCHEMA_VERSION,
+            "input": {
+                "type": "points",
+                "shape": list(points.shape),
+                "sha256": array_sha256(points),
+            },
+            "task": {"type": "persistence", "filtration": {"type": "rips", "max_dim": max_dim}},
+            "request_sha256": "0" * 64,
+            "time_limit_s": time_limit_s,
+            "memory_limit_mb": memory_limit_mb,
+        }
+    )

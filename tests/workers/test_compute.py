@@ -7,28 +7,17 @@ from collections.abc import Iterator
 import numpy as np
 import pytest
 
+from tests.support.bodies import rips_payload
 from tests.support.processes import running
 from tests.support.waiting import finishes, wait_until
 from workers.compute import ComputeProcess, JobAborted, Report
 from workers.jobs import execute_bytes
-from workers.spec import SCHEMA_VERSION, JobPayload
-from workers.spec.arrays import array_sha256, to_npy_bytes
+from workers.spec import JobPayload
+from workers.spec.arrays import to_npy_bytes
 
 
 def payload(points: np.ndarray, max_dim: int) -> JobPayload:
-    return JobPayload.model_validate(
-        {
-            "schema_version": SCHEMA_VERSION,
-            "input": {
-                "type": "points",
-                "shape": list(points.shape),
-                "sha256": array_sha256(points),
-            },
-            "task": {"type": "persistence", "filtration": {"type": "rips", "max_dim": max_dim}},
-            "request_sha256": "0" * 64,
-            "time_limit_s": 1,
-        }
-    )
+    return rips_payload(points, max_dim=max_dim, time_limit_s=1)
 
 
 @pytest.fixture
