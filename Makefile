@@ -37,15 +37,24 @@ lint: install-dev
 	$(BIN)/ruff format --check lacuna_client service workers tests
 	$(BIN)/mypy
 
-# Headless Chromium for the job page test, from Debian's packages where apt-get is there and
-# we may use it; elsewhere that one test is skipped and says why.
+# Headless Chromium for the job page's browser test (tests/e2e/test_browser.py). Installing it
+# means system packages (Debian's chromium and chromium-driver, a few hundred MB through
+# apt-get), so this says so before it does it, and `make test BROWSER=skip` skips the install
+# (the browser test is then skipped, and says why). Without apt-get as root it tells how to get
+# it. `make browser` alone installs it.
+BROWSER ?= install
 browser:
-	@if command -v chromium >/dev/null; then :; \
+	@if command -v chromium >/dev/null || command -v chromium-browser >/dev/null; then :; \
+	elif [ "$(BROWSER)" = skip ]; then \
+		echo "BROWSER=skip: not installing chromium; the browser test will be skipped"; \
 	elif command -v apt-get >/dev/null && [ "$$(id -u)" = 0 ]; then \
+		echo "installing system packages chromium and chromium-driver (apt-get) for the browser" \
+		     "test; 'make test BROWSER=skip' skips this and that test"; \
 		DEBIAN_FRONTEND=noninteractive apt-get install -y -q chromium chromium-driver >/dev/null \
 		|| { apt-get update -q >/dev/null && DEBIAN_FRONTEND=noninteractive \
 		     apt-get install -y -q chromium chromium-driver >/dev/null; }; \
-	else echo "no chromium and no apt-get as root: the browser test will be skipped"; fi
+	else echo "no chromium, and no apt-get as root to install it: the browser test will be" \
+		"skipped (install chromium, or run 'make browser' as root)"; fi
 
 # Redis: the suite starts its own redis-server on a free port and stops it afterwards; it
 # never touches another (LACUNA_TEST_REDIS_URL names a shared one explicitly).
