@@ -10,6 +10,8 @@ run. ``LACUNA_TEST_REDIS_URL`` is the only way to name a shared Redis, and it is
 import os
 import subprocess
 import sys
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 import pytest
@@ -34,57 +36,58 @@ def _connections(redis: Redis) -> int:
     return int(redis.info("stats")["total_connections_received"])
 
 
-@pytest.mark.slow
-def test_a_test_run_leaves_a_bystander_redis_alone(tmp_path: Path) -> None:
-    with own_redis_server() as bystander:
+@contextmanager
+def _bystander() -> Iterator[str]:
+    """Somebody's Redis, holding a key in each of DATABASES."""
+    with own_redis_server() as url:
         for db in DATABASES:
-            Redis.from_url(with_database(bystander, db)).set("their-queue", f"job of db {db}")
+            Redis.from_url(with_database(url, db)).set("their-queue", f"job of db {db}")
+        yield url
+
+
+def _pytest(environment: dict[str, str], *tests: str) -> subprocess.CompletedProcess[str]:
+    run = subprocess.run(
+        [sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", *tests],
+        cwd=ROOT,
+        env=environment,
+        capture_output=True,
+        text=True,
+        timeout=600,
+    )
+    assert run.returncode == 0, run.stdout[-3000:] + run.stderr[-3000:]
+    return run
+
+
+def _left(url: str) -> dict[int, bytes | None]:
+    return {db: Redis.from_url(with_database(url, db)).get("their-queue") for db in DATABASES}
+
+
+@pytest.mark.slow
+def test_a_test_run_leaves_a_bystander_redis_alone() -> None:
+    with _bystander() as bystander:
         watcher = Redis.from_url(with_database(bystander, 0))
         before = _connections(watcher)  # the watcher's one connection is open already
         environment = {
             key: value for key, value in os.environ.items() if key != SHARED_URL_VARIABLE
         }
         environment["LACUNA_REDIS_URL"] = with_database(bystander, 13)
-        run = subprocess.run(
-            [sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", *RUN],
-            cwd=ROOT,
-            env=environment,
-            capture_output=True,
-            text=True,
-            timeout=600,
-        )
-        assert run.returncode == 0, run.stdout[-3000:] + run.stderr[-3000:]
-        assert "3 passed" in run.stdout, run.stdout[-2000:]
-        # Not one connection from the run (the check can fail: a run that reads
-        # LACUNA_REDIS_URL would connect, and FLUSHDB would empty the databases).
+        run = _pytest(environment, *RUN)
+        assert f"{len(RUN)} passed" in run.stdout, run.stdout[-2000:]
+        # Not one connection from the run (the next test shows this check can fail: a run
+        # that used the bystander would connect, and its FLUSHDB would empty a database).
         assert _connections(watcher) == before
-        for db in DATABASES:
-            value = Redis.from_url(with_database(bystander, db)).get("their-queue")
-            assert value == f"job of db {db}".encode()
+        assert _left(bystander) == {db: f"job of db {db}".encode() for db in DATABASES}
 
 
 @pytest.mark.slow
 def test_the_check_sees_a_run_that_uses_the_bystander() -> None:
     """The same watch catches a run that does use it: named by LACUNA_TEST_REDIS_URL, the
     suite connects and flushes its databases 12 to 14 (and only those)."""
-    with own_redis_server() as bystander:
-        for db in DATABASES:
-            Redis.from_url(with_database(bystander, db)).set("their-queue", f"job of db {db}")
+    with _bystander() as bystander:
         watcher = Redis.from_url(with_database(bystander, 0))
         before = _connections(watcher)
-        environment = dict(os.environ, **{SHARED_URL_VARIABLE: with_database(bystander, 0)})
-        run = subprocess.run(
-            [sys.executable, "-m", "pytest", "-q", "-p", "no:cacheprovider", RUN[1]],
-            cwd=ROOT,
-            env=environment,
-            capture_output=True,
-            text=True,
-            timeout=300,
-        )
-        assert run.returncode == 0, run.stdout[-3000:] + run.stderr[-3000:]
+        _pytest(dict(os.environ, **{SHARED_URL_VARIABLE: with_database(bystander, 0)}), RUN[1])
         assert _connections(watcher) > before
-        left = {
-            db: Redis.from_url(with_database(bystander, db)).get("their-queue") for db in DATABASES
-        }
+        left = _left(bystander)
         assert left[0] is not None and left[11] is not None
         assert left[13] is None  # the flushed test database
