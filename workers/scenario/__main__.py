@@ -1,5 +1,6 @@
 """``lacuna demo [all|network|cells|masks|images] --out DIR [--count N] [--seed S]`` (which
-runs ``python -m workers.scenario``): write synthetic demo inputs for lacuna, each kind with a README.txt.
+runs ``python -m workers.scenario``): write synthetic demo inputs for lacuna, each kind
+with a README.txt.
 
 ``network`` writes capillary-network job requests (JSON) and the same graphs as GraphML;
 ``cells`` two-population cell tables (CSV); ``masks`` 2D vessel masks (PNG) and 3D tube masks
