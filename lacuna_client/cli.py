@@ -491,7 +491,7 @@ def build_parser() -> argparse.ArgumentParser:
         formatter_class=_Formatter,
     )
     parser.add_argument("--version", action=_Version)
-    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    commands = parser.add_subparsers(dest="command", required=True)
     for name, program in PROGRAMS.items():
         commands.add_parser(name, help=f"{program.help} (see lacuna {name} --help)", add_help=False)
     _client_commands(commands)
