@@ -1,6 +1,6 @@
 """The Python client of the lacuna API and the ``lacuna`` command line.
 
-    from lacuna_client import Client, LacunaError
+    from lacuna_client import Client, Distances, LacunaError
 
 It needs requests, numpy and tqdm, and imports nothing of the server (``pip install lacuna``;
 the server is ``pip install 'lacuna[server]'``). The names below are loaded on first use
@@ -11,9 +11,9 @@ numpy.
 from typing import TYPE_CHECKING, Any
 
 if TYPE_CHECKING:
-    from lacuna_client.client import Client, LacunaError
+    from lacuna_client.client import Client, Distances, LacunaError
 
-__all__ = ["Client", "LacunaError"]
+__all__ = ["Client", "Distances", "LacunaError"]
 
 
 def __getattr__(name: str) -> Any:

@@ -8,15 +8,25 @@ Each file becomes a job request the way its extension says (``--input-type`` ove
     .graphml          graph (uploaded as it is)
     .json             a whole job request (with "input"), or a graph's "nodes" and "edges"
 
-Results are written as ``<stem>.result.json`` (or ``<stem>.problem.json`` for a job that
-failed) next to each input or into ``--out``; the feature vectors of all jobs are stacked, one
-row per input in the order given, into ``vectors.npy`` and ``vectors.csv``, and
-``vectors.json`` says which file each row is, the spec_ids and the layout.
+Each input gets its own result file, named after the whole file name, extension included,
+so ``rings.png``, ``rings.tif`` and ``rings.npy`` never share one:
+
+    without --out   next to the input: a/rings.png -> a/rings.png.result.json
+    --out DIR       in DIR, in the folder tree of the inputs below the deepest folder
+                    they all share: a/rings.csv and b/rings.csv -> DIR/a/rings.csv.result.json
+                    and DIR/b/rings.csv.result.json; inputs of one folder land in DIR itself
+
+A job that failed writes ``.problem.json`` in place of ``.result.json``; a file given twice
+is refused. The feature vectors of all jobs are stacked, one row per input in the order
+given, into ``vectors.npy`` and ``vectors.csv`` (its ``file`` column holds each input's path
+as given), and ``vectors.json`` says which file, job and result file each row is, the
+spec_ids and the layout.
 """
 
 import csv
 import io
 import json
+import os
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -26,7 +36,15 @@ import numpy as np
 
 from lacuna_client.client import Client, LacunaError
 
-__all__ = ["BatchError", "BatchOptions", "FileJob", "LayoutMismatch", "request_of", "run_batch"]
+__all__ = [
+    "BatchError",
+    "BatchOptions",
+    "FileJob",
+    "LayoutMismatch",
+    "request_of",
+    "result_stems",
+    "run_batch",
+]
 
 Json = dict[str, Any]
 
@@ -69,16 +87,26 @@ class BatchOptions:
     units: str | None = None
     columns: list[str] | None = None
     skeletonize: bool = False
+    output: list[str] | None = None
+    descriptors: Json | None = None
+    max_dim: int | None = None
+    fields: tuple[tuple[str, Any], ...] = ()
+    """``(dotted.field, value)`` pairs set last, over everything else."""
 
 
 @dataclass
 class FileJob:
-    """One input file and what became of it."""
+    """One input file and what became of it: ``status`` is the job's end ("succeeded",
+    "failed", "cancelled", "timeout"; "refused" when it could not be submitted), ``written``
+    the result or problem file."""
 
     path: Path
+    stem: Path
     job_id: str | None = None
     result: Json | None = None
     problem: Json | None = None
+    status: str | None = None
+    written: Path | None = None
 
 
 def request_of(path: Path, options: BatchOptions) -> tuple[Json, bytes | None]:
@@ -122,7 +150,55 @@ def request_of(path: Path, options: BatchOptions) -> tuple[Json, bytes | None]:
         body["filtration"] = {"type": DEFAULT_FILTRATIONS[given["type"]]}
     if options.features is not None:
         body["features"] = options.features
+    if options.output is not None:
+        body["output"] = options.output
+    if options.descriptors is not None:
+        body["descriptors"] = options.descriptors
+    if options.max_dim is not None:
+        if not isinstance(body.get("filtration"), dict):
+            raise BatchError(f"{path}: --max-dim needs a filtration (--filtration)")
+        body["filtration"] = {**body["filtration"], "max_dim": options.max_dim}
+    for name, value in options.fields:
+        _set_field(body, name, value)
     return body, data
+
+
+def _set_field(body: Json, name: str, value: Any) -> None:
+    """Set the dotted field ``name`` of ``body`` (``filtration.max_edge``), making the
+    objects on the way."""
+    *parents, last = name.split(".")
+    target = body
+    for part in parents:
+        child = target.get(part)
+        if child is None:
+            child = target[part] = {}
+        if not isinstance(child, dict):
+            raise BatchError(f"--set {name}: {part} is not an object in the request")
+        target = child
+    target[last] = value
+
+
+def result_stems(paths: Sequence[Path], out: Path | None) -> list[Path]:
+    """Where each input's result goes, without the ``.result.json`` / ``.problem.json``
+    ending (see the module docstring); BatchError for a file given twice."""
+    absolute = [Path(os.path.normpath(os.path.abspath(path))) for path in paths]
+    seen: dict[Path, Path] = {}
+    for path, given in zip(absolute, paths, strict=True):
+        if path in seen:
+            raise BatchError(f"{given}: given twice (also as {seen[path]}); give each file once")
+        seen[path] = given
+    if out is None:
+        return list(paths)
+    return [out / relative for relative in _below_common_folder(absolute)]
+
+
+def _below_common_folder(paths: list[Path]) -> list[Path]:
+    """Each absolute path relative to the deepest folder all of them share."""
+    try:
+        common = Path(os.path.commonpath([path.parent for path in paths]))
+    except ValueError:  # different drives (Windows): keep the drive as the first folder
+        return [Path(path.drive.rstrip(":")) / path.relative_to(path.anchor) for path in paths]
+    return [path.relative_to(common) for path in paths]
 
 
 def _json_of(path: Path, raw: bytes) -> Json:
@@ -182,17 +258,20 @@ def run_batch(
     """Submit every file, wait for every job, write the results and the stacked vectors.
 
     Every request is built before the first is sent, so a file that cannot be read stops the
-    batch (BatchError) before any job exists. ``on_done`` hears of each file as its job
-    ends (or fails to be submitted)."""
+    batch (BatchError) before any job exists; then one ``GET /healthz`` checks that the
+    server answers. A server that cannot be reached, then or later, stops the batch with
+    its LacunaError (``unreachable``). ``on_done`` hears of each file as its job ends (or
+    fails to be submitted)."""
     requests = [(path, *request_of(path, options)) for path in paths]
+    stems = result_stems(paths, out)
+    client.check_reachable()
     jobs = []
-    for path, body, data in requests:
-        job = FileJob(path)
+    for (path, body, data), stem in zip(requests, stems, strict=True):
+        job = FileJob(path, stem)
         try:
             job.job_id = client.submit(body, data, path.name)
         except LacunaError as error:
-            job.problem = error.problem
-            _written(job, out)
+            _ended(job, error, "refused")
             if on_done is not None:
                 on_done(job)
         jobs.append(job)
@@ -201,25 +280,40 @@ def run_batch(
             continue
         try:
             job.result = client.result(job.job_id, timeout)
+            job.status = "succeeded"
         except LacunaError as error:
-            job.problem = error.problem
-        _written(job, out)
+            _ended(job, error, error.job_status or "failed")
+        _written(job)
         if on_done is not None:
             on_done(job)
     _write_vectors([job for job in jobs if job.result is not None], out or Path.cwd())
     return jobs
 
 
-def _written(job: FileJob, out: Path | None) -> None:
-    """Write the job's result (or problem) as JSON next to its input or into ``out``."""
-    folder = out or job.path.parent
-    folder.mkdir(parents=True, exist_ok=True)
+def _ended(job: FileJob, error: LacunaError, status: str) -> None:
+    """The job ended without a result; a server gone away ends the whole batch."""
+    if error.unreachable:
+        raise error
+    job.problem, job.status = error.problem, status
+    if status == "refused":
+        _written(job)
+
+
+def _written(job: FileJob) -> None:
+    """Write the job's result (or problem) as JSON at its stem."""
+    job.stem.parent.mkdir(parents=True, exist_ok=True)
     if job.result is not None:
-        target, document = folder / f"{job.path.stem}.result.json", job.result
+        target, document = job.stem.with_name(job.stem.name + ".result.json"), job.result
     else:
-        target = folder / f"{job.path.stem}.problem.json"
-        document = {"file": str(job.path), "job_id": job.job_id, "problem": job.problem}
+        target = job.stem.with_name(job.stem.name + ".problem.json")
+        document = {
+            "file": str(job.path),
+            "job_id": job.job_id,
+            "status": job.status,
+            "problem": job.problem,
+        }
     target.write_text(json.dumps(document) + "\n", encoding="utf-8")
+    job.written = target
 
 
 def column_names(result: Json) -> list[str]:
@@ -269,12 +363,15 @@ def _write_vectors(jobs: list[FileJob], out: Path) -> None:
         writer = csv.writer(table)
         writer.writerow(["file", "job_id", *names])
         for job, row in zip(having, rows, strict=True):
-            writer.writerow([job.path.name, job.job_id, *map(repr, row.tolist())])
+            writer.writerow([str(job.path), job.job_id, *map(repr, row.tolist())])
     manifest = {
         "layout_id": first["layout_id"],
         "spec_ids": spec_ids,
         "layout": first["layout"],
         "columns": names,
-        "rows": [{"file": str(job.path), "job_id": job.job_id} for job in having],
+        "rows": [
+            {"file": str(job.path), "job_id": job.job_id, "result": str(job.written)}
+            for job in having
+        ],
     }
     (out / "vectors.json").write_text(json.dumps(manifest, indent=1) + "\n", encoding="utf-8")

@@ -10,18 +10,22 @@ On a shared server, pass the API key an operator made for you (``lacuna keys cre
 ``Client(url, api_key=...)``, or set LACUNA_API_KEY; it is sent as
 ``Authorization: Bearer <key>`` (RFC 6750).
 
-Every call retries connection errors, timeouts, 503 and 429 answers (rate or quota used up)
-with exponential backoff (honouring Retry-After), never another 4xx; a submission carries an
+Every call retries timeouts, dropped connections, 503 and 429 answers (rate or quota used
+up) with exponential backoff (honouring Retry-After), never another 4xx; a server that
+refuses the connection (or a host that does not resolve) is retried only briefly
+(``connect_retries``), so a wrong URL fails within seconds. A submission carries an
 Idempotency-Key, so a retried submission never makes a second job. Every error the service or
 the network gives surfaces as one exception type, ``LacunaError``, carrying the RFC 9457
-problem object.
+problem object (type ``unreachable``, status 0, when the server could not be reached).
 """
 
 import json
 import os
+import socket
 import time
 import uuid
 from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
@@ -29,7 +33,7 @@ import requests
 
 from lacuna_client.arrays import result_array, result_diagrams, to_npy_bytes
 
-__all__ = ["Client", "LacunaError"]
+__all__ = ["Client", "Distances", "LacunaError"]
 
 Json = dict[str, Any]
 
@@ -37,18 +41,26 @@ _RETRIED_STATUSES = frozenset({429, 503})  # RFC 6585 section 4, RFC 9110 15.6.4
 API_KEY_VARIABLE = "LACUNA_API_KEY"
 _ENDED = {"succeeded", "failed", "cancelled"}
 _MAX_RETRY_AFTER_S = 60.0
+UNREACHABLE = "unreachable"
+"""Problem type of a server that could not be reached (no answer at all: status 0)."""
 
 
 class LacunaError(Exception):
     """Anything that went wrong, with the problem object (RFC 9457) that says what.
 
-    ``problem`` is the service's answer when it gave one, else one made here (status 0 for a
-    service that could not be reached). ``pointers`` lists the JSON Pointers of the fields a
-    422 names.
+    ``problem`` is the service's answer when it gave one, else one made here (status 0 and
+    type ``unreachable`` for a service that could not be reached). ``pointers`` lists the JSON
+    Pointers of the fields a 422 names. When waiting for a job ended without its result,
+    ``job_id`` names the job and ``job_status`` says how it ended ("failed" or "cancelled";
+    "timeout" when the wait ran out first); both are None otherwise.
     """
 
-    def __init__(self, problem: Json) -> None:
+    def __init__(
+        self, problem: Json, *, job_id: str | None = None, job_status: str | None = None
+    ) -> None:
         self.problem = problem
+        self.job_id = job_id
+        self.job_status = job_status
         self.type: str = problem.get("type", "about:blank")
         self.title: str = problem.get("title", "")
         self.status: int = int(problem.get("status") or 0)
@@ -60,11 +72,32 @@ class LacunaError(Exception):
     def pointers(self) -> list[str]:
         return [error["pointer"] for error in self.errors]
 
+    @property
+    def unreachable(self) -> bool:
+        """True when no answer came at all: refused, unresolvable host, timed out."""
+        return self.type == UNREACHABLE
+
+
+@dataclass(frozen=True)
+class Distances:
+    """A distance matrix and why some of its entries are missing.
+
+    ``matrix`` is N x N float64 in the order sent: inf where classes that never die cannot
+    be matched, NaN where a cosine distance is undefined. ``nulls`` lists each such entry
+    above the diagonal as the service explains it, ``{"row": i, "column": j, "reason":
+    "..."}``. ``result`` is the whole JSON answer (metric, order, provenance, ...)."""
+
+    matrix: np.ndarray
+    nulls: list[Json] = field(default_factory=list)
+    result: Json = field(default_factory=dict)
+
 
 class Client:
     """One lacuna service. ``timeout`` bounds each HTTP call (seconds); ``retries`` and
-    ``backoff`` (seconds, doubled per attempt) govern the retries. ``api_key`` is sent as
-    ``Authorization: Bearer <key>`` for deployments behind an authenticating proxy."""
+    ``backoff`` (seconds, doubled per attempt) govern the retries; ``connect_retries`` the
+    retries of a connection that could not be opened at all (refused, or the host not
+    found), which a server restarting on its address needs only briefly. ``api_key`` is sent
+    as ``Authorization: Bearer <key>`` for deployments behind an authenticating proxy."""
 
     def __init__(
         self,
@@ -74,11 +107,13 @@ class Client:
         *,
         retries: int = 5,
         backoff: float = 0.5,
+        connect_retries: int = 2,
     ) -> None:
         self.base_url = base_url.rstrip("/")
         self.timeout = timeout
         self.retries = retries
         self.backoff = backoff
+        self.connect_retries = connect_retries
         self._session = requests.Session()
         api_key = api_key if api_key is not None else os.environ.get(API_KEY_VARIABLE)
         if api_key:
@@ -215,6 +250,11 @@ class Client:
         body = _request(given, filtration, features, request)
         return self.submit(body, to_npy_bytes(np.asarray(values)), f"{kind}.npy")
 
+    def check_reachable(self) -> None:
+        """Return if the service answers ``GET /healthz``; LacunaError (``unreachable``)
+        when nothing answers at ``base_url``, or the problem of any other error."""
+        self._call("GET", "/healthz")
+
     # --- following a job ------------------------------------------------------------------------
 
     def status(self, job_id: str) -> Json:
@@ -231,8 +271,9 @@ class Client:
         progress: Callable[[Json], None] | None = None,
     ) -> Json:
         """Block until the job succeeds; its final status. ``progress`` gets every status seen
-        on the way. LacunaError with the job's problem if it failed or was cancelled, or a
-        ``timeout`` problem (status 0) when ``timeout`` seconds pass first."""
+        on the way. LacunaError with the job's problem if it failed or was cancelled
+        (``job_status`` "failed" or "cancelled"), or a ``timeout`` problem (status 0,
+        ``job_status`` "timeout") when ``timeout`` seconds pass first."""
         deadline = None if timeout is None else time.monotonic() + timeout
         while True:
             remaining = poll if deadline is None else min(poll, deadline - time.monotonic())
@@ -248,7 +289,12 @@ class Client:
             if status["status"] in _ENDED:
                 raise LacunaError(
                     status.get("problem")
-                    or {"title": f"Job {status['status']}", "detail": f"job {job_id}"}
+                    or {
+                        "title": f"Job {status['status']}",
+                        "detail": f"job {job_id} was {status['status']}",
+                    },
+                    job_id=job_id,
+                    job_status=status["status"],
                 )
             if deadline is not None and time.monotonic() >= deadline:
                 raise LacunaError(
@@ -256,7 +302,9 @@ class Client:
                         "type": "timeout",
                         "title": "Timed out",
                         "detail": f"job {job_id} is still {status['status']} after {timeout} s",
-                    }
+                    },
+                    job_id=job_id,
+                    job_status="timeout",
                 )
             if wait == 0:
                 time.sleep(max(0.0, remaining))
@@ -292,11 +340,12 @@ class Client:
         job_ids: Sequence[str] | None = None,
         timeout: float | None = None,
         **request: Any,
-    ) -> np.ndarray:
-        """The N x N distance matrix between diagrams ((n, 2) arrays of one dimension, inf
-        deaths), vectors ((N, L) array) or finished jobs, with ``metric`` (bottleneck,
-        wasserstein, sliced_wasserstein, euclidean, cosine). inf where classes that never
-        die cannot be matched, NaN where a cosine distance is undefined."""
+    ) -> Distances:
+        """The distances between diagrams ((n, 2) arrays of one dimension, inf deaths),
+        vectors ((N, L) array) or finished jobs, with ``metric`` (bottleneck, wasserstein,
+        sliced_wasserstein, euclidean, cosine): ``.matrix`` N x N (inf where classes that
+        never die cannot be matched, NaN where a cosine distance is undefined) and
+        ``.nulls``, the reason for each of those entries."""
         body: Json = {"metric": metric, **request}
         if diagrams is not None:
             body["diagrams"] = [_pairs_json(np.asarray(d, dtype=np.float64)) for d in diagrams]
@@ -311,7 +360,7 @@ class Client:
             found = self.result(found["job_id"], timeout)
         matrix = result_array(found)
         assert matrix is not None  # a distance result always has its matrix
-        return matrix
+        return Distances(matrix, list(found.get("nulls") or []), found)
 
     def cancel(self, job_id: str) -> Json:
         """Cancel a queued or running job; its status afterwards."""
@@ -338,12 +387,16 @@ class Client:
                     method, self.base_url + path, timeout=self.timeout, **kwargs
                 )
             except (requests.ConnectionError, requests.Timeout) as error:
-                if last:
+                reason = _connect_failure(error)
+                if last or (reason is not None and attempt >= self.connect_retries):
                     raise LacunaError(
                         {
-                            "type": "unreachable",
+                            "type": UNREACHABLE,
                             "title": "Service unreachable",
-                            "detail": f"{method} {self.base_url + path}: {error}",
+                            "detail": f"cannot reach the lacuna server at {self.base_url} "
+                            f"({reason or _network_failure(error)}): {method} {path}",
+                            "url": self.base_url,
+                            "reason": reason or _network_failure(error),
                         }
                     ) from error
                 time.sleep(self._backoff(attempt))
@@ -377,6 +430,42 @@ class Client:
         if header.isdigit():
             return min(float(header), _MAX_RETRY_AFTER_S)
         return self._backoff(attempt)
+
+
+def _causes(error: BaseException) -> list[BaseException]:
+    """``error`` and what it wraps: requests wraps urllib3, which wraps the socket's error."""
+    found: list[BaseException] = []
+    pending: list[BaseException] = [error]
+    while pending and len(found) < 20:
+        current = pending.pop()
+        found.append(current)
+        pending += [c for c in (current.__cause__, current.__context__) if c is not None]
+        pending += [a for a in current.args if isinstance(a, BaseException)]
+        reason = getattr(current, "reason", None)
+        if isinstance(reason, BaseException):
+            pending.append(reason)
+    return found
+
+
+def _connect_failure(error: BaseException) -> str | None:
+    """Why no connection could be opened ("connection refused", "host not found"), or None
+    when the failure came later (a dropped connection, a read timeout), which is retried
+    in full."""
+    if isinstance(error, requests.ConnectTimeout):
+        return "connection timed out"
+    for cause in _causes(error):
+        if isinstance(cause, ConnectionRefusedError):
+            return "connection refused"
+        if isinstance(cause, socket.gaierror):
+            return "host not found"
+    return None
+
+
+def _network_failure(error: BaseException) -> str:
+    """A short name for a failure after the connection was opened."""
+    if isinstance(error, requests.Timeout):
+        return "no answer in time"
+    return "connection lost"
 
 
 def _request(given: Json, filtration: Json | None, features: Sequence[Json], rest: Json) -> Json:

@@ -157,7 +157,12 @@ def _keys_parser(
 ) -> None:
     from service.quotas import QUOTA_OVERRIDES
 
-    keys = commands.add_parser("keys", help="create, list and revoke API keys of tenants")
+    keys = commands.add_parser(
+        "keys",
+        help="create, list and revoke API keys of tenants",
+        description="Create, list and revoke the API keys of tenants and set their quotas, in "
+        "the Redis the server uses (--redis). A key is printed once, when it is made.",
+    )
     actions = keys.add_subparsers(dest="action", required=True)
     common = argparse.ArgumentParser(add_help=False)
     common.add_argument(
@@ -190,22 +195,29 @@ def _keys_parser(
     quotas = actions.add_parser(
         "quotas", parents=[quota_options], help="show or set a tenant's quota overrides"
     )
-    quotas.add_argument("--tenant", required=True)
+    quotas.add_argument("--tenant", required=True, help="tenant name")
     actions.add_parser(
         "list", parents=[common], help="every key: id, tenant, created, active or revoked"
     )
     revoke = actions.add_parser(
         "revoke", parents=[common], help="revoke a key for good, by its key id"
     )
-    revoke.add_argument("key_id")
+    revoke.add_argument("key_id", help="the part of the key before the dot")
 
 
 def build_parser(settings: Settings) -> argparse.ArgumentParser:
     """The ``serve``, ``openapi`` and ``keys`` parsers, their defaults from ``settings``."""
-    parser = argparse.ArgumentParser(prog="lacuna", description="The lacuna server.")
+    parser = argparse.ArgumentParser(
+        prog="lacuna", description="The lacuna server's programs: serve, openapi, keys."
+    )
     commands = parser.add_subparsers(dest="command", required=True)
 
-    serve = commands.add_parser("serve", help="run the HTTP API, workers and (if needed) Redis")
+    serve = commands.add_parser(
+        "serve",
+        help="run the HTTP API, workers and (if needed) Redis",
+        description="Run the HTTP API and job workers on this machine, with an embedded Redis "
+        "unless --redis names one. Ctrl-C or SIGTERM stops everything it started.",
+    )
     serve.add_argument(
         "--redis",
         default=settings.redis_url,
@@ -224,13 +236,13 @@ def build_parser(settings: Settings) -> argparse.ArgumentParser:
         "--http-workers",
         type=int,
         default=settings.http_workers,
-        help="gunicorn worker processes (LACUNA_HTTP_WORKERS)",
+        help="HTTP server processes (LACUNA_HTTP_WORKERS)",
     )
     serve.add_argument(
         "--threads",
         type=int,
         default=settings.http_threads,
-        help="threads per gunicorn worker (LACUNA_HTTP_THREADS)",
+        help="threads per HTTP server process (LACUNA_HTTP_THREADS)",
     )
     serve.add_argument(
         "--local-workers",
@@ -254,7 +266,11 @@ def build_parser(settings: Settings) -> argparse.ArgumentParser:
         "job (LACUNA_OPEN_ACCESS)",
     )
 
-    openapi = commands.add_parser("openapi", help="print or write the OpenAPI document")
+    openapi = commands.add_parser(
+        "openapi",
+        help="print or write the OpenAPI document",
+        description="Print the OpenAPI document of this version of the API, or write it.",
+    )
     openapi.add_argument("--out", default=None, help="file to write (default: stdout)")
     _keys_parser(commands, settings)
     return parser

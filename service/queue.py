@@ -20,7 +20,7 @@ from rq.job import Job
 from rq.job import JobStatus as RQStatus
 from rq.results import Result
 from rq.serializers import JSONSerializer
-from rq.utils import as_text, utcparse
+from rq.utils import as_text, utcformat, utcparse
 
 from service.errors import (
     IdempotencyKeyReused,
@@ -317,8 +317,12 @@ class JobQueue:
         self.redis.set(cancel_key(job.id), b"1", ex=self.settings.result_ttl_s)
         # LREM is atomic: 1 means no worker has the job, so nobody else writes its status.
         if self.queue.remove(job.id):
-            job.set_status(RQStatus.CANCELED)
-            self.redis.expire(job.key, self.settings.result_ttl_s)
+            # No worker ends it, so this is its end: the status shows when (ended_at).
+            with self.redis.pipeline() as pipe:
+                job.set_status(RQStatus.CANCELED, pipeline=pipe)
+                pipe.hset(job.key, "ended_at", utcformat(datetime.now(UTC)))
+                pipe.expire(job.key, self.settings.result_ttl_s)
+                pipe.execute()
             self.redis.delete(input_key(job.id))
         self._refresh(job)
         ended = self.state(job)

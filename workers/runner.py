@@ -83,17 +83,33 @@ def build_worker(
 
 def worker_parser(settings: WorkerSettings) -> argparse.ArgumentParser:
     """Options of ``lacuna worker`` (``python -m workers``)."""
-    parser = argparse.ArgumentParser(prog="lacuna worker", description=__doc__)
-    parser.add_argument("--redis", default=settings.redis_url, help="Redis URL (LACUNA_REDIS_URL)")
-    parser.add_argument("--queue", default=settings.queue, help="queue name (LACUNA_QUEUE)")
+    parser = argparse.ArgumentParser(
+        prog="lacuna worker",
+        description="Run one job worker: it takes jobs from the server's Redis one at a time "
+        "and computes them. Start one per core you want to give; they need nothing but the "
+        "Redis URL of the server.",
+    )
+    parser.add_argument(
+        "--redis",
+        default=settings.redis_url,
+        metavar="URL",
+        help="the Redis URL the server uses (LACUNA_REDIS_URL)",
+    )
+    parser.add_argument(
+        "--queue", default=settings.queue, help="queue name, as the server's (LACUNA_QUEUE)"
+    )
     parser.add_argument(
         "--name",
         default=None,
-        help="worker name shown in the registry; a restarted worker may reuse the name of a "
-        "dead one, never of a live one",
+        help="worker name shown in the server's worker list; a restarted worker may reuse "
+        "the name of a dead one, never of a live one",
     )
     parser.add_argument("--burst", action="store_true", help="exit when the queue is empty")
-    parser.add_argument("--log-level", default="INFO")
+    parser.add_argument(
+        "--log-level",
+        default="INFO",
+        help="least severe log lines written: DEBUG, INFO, WARNING or ERROR (default INFO)",
+    )
     return parser
 
 

@@ -6,11 +6,16 @@ import lacuna_client
 
 
 def test_public_names() -> None:
-    assert lacuna_client.__all__ == ["Client", "LacunaError"]
+    assert lacuna_client.__all__ == ["Client", "Distances", "LacunaError"]
     namespace: dict[str, object] = {}
     exec("from lacuna_client import *", namespace)
-    assert sorted(name for name in namespace if name != "__builtins__") == ["Client", "LacunaError"]
+    assert sorted(name for name in namespace if name != "__builtins__") == [
+        "Client",
+        "Distances",
+        "LacunaError",
+    ]
     assert isinstance(lacuna_client.Client, type)
+    assert isinstance(lacuna_client.Distances, type)
     assert issubclass(lacuna_client.LacunaError, Exception)
 
 

@@ -1,22 +1,27 @@
 """The ``lacuna`` command line against a real ``lacuna serve``: a batch of 50 demo files gives
-one vector row per file, equal to calling the API file by file; status, fetch and cancel; exit
-codes 0 (success), 1 (a job failed) and 2 (usage)."""
+one vector row per file, equal to calling the API file by file; one result per input even
+when names repeat; the request's options; status, fetch and cancel; exit codes 0 (success),
+1 (a job failed), 2 (usage), 3 (server unreachable), 4 (cancelled), 5 (timed out)."""
 
 import csv
+import importlib.metadata
 import json
 import subprocess
+import time
 from pathlib import Path
 
 import numpy as np
 import pytest
+import tifffile
+from PIL import Image
 
 from lacuna_client import Client, LacunaError
 from tests.support.ports import free_port
 from tests.support.stack import LACUNA
+from tests.support.synthetic import ring_mask
 
-# Slow as a module: one stack and 50 demo files for all its tests (about 40 s), two of
-# which take over 10 s on their own (every demo data set; the client's retries against
-# a refused port).
+# Slow as a module: one stack and 50 demo files for all its tests (about 40 s), one of
+# which takes over 10 s on its own (every demo data set).
 pytestmark = [pytest.mark.e2e, pytest.mark.slow]
 
 BETTI = {"type": "betti_curve", "dim": 1, "t_range": [0.0, 60.0], "samples": 16}
@@ -102,12 +107,12 @@ def test_failed_jobs_exit_1_and_write_their_problems(base: str, tmp_path: Path) 
     )
     done = run("submit", str(good), str(nan), str(bad), "--server", base, "--quiet", check=1)
     assert "1 of 3 jobs succeeded" in done.stdout and "nan.csv" in done.stdout
-    refused = json.loads((tmp_path / "nan.problem.json").read_text())["problem"]
+    refused = json.loads((tmp_path / "nan.csv.problem.json").read_text())["problem"]
     assert refused["errors"][0]["pointer"] == "/input/points/1/0"
-    invalid = json.loads((tmp_path / "bad.problem.json").read_text())["problem"]
+    invalid = json.loads((tmp_path / "bad.json.problem.json").read_text())["problem"]
     assert invalid["status"] == 422  # the service's own answer
     assert invalid["errors"][0]["pointer"] == "/input/edges/0/1"
-    assert json.loads((tmp_path / "good.result.json").read_text())["diagrams"]
+    assert json.loads((tmp_path / "good.csv.result.json").read_text())["diagrams"]
 
 
 @pytest.mark.parametrize(
@@ -149,13 +154,200 @@ def test_status_fetch_and_cancel(base: str, tmp_path: Path) -> None:
     assert cancelled["status"] in ("cancelled", "running")  # 202 while a running job stops
     with pytest.raises(LacunaError):
         client.wait(heavy, 60)
-    assert run("status", heavy, "--server", base, check=1).stdout.startswith("cancelled")
+    assert run("status", heavy, "--server", base, check=4).stdout.startswith("cancelled")
     assert run("status", "00000000-0000-4000-8000-000000000000", "--server", base, check=1).stderr
 
 
-def test_unreachable_server_exits_1(tmp_path: Path) -> None:
-    done = run("status", "abc", "--server", f"http://127.0.0.1:{free_port()}", check=1)
-    assert "unreachable" in done.stderr.lower()
+def test_fetch_of_a_cancelled_job_says_so_and_exits_4(base: str, tmp_path: Path) -> None:
+    client = Client(base)
+    heavy = client.submit_points(
+        np.random.default_rng(1).uniform(size=(2000, 3)), {"type": "rips", "max_dim": 2}
+    )
+    client.cancel(heavy)
+    with pytest.raises(LacunaError) as raised:
+        client.wait(heavy, 60)
+    assert raised.value.job_status == "cancelled" and raised.value.job_id == heavy
+    status = json.loads(run("status", heavy, "--server", base, "--json", check=4).stdout)
+    assert status["status"] == "cancelled" and status["ended_at"]  # it ended: when
+    done = run("fetch", heavy, "--server", base, "--out", str(tmp_path / "r.json"), check=4)
+    assert done.stderr.strip() == f"lacuna fetch: job {heavy} was cancelled; it has no result"
+    assert not (tmp_path / "r.json").exists()
+    assert run("status", heavy, "--server", base, check=4).stdout.startswith(
+        f"cancelled at {status['ended_at'][:10]}"
+    )
+
+
+def test_fetch_of_a_failed_job_prints_its_problem_and_exits_1(base: str, tmp_path: Path) -> None:
+    # Whether equal shells fit is known only from the node distances, on the worker: the
+    # job is accepted, then fails with a problem naming the field.
+    request = {
+        "input": {"type": "graph", "nodes": [[0, 0]], "edges": []},
+        "output": ["descriptors"],
+        "descriptors": {"shells": {"center": [0, 0], "count": 3}},
+    }
+    (tmp_path / "lonely.json").write_text(json.dumps(request))
+    summary = json.loads(
+        run("submit", str(tmp_path / "lonely.json"), "--server", base, "--json", check=1).stdout
+    )
+    job_id = summary["failed"][0]["job_id"]
+    assert summary["failed"][0]["status"] == "failed"
+    problem = Client(base).status(job_id)["problem"]
+    done = run("fetch", job_id, "--server", base, check=1)
+    assert done.stderr.strip() == (
+        f"lacuna fetch: job {job_id} failed: {problem['title']}: {problem['detail']}"
+    )
+    assert done.stdout == ""
+
+
+def test_fetch_that_outlives_its_timeout_exits_5(base: str) -> None:
+    client = Client(base)
+    heavy = client.submit_points(
+        np.random.default_rng(2).uniform(size=(2000, 3)), {"type": "rips", "max_dim": 2}
+    )
+    try:
+        done = run("fetch", heavy, "--server", base, "--timeout", "1", check=5)
+        assert heavy in done.stderr and "--timeout" in done.stderr
+    finally:
+        client.cancel(heavy)
+
+
+def test_unreachable_server_fails_fast_with_one_line(tmp_path: Path) -> None:
+    url = f"http://127.0.0.1:{free_port()}"  # nothing listens there
+    line = (
+        f"cannot reach the lacuna server at {url} (connection refused); is it running? "
+        "set --server or LACUNA_URL"
+    )
+    files = []
+    for name in ("a", "b", "c"):
+        files.append(tmp_path / f"{name}.csv")
+        files[-1].write_text("x,y\n0,0\n1,0\n0,1\n")
+    for args in (["status", "abc"], ["fetch", "abc"], ["submit", *map(str, files), "--quiet"]):
+        started = time.monotonic()
+        done = run(*args, "--server", url, check=3)
+        # A hang guard, not a speed goal: without the one check before the batch, each
+        # file waited out the client's retries.
+        assert time.monotonic() - started < 20
+        assert done.stderr.splitlines() == [f"lacuna {args[0]}: {line}"], done.stderr
+    assert not list(tmp_path.glob("*.json"))  # no result or problem files for a lost server
+
+
+def test_inputs_with_the_same_name_get_one_result_each(base: str, tmp_path: Path) -> None:
+    # rings.png, rings.tif and rings.npy hold the same ring (common practice: an annulus has
+    # one loop); a/rings.csv and b/rings.csv two different point sets.
+    mask = ring_mask((48, 48), (23.5, 23.5), 10, 16).astype(np.uint8) * 255
+    Image.fromarray(mask).save(tmp_path / "rings.png")
+    tifffile.imwrite(tmp_path / "rings.tif", mask)
+    np.save(tmp_path / "rings.npy", mask, allow_pickle=False)
+    for folder, side in (("a", 1.0), ("b", 2.0)):
+        (tmp_path / folder).mkdir()
+        (tmp_path / folder / "rings.csv").write_text(
+            f"x,y\n0,0\n{side},0\n{side},{side}\n0,{side}\n"
+        )
+    images = [tmp_path / f"rings.{ending}" for ending in ("png", "tif", "npy")]
+    # Next to each input: the whole file name, extension kept.
+    run("submit", *map(str, images), "--input-type", "mask", "--server", base, "--quiet", check=0)
+    for image in images:
+        result = json.loads(image.with_name(image.name + ".result.json").read_text())
+        assert len(result["diagrams"][1]["pairs"]) == 1
+    # Into --out: the folders below the one all inputs share, so nothing collides.
+    (tmp_path / "rings.csv").write_text("x,y\n0,0\n3,0\n3,3\n0,3\n")
+    out = tmp_path / "out"
+    tables = [tmp_path / "a" / "rings.csv", tmp_path / "b" / "rings.csv", tmp_path / "rings.csv"]
+    given = list(map(str, tables))
+    done = run(
+        "submit", *given, "--features", json.dumps(SUMMARY), "--server", base, "--quiet",
+        "--json", "--out", str(out), check=0,
+    )  # fmt: skip
+    targets = [out / "a" / "rings.csv.result.json", out / "b" / "rings.csv.result.json"]
+    targets.append(out / "rings.csv.result.json")
+    written = [json.loads(target.read_text()) for target in targets]
+    # A square of side s: its H1 class is born at s and dies at s * sqrt(2) (Rips, edge
+    # lengths; common practice).
+    for result, side in zip(written, (1.0, 2.0, 3.0), strict=True):
+        np.testing.assert_allclose(
+            result["diagrams"][1]["pairs"], [[side, side * np.sqrt(2)]], rtol=1e-9
+        )
+    summary = json.loads(done.stdout)
+    assert [job["result"] for job in summary["jobs"]] == list(map(str, targets))
+    manifest = json.loads((out / "vectors.json").read_text())
+    assert [row["file"] for row in manifest["rows"]] == given
+    assert [row["result"] for row in manifest["rows"]] == list(map(str, targets))
+    assert [row["job_id"] for row in manifest["rows"]] == [r["job_id"] for r in written]
+    table = list(csv.reader((out / "vectors.csv").read_text().splitlines()[1:]))
+    rows = [[name, result["job_id"]] for name, result in zip(given, written, strict=True)]
+    assert [row[:2] for row in table[1:]] == rows
+    # The same file twice is a usage error, before anything is sent.
+    again = run("submit", str(tables[0]), str(tmp_path / "a" / ".." / "a" / "rings.csv"))
+    assert again.returncode == 2 and "given twice" in again.stderr
+
+
+def test_request_options_reach_the_request(base: str, tmp_path: Path) -> None:
+    demo = tmp_path / "demo"
+    run("demo", "network", "--out", str(demo), "--count", "1", check=0)
+    graphml = next(demo.glob("*.graphml"))
+    # Descriptors of a GraphML file, which has no filtration: --output alone.
+    run("submit", str(graphml), "--output", "descriptors", "--server", base, "--quiet", check=0)
+    result = json.loads(graphml.with_name(graphml.name + ".result.json").read_text())
+    assert result["descriptors"]["node_count"] > 0 and result["diagrams"] == []
+    # Repeated and comma-separated --output, --descriptors, and a mask's skeleton.
+    mask = tmp_path / "ring.png"
+    Image.fromarray(ring_mask((64, 64), (31.5, 31.5), 14, 20).astype(np.uint8) * 255).save(mask)
+    run(
+        "submit", str(mask), "--input-type", "mask", "--skeletonize",
+        "--output", "descriptors", "--output", "graph,descriptors",
+        "--descriptors", '{"direction": [0, 1]}', "--server", base, "--quiet", check=0,
+    )  # fmt: skip
+    result = json.loads((tmp_path / "ring.png.result.json").read_text())
+    # Geometry (common practice): an annulus thins to one loop.
+    assert result["descriptors"]["cycle_count"] == 1 and result["graph"]["nodes"]
+    assert result["descriptors"]["extent"] > 0  # measured along the direction given
+    # --max-dim and --set: a square of side 1 with max_dim 0 and max_edge 1.2 keeps H0 only,
+    # and every point joins at length 1 (Rips, edge lengths; common practice).
+    square = tmp_path / "square.csv"
+    square.write_text("x,y\n0,0\n1,0\n1,1\n0,1\n")
+    run(
+        "submit", str(square), "--max-dim", "0", "--set", "filtration.max_edge=1.2",
+        "--server", base, "--quiet", check=0,
+    )  # fmt: skip
+    result = json.loads((tmp_path / "square.csv.result.json").read_text())
+    assert [d["dim"] for d in result["diagrams"]] == [0]
+    assert result["diagrams"][0]["pairs"] == [[0.0, 1.0]] * 3 + [[0.0, None]]
+    # Options that cannot be parsed are usage errors.
+    for bad in (
+        ["--output", "pictures"],
+        ["--set", "filtration.max_edge"],
+        ["--set", "max_edge=[1"],
+        ["--max-dim", "-1"],
+        ["--descriptors", "[1]"],
+    ):
+        done = run("submit", str(square), *bad, "--server", base)
+        assert done.returncode == 2 and done.stderr, bad
+
+
+def test_version_and_help_texts() -> None:
+    done = run("--version", check=0)
+    assert done.stdout == f"lacuna {importlib.metadata.version('lacuna')}\n"
+    commands = [
+        ["serve"], ["worker"], ["demo"], ["openapi"], ["keys"], ["keys", "create"],
+        ["keys", "list"], ["keys", "revoke"], ["keys", "quotas"], ["submit"], ["status"],
+        ["fetch"], ["cancel"],
+    ]  # fmt: skip
+    top = run("--help", check=0).stdout
+    assert top.startswith("usage: lacuna ") and "exit status:" in top
+    for command in commands:
+        text = run(*command, "--help", check=0).stdout
+        assert text.startswith(f"usage: lacuna {' '.join(command)} "), text
+        # Written for users: no internals, every option explained.
+        for internal in ("python -m", "RQ", "SimpleWorker", "gunicorn", "``"):
+            assert internal not in text, (command, internal)
+        lines = text.splitlines()
+        for index, line in enumerate(lines):
+            if line.startswith("  -") and "  " not in line.strip():
+                # No help on the option's line: argparse puts it on the next one, indented.
+                assert lines[index + 1].startswith(" " * 10), (command, line)
+    for command in (["submit"], ["status"], ["fetch"], ["cancel"]):
+        text = run(*command, "--help", check=0).stdout
+        assert "exit status:" in text and "  3  the server could not be reached" in text
 
 
 def test_every_demo_data_set_submits(base: str, tmp_path: Path) -> None:

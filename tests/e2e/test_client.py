@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 import requests
 
-from lacuna_client import Client, LacunaError
+from lacuna_client import Client, Distances, LacunaError
 from tests.support.api import pairs_array
 from tests.support.ports import free_port
 from tests.support.references import gudhi_diagrams
@@ -133,11 +133,17 @@ def test_distances_round_trip(client: Client) -> None:
     a = np.array([[0.0, 1.0], [0.2, 0.5]])
     b = np.array([[0.0, 1.1]])
     c = np.array([[0.0, np.inf]])
-    matrix = client.distances("bottleneck", diagrams=[a, b, c])
+    found = client.distances("bottleneck", diagrams=[a, b, c])
+    assert isinstance(found, Distances)
+    matrix = found.matrix
     # Reference library: gudhi's bottleneck distance on the finite pairs; a class that never
     # dies matches none that dies, so those entries are inf (null in JSON).
     assert matrix[0, 1] == pytest.approx(gudhi.bottleneck_distance(a, b))
     assert np.isinf(matrix[0, 2]) and np.isinf(matrix[2, 1]) and matrix[2, 2] == 0
+    # Each of those nulls comes with the service's reason, above the diagonal.
+    assert [(n["row"], n["column"]) for n in found.nulls] == [(0, 2), (1, 2)]
+    assert all(n["reason"] for n in found.nulls)
+    assert found.nulls == found.result["nulls"] and found.result["metric"] == "bottleneck"
 
 
 def test_distances_between_jobs(client: Client) -> None:
@@ -149,7 +155,9 @@ def test_distances_between_jobs(client: Client) -> None:
     ]
     for job in jobs:
         client.wait(job, 60)
-    matrix = client.distances("euclidean", job_ids=jobs)
+    found = client.distances("euclidean", job_ids=jobs)
+    matrix = found.matrix
+    assert found.nulls == []
     vectors = np.stack([client.vectors(job) for job in jobs])
     # Definition of the euclidean distance, computed here on the client's own vectors.
     expected = np.linalg.norm(vectors[:, None] - vectors[None], axis=2)
@@ -273,3 +281,30 @@ def test_unreachable_service_raises_after_retries() -> None:
     with pytest.raises(LacunaError) as raised:
         client.status("abc")
     assert raised.value.status == 0 and raised.value.type == "unreachable"
+    assert raised.value.unreachable
+
+
+def test_a_refused_connection_is_retried_only_briefly() -> None:
+    # The default policy: 5 retries from 0.5 s doubling (15.5 s of waiting) for answers and
+    # dropped connections, but a port nobody listens on is retried twice (0.5 + 1 s).
+    url = f"http://127.0.0.1:{free_port()}"
+    client = Client(url)
+    started = time.monotonic()
+    with pytest.raises(LacunaError) as raised:
+        client.check_reachable()
+    assert 1.5 <= time.monotonic() - started < 8
+    assert raised.value.unreachable
+    assert raised.value.problem["url"] == url
+    assert raised.value.problem["reason"] == "connection refused"
+    assert raised.value.detail.startswith(f"cannot reach the lacuna server at {url} ")
+
+
+def test_check_reachable_of_a_running_service(client: Client) -> None:
+    client.check_reachable()  # /healthz answers: nothing raised
+
+
+def test_503_is_still_retried_in_full(peer: tuple[str, type[Scripted]]) -> None:
+    url, handler = peer
+    handler.script = [BUSY] * 4 + [(200, {}, {"status": "ok"})]
+    Client(url, retries=5, backoff=0.01, connect_retries=0).check_reachable()
+    assert len(handler.seen) == 5 and handler.seen[0][0] == "GET"

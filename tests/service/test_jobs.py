@@ -126,6 +126,7 @@ def test_cancel_queued_job(client: FlaskClient, settings: Settings) -> None:
     answer = client.delete(f"/v1/jobs/{job_id}")
     assert answer.status_code == 200
     assert answer.get_json()["status"] == "cancelled"
+    assert answer.get_json()["ended_at"]  # cancelled while queued: it ended then
     later = client.post("/v1/jobs", json=rips_job()).get_json()["job_id"]
     assert settings.redis_url is not None
     worker = start_worker(settings.redis_url, settings.queue)

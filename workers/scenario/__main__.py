@@ -1,5 +1,6 @@
-"""``python -m workers.scenario [all|network|cells|masks|images] --out DIR [--count N]
-[--seed S]``: write synthetic demo inputs for lacuna, each kind with a README.txt.
+"""``lacuna demo [all|network|cells|masks|images] --out DIR [--count N] [--seed S]`` (which
+runs ``python -m workers.scenario``): write synthetic demo inputs for lacuna, each kind
+with a README.txt.
 
 ``network`` writes capillary-network job requests (JSON) and the same graphs as GraphML;
 ``cells`` two-population cell tables (CSV); ``masks`` 2D vessel masks (PNG) and 3D tube masks
@@ -28,8 +29,9 @@ def _positive(text: str) -> int:
 
 def _parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
-        prog="python -m workers.scenario",
-        description="Write synthetic demo inputs for lacuna, each kind with a README.txt.",
+        prog="lacuna demo",
+        description="Write synthetic demo inputs for lacuna, made by its own generators, each "
+        "kind with a README.txt.",
     )
     parser.add_argument(
         "kind",
