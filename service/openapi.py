@@ -361,9 +361,13 @@ def _paths() -> dict[str, Any]:
             "parameters": [_JOB_ID],
             "get": {
                 "summary": "State and timestamps of a job",
-                "description": "With Accept: text/html (a browser) the answer is a small "
-                "self-contained page: status, request summary, pictures of the diagrams, the "
-                "feature vector layout, download links and the research-use caution.",
+                "description": "Timestamps are RFC 3339 in UTC with a Z. With Accept: "
+                "text/html (a browser) the answer is a small page without script or external "
+                "asset: the status with a progress bar (the page reloads itself every 2 s "
+                "until the job ends), the pictures (images from GET /v1/jobs/{job_id}/plot), "
+                "pair counts per dimension, the units of values and coordinates, the feature "
+                "vector layout, the request as sent, download links and the research-use "
+                "caution; an unknown job is a 404 page.",
                 "operationId": "getJob",
                 "parameters": [_PREFER_WAIT],
                 "responses": {
@@ -371,7 +375,10 @@ def _paths() -> dict[str, Any]:
                         "description": "The job.",
                         "content": {**_json("JobStatus"), **_HTML_PAGE},
                     },
-                    "404": _NOT_FOUND,
+                    "404": {
+                        **_NOT_FOUND,
+                        "content": {**_NOT_FOUND["content"], **_HTML_PAGE},
+                    },
                     "503": _UNAVAILABLE,
                 },
             },

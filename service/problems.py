@@ -26,6 +26,7 @@ from service.errors import (
     TooCostly,
     Unauthorized,
 )
+from service.pages import not_found_page, wants_html
 from service.request_ids import current_request_id
 from workers.spec import DistanceRequest, FieldError, JobRequest, Problem
 from workers.spec.features import FeatureSpecBody
@@ -139,6 +140,11 @@ def field_errors_of(error: ValidationError, model: type[BaseModel]) -> list[Fiel
     return errors
 
 
+def _browses_job_pages() -> bool:
+    """Is this a browser asking for a job's page (which has an HTML 404 of its own)?"""
+    return request.endpoint == "v1.job_status" and wants_html(request)
+
+
 def _challenge(error: Unauthorized) -> str:
     """The ``WWW-Authenticate`` value of a 401 (RFC 6750 section 3): the Bearer scheme, and
     the error code when a key was sent but is not valid."""
@@ -166,6 +172,9 @@ def register(app: Flask) -> None:
             extra["errors"] = [FieldError(pointer=error.estimate.driving_field, message=message)]
             extra["estimate"] = error.estimate.model_dump(mode="json")
         problem = problem_of_kind(_KINDS[type(error)], error.detail, **extra)
+        if isinstance(error, JobNotFound) and _browses_job_pages():
+            page = not_found_page(error.detail, current_request_id())
+            return Response(page, status=problem.status, mimetype="text/html")
         if isinstance(error, Unauthorized):  # RFC 9110 11.6.1: a 401 carries a challenge
             return _respond(problem, {"WWW-Authenticate": _challenge(error)})
         if isinstance(error, RateLimited | QuotaExceeded):  # RFC 6585 section 4

@@ -205,7 +205,7 @@ class JobQueue:
                 result_ttl=self.settings.result_ttl_s,
                 failure_ttl=self.settings.result_ttl_s,
                 ttl=self.settings.queued_ttl_s,
-                meta={"owner": owner, "request_id": payload.request_id},
+                meta={"owner": owner, "request_id": payload.request_id, "request": submission.sent},
                 # Run on the worker, by name: durations and failures counted where jobs end.
                 on_success=Callback(SUCCESS_CALLBACK),
                 on_failure=Callback(FAILURE_CALLBACK),

@@ -216,9 +216,9 @@ _DECODERS: dict[str, Callable[[IO[bytes], Limits], InputData]] = {
 """How the ``data`` part of a multipart request is read, by what the input kind uploads."""
 
 
-def _job_request() -> tuple[JobRequest, InputData | None, bool]:
-    """The request of a job, the arrays of its image, mask or graph input, and whether they
-    came as an uploaded file (multipart) rather than JSON."""
+def _job_request() -> tuple[JobRequest, InputData | None, bool, Any]:
+    """The request of a job, the arrays of its image, mask or graph input, whether they
+    came as an uploaded file (multipart) rather than JSON, and the JSON as sent."""
     state = _state()
     if request.mimetype != "multipart/form-data":
         body = _json_body(", or as multipart/form-data with request and data parts")
@@ -238,16 +238,16 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool]:
                 )
             ]
         )
-    return job_request, _DECODERS[upload](part, state.limits), True
+    return job_request, _DECODERS[upload](part, state.limits), True, body
 
 
-def _json_job_request(body: Any) -> tuple[JobRequest, InputData | None, bool]:
+def _json_job_request(body: Any) -> tuple[JobRequest, InputData | None, bool, Any]:
     """A job request sent as JSON, with the arrays of its input."""
     job_request = _state().feature_specs.resolve(JobRequest.model_validate(body), owner_of(request))
     data = kind_of(job_request.input.type).data(job_request.input)
     if isinstance(data, FieldError):
         raise RequestInvalid([data])
-    return job_request, data, False
+    return job_request, data, False, body
 
 
 @v1.post("/jobs")
@@ -267,8 +267,8 @@ def _queued_job() -> Job:
     arrays and its submission die here, before any wait (the large-parse slot that bounds
     their memory is given back then)."""
     state = _state()
-    job_request, data, uploaded = _job_request()
-    submission, estimate = _checked_job_submission(job_request, data, uploaded)
+    job_request, data, uploaded, body = _job_request()
+    submission, estimate = _checked_job_submission(job_request, data, uploaded, body)
     if wants_npy(request) and not job_request.features:  # refused before it is queued
         raise NotAcceptable(
             f"a job without features has no vector to send as {NPY_MEDIA_TYPE}; add features "
@@ -280,15 +280,15 @@ def _queued_job() -> Job:
 
 
 def _checked_job_submission(
-    job_request: JobRequest, data: InputData | None, uploaded: bool
+    job_request: JobRequest, data: InputData | None, uploaded: bool, body: Any
 ) -> tuple[Submission, CostEstimate]:
     """A job request checked against the limits (RequestInvalid), as a submission with its
-    estimate."""
+    estimate; ``body`` is the JSON as sent."""
     state = _state()
     errors = request_errors(job_request, state.limits, data, uploaded)
     if errors:
         raise RequestInvalid(errors)
-    submission = job_submission(job_request, data, uploaded)
+    submission = job_submission(job_request, data, uploaded, body)
     return submission, estimate_of(submission, state.settings, uploaded=uploaded)
 
 
@@ -354,7 +354,7 @@ def _checked_distance_submission(body: Any) -> tuple[Submission, CostEstimate]:
     results = None
     if distance_request.job_ids is not None:
         results = state.queue.results_of(distance_request.job_ids, owner_of(request), "/job_ids")
-    submission = distance_submission(distance_request, results)
+    submission = distance_submission(distance_request, results, body)
     items = items_pointer(distance_request)
     return submission, estimate_of(submission, state.settings, items=items)
 
@@ -379,15 +379,18 @@ def estimate_job() -> Response:
 def job_status(job_id: str) -> Response:
     """State and timestamps of a job; ``Prefer: wait=N`` waits for it to end first.
 
-    ``Accept: text/html`` (a browser) gets a page with the pictures instead."""
-    state = _state()
+    ``Accept: text/html`` (a browser) gets the job's page instead."""
+    queue = _state().queue
     owner = owner_of(request)
-    job = state.queue.find(job_id, owner)
+    job = queue.find(job_id, owner)
     if _waited(job, _requested_wait()) is not None:  # it succeeded meanwhile: read it anew
-        job = state.queue.find(job_id, owner)
+        job = queue.find(job_id, owner)
+    status = queue.status(job)
     if wants_html(request):
-        return Response(job_page(state, job, owner, _gates().waiters), mimetype="text/html")
-    return jsonify(state.queue.status(job).model_dump(mode="json"))
+        result = queue.result(job) if status.status is JobState.succeeded else None
+        page = job_page(status, job, queue.payload_of(job), result)
+        return Response(page, mimetype="text/html")
+    return jsonify(status.model_dump(mode="json"))
 
 
 @v1.get("/jobs/<job_id>/result")

@@ -1,9 +1,12 @@
 """Validated requests turned into what the queue stores: an input array and a task.
 
 The array travels next to the job as .npy bytes; the task (small JSON) travels on the queue.
-``described`` is the request as hashed for provenance: the array is replaced by its hash.
+``described`` is the request as hashed for provenance: the array is replaced by its hash;
+``sent`` is the request as the client sent it, for the job page (``request_as_sent``).
 """
 
+import hashlib
+import json
 from dataclasses import dataclass
 from typing import Any
 
@@ -19,7 +22,26 @@ from workers.spec.kinds import InputData, kind_of
 from workers.spec.plots import PlotQuery, PlotTask
 from workers.spec.results import Diagram
 
-__all__ = ["Submission", "job_submission", "distance_submission", "plot_submission"]
+__all__ = [
+    "SENT_REQUEST_BYTES",
+    "Submission",
+    "job_submission",
+    "distance_submission",
+    "plot_submission",
+    "request_as_sent",
+]
+
+SENT_REQUEST_BYTES = 16_384
+"""Most bytes of the request kept as sent (its JSON text, large arrays already shortened)."""
+
+_ARRAY_SHOWN_CHARS = 120
+"""Arrays whose compact JSON is longer become a placeholder: their shape and hash."""
+
+_ITEMS_SHOWN = 32
+"""Longer lists of objects or strings show their first items and how many more there are."""
+
+_TEXT_SHOWN_CHARS = 300
+"""Longer strings are cut."""
 
 
 @dataclass(frozen=True)
@@ -32,14 +54,85 @@ class Submission:
     task: PersistenceTask | DistanceTask | PlotTask
     described: dict[str, Any]
     description: str
+    sent: dict[str, str] | None = None
+    """The request as the client sent it (``request_as_sent``); None for the API's own jobs."""
+
+
+def request_as_sent(body: Any, media_type: str) -> dict[str, str]:
+    """The JSON ``body`` of a request (a multipart request's ``request`` part) as the client
+    sent it, defaults not filled in: its media type and its indented JSON text, each large
+    array replaced by a placeholder such as ``"<5000 × 2 array, sha256 ab12cd34ef56…>"``
+    (the hash of the array's compact JSON), cut at ``SENT_REQUEST_BYTES``."""
+    text = _indented(_shortened(body))
+    raw = text.encode("utf-8")
+    if len(raw) > SENT_REQUEST_BYTES:
+        cut = raw[:SENT_REQUEST_BYTES].decode("utf-8", errors="ignore")
+        text = f"{cut}\n... (cut at {SENT_REQUEST_BYTES} bytes)"
+    return {"media_type": media_type, "text": text}
+
+
+def _indented(value: Any, depth: int = 0) -> str:
+    """Indented JSON with each list of scalars on one line."""
+    inner = " " * (depth + 1)
+    if isinstance(value, dict) and value:
+        items = [f"{inner}{json.dumps(k)}: {_indented(v, depth + 1)}" for k, v in value.items()]
+    elif isinstance(value, list) and any(isinstance(item, dict | list) for item in value):
+        items = [inner + _indented(item, depth + 1) for item in value]
+    else:
+        return json.dumps(value, ensure_ascii=False)
+    opening, closing = ("{", "}") if isinstance(value, dict) else ("[", "]")
+    return opening + "\n" + ",\n".join(items) + "\n" + " " * depth + closing
+
+
+def _shortened(value: Any) -> Any:
+    if isinstance(value, dict):
+        return {key: _shortened(item) for key, item in value.items()}
+    if isinstance(value, str):
+        if len(value) <= _TEXT_SHOWN_CHARS:
+            return value
+        return value[:_TEXT_SHOWN_CHARS] + f"... ({len(value)} characters)"
+    if not isinstance(value, list):
+        return value
+    shape = _array_shape(value)
+    if shape is not None:
+        compact = json.dumps(value, separators=(",", ":"))
+        if len(compact) <= _ARRAY_SHOWN_CHARS:
+            return value
+        digest = hashlib.sha256(compact.encode("utf-8")).hexdigest()[:12]
+        return f"<{shape} array, sha256 {digest}…>"
+    shown = [_shortened(item) for item in value[:_ITEMS_SHOWN]]
+    if len(value) > _ITEMS_SHOWN:
+        shown.append(f"<... {len(value) - _ITEMS_SHOWN} more items>")
+    return shown
+
+
+def _array_shape(array: list[Any]) -> str | None:
+    """``"5000 × 2"`` for numbers in rows of equal length, ``"5000-item"`` for numbers in
+    ragged rows; None for a list holding a string or an object (not an array)."""
+    shape = [len(array)]
+    ragged = False
+    level = array
+    while level and all(isinstance(row, list) for row in level):
+        widths = {len(row) for row in level}
+        ragged = ragged or len(widths) != 1
+        if not ragged:
+            shape.append(widths.pop())
+        level = [item for row in level for item in row]
+    if any(isinstance(item, list | dict | str) for item in level):
+        return None
+    return f"{len(array)}-item" if ragged else " × ".join(str(size) for size in shape)
 
 
 def job_submission(
-    request: JobRequest, data: InputData | None = None, uploaded: bool = False
+    request: JobRequest,
+    data: InputData | None = None,
+    uploaded: bool = False,
+    body: Any = None,
 ) -> Submission:
     """A ``POST /v1/jobs`` request (feature references already resolved); ``data`` is the
     array of an image or mask input, or the arrays of a graph, checked, from JSON or an
-    upload (``uploaded``)."""
+    upload (``uploaded``); ``body`` is the JSON the client sent (the request part of an
+    upload)."""
     kind = kind_of(request.input.type)
     specs = request.specs()
     # The data fields are left out of the dump (a million edges cost a second to dump) and
@@ -63,13 +156,17 @@ def job_submission(
         task=task,
         described=described,
         description=stored.description,
+        sent=None
+        if body is None
+        else request_as_sent(body, "multipart/form-data" if uploaded else "application/json"),
     )
 
 
 def distance_submission(
-    request: DistanceRequest, results: list[dict[str, Any]] | None
+    request: DistanceRequest, results: list[dict[str, Any]] | None, body: Any = None
 ) -> Submission:
-    """A ``POST /v1/distances`` request; ``results`` are those of its job_ids, in order."""
+    """A ``POST /v1/distances`` request; ``results`` are those of its job_ids, in order;
+    ``body`` is the JSON the client sent."""
     diagram_metric = request.metric in DIAGRAM_METRICS
     described = request.model_dump(mode="json")
     input_type: StoredType
@@ -101,6 +198,7 @@ def distance_submission(
         task=task,
         described=described,
         description=f"{request.metric} between {count} items",
+        sent=None if body is None else request_as_sent(body, "application/json"),
     )
 
 

@@ -31,7 +31,7 @@ import time
 import traceback
 from collections.abc import Callable
 from multiprocessing.connection import Connection
-from typing import Any
+from typing import Any, Protocol
 
 from workers import defaults
 from workers.core.errors import CoreError, RequestError
@@ -50,8 +50,12 @@ __all__ = ["ComputeProcess", "JobAborted", "Handler", "Report", "problem_for"]
 
 log = logging.getLogger(__name__)
 
-Report = Callable[[int, int], None]
-"""(done, total): how far a computation is."""
+
+class Report(Protocol):
+    """How far a computation is: ``done`` of ``total``, and what it does now (``stage``)."""
+
+    def __call__(self, done: int, total: int, stage: str | None = None) -> None: ...
+
 
 Handler = Callable[[dict[str, Any], bytes, Report], dict[str, Any]]
 """(JSON header, .npy bytes, progress callback) -> result dict; runs in the child."""
@@ -93,17 +97,22 @@ def _die_with_parent() -> None:
 
 
 class _ProgressSender:
-    """The child's progress callback: a JSON message to the parent, at most every 0.25 s."""
+    """The child's progress callback: a JSON message to the parent, at most every 0.25 s
+    unless the stage changes (a long step must not hide behind the short one before it)."""
 
     def __init__(self, connection: Connection) -> None:
         self._connection = connection
         self._last = 0.0
+        self._stage: str | None = None
 
-    def __call__(self, done: int, total: int) -> None:
+    def __call__(self, done: int, total: int, stage: str | None = None) -> None:
         now = time.monotonic()
-        if now - self._last >= defaults.PROGRESS_INTERVAL_S or done == total:
+        due = now - self._last >= defaults.PROGRESS_INTERVAL_S
+        if due or done == total or stage != self._stage:
             self._last = now
-            self._connection.send_bytes(json.dumps({"progress": [done, total]}).encode("utf-8"))
+            self._stage = stage
+            progress: list[Any] = [done, total] if stage is None else [done, total, stage]
+            self._connection.send_bytes(json.dumps({"progress": progress}).encode("utf-8"))
 
 
 def _child_main(connection: Connection, parent_end: Connection, handler: Handler) -> None:

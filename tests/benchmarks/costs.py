@@ -34,6 +34,7 @@ from scipy.spatial import cKDTree
 
 from service.submissions import Submission, distance_submission, job_submission, stored_input
 from workers.jobs import execute_bytes
+from workers.jobs.steps import ignore
 from workers.memory import MIB, address_space
 from workers.spec import SCHEMA_VERSION, DistanceRequest, JobPayload, JobRequest
 from workers.spec.arrays import array_sha256, to_npy_bytes
@@ -91,7 +92,7 @@ def measure(submission: Submission, cap_mb: int, cap_s: float) -> tuple[float, f
             soft = start + cap_mb * MIB
             resource.setrlimit(resource.RLIMIT_AS, (soft if hard < 0 else min(soft, hard), hard))
             started = time.perf_counter()
-            result = execute_bytes(header, data, lambda done, total: None)
+            result = execute_bytes(header, data, ignore)
             json.dumps(result, allow_nan=False).encode("utf-8")
             seconds = time.perf_counter() - started
             sender.send_bytes(json.dumps([seconds, _vm_peak() - start]).encode())
@@ -125,7 +126,7 @@ def warm_up(submission: Submission) -> None:
     """Run the smallest job of a kind here once, so that the modules it imports lazily are
     loaded before the measuring processes fork (as in a worker that has run jobs)."""
     header = {"job_id": "warm-up", "payload": _payload(submission).model_dump(mode="json")}
-    execute_bytes(header, to_npy_bytes(submission.array), lambda done, total: None)
+    execute_bytes(header, to_npy_bytes(submission.array), ignore)
 
 
 def _uniform(n: int, d: int, seed: int = 0) -> np.ndarray:

@@ -1,6 +1,7 @@
 """The job page in a real headless Chromium (Debian's chromium package) against a real
 ``lacuna serve``: the page loads, names the job and the research-use caution, and shows the
-pictures (pixels of the H0 and H1 colours in the screenshot, which is kept as a test artifact).
+pictures it references from the plot route (pixels of the H0 and H1 colours in the
+screenshot, which is kept as a test artifact); an unknown job is a page too.
 """
 
 import io
@@ -65,6 +66,9 @@ def test_job_page_loads_and_shows_the_plots(base: str, tmp_path: Path) -> None:
     assert f"lacuna job <code>{job}</code>" in dom.stdout
     assert "not for diagnosis or treatment decisions" in dom.stdout
     assert 'id="plot-diagram"' in dom.stdout and 'id="plot-barcode"' in dom.stdout
+    # The pictures are resources of their own, fetched by the browser from the plot route.
+    assert f'src="/v1/jobs/{job}/plot?kind=diagram"' in dom.stdout
+    assert "data:image" not in dom.stdout and 'id="pair-counts"' in dom.stdout
 
     shot = tmp_path / "job-page.png"
     done = chromium(tmp_path, f"--screenshot={shot}", "--window-size=1280,2000", url)
@@ -76,3 +80,10 @@ def test_job_page_loads_and_shows_the_plots(base: str, tmp_path: Path) -> None:
     assert pixels_near(picture, COLOURS[0]) > 200
     assert pixels_near(picture, COLOURS[1]) > 20
     print(f"screenshot: {shot}")
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed")
+def test_an_unknown_job_is_a_page(base: str, tmp_path: Path) -> None:
+    dom = chromium(tmp_path, "--dump-dom", f"{base}/v1/jobs/00000000-0000-4000-8000-000000000000")
+    assert dom.returncode == 0, dom.stderr[-2000:]
+    assert "No such job" in dom.stdout and "not for diagnosis or treatment decisions" in dom.stdout

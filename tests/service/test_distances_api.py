@@ -563,7 +563,8 @@ def test_large_request_answers_202_and_reports_progress(few_inline: FlaskClient)
         if status["progress"] is not None:
             seen.append(status["progress"])
     assert status["status"] == "succeeded", status
-    assert status["progress"] == {"done": pairs, "total": pairs}  # the last report stays
+    # The last report stays.
+    assert status["progress"] == {"done": pairs, "total": pairs, "stage": "distances"}
     assert all(p["total"] == pairs and 0 <= p["done"] <= pairs for p in seen)
     result = call(few_inline, "GET", f"/v1/jobs/{job_id}/result").get_json()
     assert_distance_matrix(result, 12)

@@ -1,6 +1,7 @@
 """Job lifecycle through a real Redis and real worker processes."""
 
 import math
+import re
 import subprocess
 import time
 from typing import Any
@@ -14,12 +15,17 @@ from rq.serializers import JSONSerializer
 from service.app import create_app
 from service.settings import Settings
 from tests.support.api import app_with, fresh_queue, status_once
-from tests.support.bodies import rips_job
+from tests.support.bodies import PERSISTENCE_IMAGE_SPEC, rips_job
 from tests.support.processes import children_of, process_state, running
 from tests.support.waiting import finishes, wait_until
 from tests.support.worker_process import start_worker, stop_worker
 from workers.jobs import execute
 from workers.spec import JobPayload
+from workers.spec.arrays import from_npy_bytes
+from workers.spec.jobs import input_key
+
+# RFC 3339 section 5.6 date-time in UTC, with milliseconds, as the status answers it.
+TIMESTAMP = re.compile(r"\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}\.\d{3}Z")
 
 
 def heavy_body() -> dict[str, Any]:
@@ -50,7 +56,9 @@ def test_submit_poll_fetch(client: FlaskClient, worker: subprocess.Popen[bytes])
     assert answer.get_json()["status"] in {"queued", "running", "succeeded"}
     status = status_once(client, job_id, {"succeeded", "failed"})
     assert status["status"] == "succeeded", status
-    assert status["created_at"] and status["started_at"] and status["ended_at"]
+    for moment in ("created_at", "started_at", "ended_at"):
+        assert TIMESTAMP.fullmatch(status[moment]), status[moment]
+    assert status["created_at"] <= status["started_at"] <= status["ended_at"]
     assert status["links"]["result"] == f"/v1/jobs/{job_id}/result"
     result = client.get(f"/v1/jobs/{job_id}/result").get_json()
     assert result["job_id"] == job_id
@@ -147,6 +155,18 @@ def test_cancel_running_job_stops_it(client: FlaskClient, worker: subprocess.Pop
     status_once(client, job_id, {"running"})
     # Cancel inside the computation, not before it starts: the compute child is running.
     wait_until(lambda: process_state(busy) == "R", 60, f"compute child {busy} computing")
+    # Its one step before the result is the Rips reduction, shown without a made-up fraction.
+    wait_until(
+        lambda: client.get(f"/v1/jobs/{job_id}").get_json()["progress"] is not None,
+        60,
+        "the running job's progress",
+    )
+    progress = client.get(f"/v1/jobs/{job_id}").get_json()["progress"]
+    assert progress == {"done": 0, "total": 2, "stage": "persistence"}
+    page = client.get(f"/v1/jobs/{job_id}", headers={"Accept": "text/html"}).get_data(as_text=True)
+    assert '<meta http-equiv="refresh" content="2">' in page
+    assert '<progress id="progress" value="0" max="2">' in page
+    assert "persistence (0 of 2 done)" in page
     assert client.delete(f"/v1/jobs/{job_id}").status_code in (200, 202)
     status = status_once(client, job_id, {"cancelled", "failed", "succeeded"})
     assert status["status"] == "cancelled"
@@ -192,3 +212,102 @@ def test_time_limit_stops_native_code(redis_url: str) -> None:
         assert process_state(fresh) in {"S", "I"}
     finally:
         stop_worker(worker)
+
+
+def _queued(client: FlaskClient, body: dict[str, Any]) -> tuple[JobPayload, np.ndarray]:
+    """The payload and stored input of ``body``, queued where no worker takes it."""
+    answer = client.post("/v1/jobs", json=body)
+    assert answer.status_code == 202, answer.get_data(as_text=True)
+    queue = client.application.extensions["lacuna"].queue
+    job = Job.fetch(answer.get_json()["job_id"], connection=queue.redis, serializer=JSONSerializer)
+    return JobPayload.model_validate(job.args[0]), from_npy_bytes(
+        queue.redis.get(input_key(job.id))
+    )
+
+
+_SUMMARY = {"type": "summary", "dim": 0}
+_PATH = {
+    "type": "graph",
+    "nodes": [[0, 0], [1, 0], [1, 1], [2, 1]],
+    "edges": [[0, 1], [1, 2], [2, 3]],
+}
+_SQUARE = [[0, 0, 0, 0], [0, 1, 1, 0], [0, 1, 1, 0], [0, 0, 0, 0]]
+
+
+@pytest.mark.parametrize(
+    ("body", "stages"),
+    [
+        (rips_job(), ["persistence", "result"]),
+        (
+            rips_job(
+                np.random.default_rng(5).uniform(size=(30, 2)).tolist(),
+                subsample={"method": "maxmin", "size": 10, "seed": 1},
+                features=[_SUMMARY, PERSISTENCE_IMAGE_SPEC],
+            ),
+            ["subsample", "persistence", "features", "features", "result"],
+        ),
+        (
+            {"input": {"type": "image", "values": _SQUARE}, "filtration": {"type": "cubical"}},
+            ["persistence", "result"],
+        ),
+        (
+            {"input": {"type": "mask", "values": _SQUARE}, "filtration": {"type": "distance"}},
+            ["signed distance", "persistence", "result"],
+        ),
+        (
+            {
+                "input": {"type": "mask", "values": _SQUARE},
+                "filtration": {"type": "height", "directions": 2},
+                "features": [_SUMMARY],
+            },
+            [
+                "heights, direction 1 of 2",
+                "persistence, direction 1 of 2",
+                "heights, direction 2 of 2",
+                "persistence, direction 2 of 2",
+                "features",
+                "features",
+                "result",
+            ],
+        ),
+        (
+            {
+                "input": _PATH,
+                "filtration": {"type": "geodesic", "seeds": [0]},
+                "output": ["diagrams", "descriptors"],
+            },
+            ["network", "geodesic distance", "persistence", "descriptors", "result"],
+        ),
+        (
+            {
+                "input": {"type": "mask", "values": _SQUARE, "skeletonize": True},
+                "filtration": {"type": "height", "direction": [1, 0]},
+            },
+            ["skeleton graph", "heights", "persistence", "result"],
+        ),
+        (
+            {
+                "input": {"type": "diagrams", "diagrams": [{"dim": 0, "pairs": [[0, 1]]}]},
+                "features": [_SUMMARY],
+            },
+            ["diagrams", "features", "result"],
+        ),
+    ],
+)
+def test_every_persistence_job_reports_its_steps(
+    client: FlaskClient, body: dict[str, Any], stages: list[str]
+) -> None:
+    payload, array = _queued(client, body)
+    reports: list[tuple[int, int, str | None]] = []
+    execute(
+        payload,
+        array,
+        job_id="progress",
+        report=lambda done, total, stage=None: reports.append((done, total, stage)),
+    )
+    # One report as each step begins (the steps before it are over), then all over; the
+    # total is known from the first report on.
+    total = len(stages)
+    assert reports == [(done, total, stage) for done, stage in enumerate(stages)] + [
+        (total, total, "done")
+    ]

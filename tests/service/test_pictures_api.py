@@ -5,11 +5,8 @@ SVG answers are parsed as XML (xml.etree, on our own output) and their marker gr
 against the diagram the job returned; PNG answers are decoded with Pillow (reference decoder).
 """
 
-import base64
 import io
-import re
 import xml.etree.ElementTree as ElementTree
-from html.parser import HTMLParser
 from typing import Any
 
 import pytest
@@ -158,76 +155,6 @@ def test_per_direction_jobs_need_a_direction(client: FlaskClient) -> None:
     assert problem["errors"][0]["pointer"] == "/direction" and "0..2" in problem["detail"]
     ids = svg_ids(plot(client, job_id, "kind=diagram&direction=2").data)
     assert len([i for i in ids if i.startswith("point-0-")]) == 1  # a path: one component
-
-
-# --- the job page ------------------------------------------------------------------------------
-
-
-class Page(HTMLParser):
-    """Element names, ids and image sources of an HTML page (the standard library's parser)."""
-
-    def __init__(self) -> None:
-        super().__init__()
-        self.tags: list[str] = []
-        self.images: dict[str, str] = {}
-        self.links: list[str] = []
-        self.text: list[str] = []
-
-    def handle_starttag(self, tag: str, attrs: list[tuple[str, str | None]]) -> None:
-        found = dict(attrs)
-        self.tags.append(tag)
-        if tag == "img":
-            self.images[found.get("id") or ""] = found.get("src") or ""
-        for name in ("href", "src"):
-            if found.get(name):
-                self.links.append(found[name] or "")
-
-    def handle_data(self, data: str) -> None:
-        self.text.append(data)
-
-
-def test_job_page_is_self_contained_with_the_plots(
-    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
-) -> None:
-    job_id, result = circle_job
-    answer = call(client, "GET", f"{JOBS}/{job_id}", headers={"Accept": "text/html"})
-    assert answer.status_code == 200 and answer.mimetype == "text/html"
-    page = Page()
-    page.feed(answer.get_data(as_text=True))
-    text = " ".join(page.text)
-    assert "not for diagnosis or treatment decisions" in text
-    assert "succeeded" in text and result["layout_id"] in text
-    assert set(page.images) == {"plot-diagram", "plot-barcode", "plot-image"}
-    # No external asset: every src is inline data, every link stays on this server.
-    assert "script" not in page.tags and "link" not in page.tags
-    assert all(src.startswith("data:image/svg+xml;base64,") for src in page.images.values())
-    assert all(re.match(r"^(data:|/v1/)", link) for link in page.links), page.links
-    svg = base64.b64decode(page.images["plot-diagram"].split(",", 1)[1])
-    points = [i for i in svg_ids(svg) if i.startswith("point-")]
-    assert len(points) == sum(len(d["pairs"]) for d in result["diagrams"])
-
-
-def test_json_stays_the_default(
-    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
-) -> None:
-    for accept in ("*/*", "application/json", "application/json, text/html;q=0.5"):
-        answer = call(client, "GET", f"{JOBS}/{circle_job[0]}", headers={"Accept": accept})
-        assert answer.mimetype == "application/json" and answer.get_json()["status"]
-
-
-def test_page_of_a_failed_job_shows_its_problem(served: tuple[FlaskClient, Settings]) -> None:
-    # The same worker, an API whose results may hold one pair: the job fails on the worker.
-    _, settings = served
-    strict = app_with(redis_url=settings.redis_url, queue=settings.queue, max_result_pairs=1)
-    client = strict.test_client()
-    body = rips_job(noisy_circle(20, seed=1).tolist(), max_dim=1)
-    answer = post(client, JOBS, body, headers=WAIT)
-    assert answer.get_json()["status"] == "failed"
-    page = call(client, "GET", answer.headers["Location"], headers={"Accept": "text/html"})
-    text = page.get_data(as_text=True)
-    assert page.status_code == 200 and "failed" in text
-    assert answer.get_json()["problem"]["title"] in text
-    assert "Research use only" in text and "<img" not in text
 
 
 # RFC 9110 section 15.6.4: 503 with Retry-After (section 10.2.3) when the server is overloaded.

@@ -20,6 +20,7 @@ import pytest
 
 from service.submissions import Submission, distance_submission, job_submission, stored_input
 from workers.jobs import execute_bytes
+from workers.jobs.steps import ignore
 from workers.memory import MIB, address_space, address_space_cap
 from workers.spec import SCHEMA_VERSION, DistanceRequest, JobPayload, JobRequest
 from workers.spec.arrays import array_sha256, to_npy_bytes
@@ -50,7 +51,7 @@ def _run(submission: Submission) -> None:
         time_limit_s=600,
     )
     header = {"job_id": "measured", "payload": payload.model_dump(mode="json")}
-    json.dumps(execute_bytes(header, to_npy_bytes(submission.array), lambda done, total: None))
+    json.dumps(execute_bytes(header, to_npy_bytes(submission.array), ignore))
 
 
 def measure_here(case: str) -> None:

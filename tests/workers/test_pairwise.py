@@ -106,6 +106,12 @@ def test_progress_reaches_the_worker_and_a_kill_stops_the_forked_processes() -> 
     before = descendants(os.getpid())  # the suite's own Redis, say
     compute = ComputeProcess(execute_bytes)
     progress: list[tuple[int, int]] = []
+    stages: set[str | None] = set()
+
+    def seen(done: int, total: int, stage: str | None = None) -> None:
+        progress.append((done, total))
+        stages.add(stage)
+
     started = time.monotonic()
     try:
         with pytest.raises(JobAborted) as aborted:
@@ -114,7 +120,7 @@ def test_progress_reaches_the_worker_and_a_kill_stops_the_forked_processes() -> 
                 payload=_payload(items, rows),
                 input_bytes=to_npy_bytes(rows),
                 time_limit_s=60,
-                on_progress=lambda done, total: progress.append((done, total)),
+                on_progress=seen,
                 # Stop once some pairs are done, as a cancel would.
                 should_stop=lambda: (
                     any(done for done, _ in progress) or time.monotonic() - started > 30
@@ -123,7 +129,7 @@ def test_progress_reaches_the_worker_and_a_kill_stops_the_forked_processes() -> 
         assert aborted.value.problem.type == "urn:lacuna:problem:cancelled"
         # The total shows from the start, then pairs come in before the stop.
         assert progress[0] == (0, 7140)
-        assert any(0 < done < 7140 for done, _ in progress)
+        assert any(0 < done < 7140 for done, _ in progress) and stages == {"distances"}
         # The compute child and the processes it forked are all gone.
         wait_until(
             lambda: not [pid for pid in descendants(os.getpid()) - before if running(pid)],

@@ -28,6 +28,7 @@ from workers.compute import ComputeProcess, JobAborted, Report, problem_for
 from workers.core.errors import pointing_into
 from workers.jobs import distances
 from workers.jobs.results import KindWorker, persistence_result
+from workers.jobs.steps import Steps, feature_step_count, ignore
 from workers.pictures.plot_jobs import picture
 from workers.reconnect import Gate, until_answered
 from workers.settings import WorkerSettings
@@ -42,10 +43,6 @@ __all__ = ["execute", "execute_bytes", "run", "compute_process"]
 _compute: ComputeProcess | None = None
 
 
-def _ignore(done: int, total: int) -> None:
-    """Progress callback of computations nobody watches."""
-
-
 def kind_worker(payload: JobPayload, task: PersistenceTask) -> KindWorker:
     """The module that computes ``task`` on the payload's input kind."""
     module = importlib.import_module(kind_of(payload.input.type).worker(task))
@@ -53,9 +50,10 @@ def kind_worker(payload: JobPayload, task: PersistenceTask) -> KindWorker:
 
 
 def execute(
-    payload: JobPayload, array: np.ndarray, *, job_id: str, report: Report = _ignore
+    payload: JobPayload, array: np.ndarray, *, job_id: str, report: Report = ignore
 ) -> dict[str, Any]:
-    """Compute the result of one job from its payload and its stored input array."""
+    """Compute the result of one job from its payload and its stored input array, reporting
+    its steps (``workers.jobs.steps``) or, for a distance matrix, its pairs."""
     if payload.input.type not in ("image", "mask"):  # images keep their dtype until negated
         array = array.astype(np.float64, copy=False)
     task = payload.task
@@ -65,8 +63,11 @@ def execute(
         with pointing_into(""):  # the picture's format and size are fields of the plot query
             return picture(task, array).model_dump(mode="json")
     started = time.perf_counter()
-    computed = kind_worker(payload, task).compute(payload, task, array)
-    return persistence_result(payload, task, computed, job_id, started)
+    steps = Steps(report, planned=feature_step_count(task) + 1)  # the features, the result
+    computed = kind_worker(payload, task).compute(payload, task, array, steps)
+    result = persistence_result(payload, task, computed, job_id, started, steps)
+    steps.finish()
+    return result
 
 
 def execute_bytes(header: dict[str, Any], input_bytes: bytes, report: Report) -> dict[str, Any]:
@@ -154,11 +155,14 @@ def _write_meta_field(job: Job, claim: Claim | None, field: str, value: Any) -> 
     return False
 
 
-def _save_progress(job: Job, claim: Claim | None, gate: Gate, done: int, total: int) -> None:
+def _save_progress(
+    job: Job, claim: Claim | None, gate: Gate, done: int, total: int, stage: str | None = None
+) -> None:
     """Progress is shown, not needed: while Redis is away it is skipped, not waited for."""
-    gate.call(
-        lambda: _write_meta_field(job, claim, "progress", {"done": done, "total": total}), False
-    )
+    progress: dict[str, Any] = {"done": done, "total": total}
+    if stage is not None:
+        progress["stage"] = stage
+    gate.call(lambda: _write_meta_field(job, claim, "progress", progress), False)
 
 
 def _should_stop(job: Job, claim: Claim | None, gate: Gate) -> bool:
@@ -225,7 +229,7 @@ def run(raw_payload: dict[str, Any]) -> dict[str, Any]:
             input_bytes=stored,
             time_limit_s=payload.time_limit_s,
             should_stop=lambda: _should_stop(job, claim, cancel_gate),
-            on_progress=lambda done, total: _save_progress(job, claim, progress_gate, done, total),
+            on_progress=functools.partial(_save_progress, job, claim, progress_gate),
         )
     except JobAborted as aborted:
         problem: Problem = aborted.problem

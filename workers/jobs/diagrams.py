@@ -6,6 +6,7 @@ import numpy as np
 from workers import defaults
 from workers.core.diagrams import drop_empty_bars, sort_pairs
 from workers.jobs.results import Computed, DiagramSet
+from workers.jobs.steps import Steps
 from workers.spec import JobPayload, PersistenceTask
 from workers.spec.arrays import diagrams_of_rows
 from workers.spec.features import vector_length
@@ -13,7 +14,11 @@ from workers.spec.features import vector_length
 __all__ = ["compute", "runs_inline"]
 
 
-def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Computed:
+def compute(
+    payload: JobPayload, task: PersistenceTask, array: np.ndarray, steps: Steps
+) -> Computed:
+    steps.plan(1)
+    steps.begin("diagrams")
     given = diagrams_of_rows(array, sorted(task.given_dims))
     diagrams = {dim: sort_pairs(drop_empty_bars(pairs)) for dim, pairs in given.items()}
     return Computed(

@@ -8,14 +8,18 @@ from typing import Any
 import numpy as np
 
 from workers import defaults, memory
+from workers.compute import Report
 from workers.core.errors import pointing_into
-from workers.jobs.pairwise import Report, distance_matrix, usable_cores
+from workers.jobs.pairwise import distance_matrix, usable_cores
 from workers.jobs.results import provenance
 from workers.spec import SCHEMA_VERSION, DistanceResult, DistanceTask, JobPayload
 from workers.spec.arrays import diagrams_of_rows
 from workers.spec.costs import largest_pair_peak
 
-__all__ = ["affordable_processes", "compute", "runs_inline"]
+__all__ = ["DISTANCES_STAGE", "affordable_processes", "compute", "runs_inline"]
+
+DISTANCES_STAGE = "distances"
+"""The stage of a distance job's progress, which counts pairs."""
 
 
 def compute(
@@ -30,7 +34,10 @@ def compute(
         items = [by_index[index] for index in range(task.count)]
     with pointing_into(""):  # the metric's parameters are fields of the distance request
         matrix, nulls = distance_matrix(
-            items, task, report, processes=affordable_processes(task, items)
+            items,
+            task,
+            lambda done, total: report(done, total, DISTANCES_STAGE),
+            processes=affordable_processes(task, items),
         )
     finite = np.isfinite(matrix)
     diagram_metric = payload.input.type != "vectors"

@@ -1,6 +1,6 @@
 """Feature specs applied to diagrams: the glue between ``workers.spec`` and ``workers.core``."""
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 
 import numpy as np
 
@@ -25,6 +25,13 @@ from workers.spec.features import (
 from workers.spec.results import FeatureVector, LayoutEntry
 
 __all__ = ["direction_feature_vectors", "feature_values", "feature_vectors", "layout_id_of"]
+
+Step = Callable[[], None]
+"""Called as each feature vector begins (a step of the job's progress)."""
+
+
+def _no_step() -> None:
+    """No progress to report."""
 
 
 def feature_values(spec: FeatureSpec, pairs: np.ndarray) -> np.ndarray:
@@ -58,10 +65,11 @@ def layout_id_of(spec_ids: Sequence[str]) -> str:
 
 
 def feature_vectors(
-    specs: Sequence[FeatureSpec], diagrams: Mapping[int, np.ndarray]
+    specs: Sequence[FeatureSpec], diagrams: Mapping[int, np.ndarray], step: Step = _no_step
 ) -> tuple[list[FeatureVector], list[LayoutEntry], str | None]:
-    """Vectors of ``specs`` on ``diagrams`` (dimension -> (k, 2)), their layout and its id."""
-    vectors, layout = _vectors_of(specs, diagrams, direction=None, start=0)
+    """Vectors of ``specs`` on ``diagrams`` (dimension -> (k, 2)), their layout and its id;
+    ``step`` is called before each."""
+    vectors, layout = _vectors_of(specs, diagrams, direction=None, start=0, step=step)
     layout_id = layout_id_of([entry.spec_id for entry in layout]) if layout else None
     return vectors, layout, layout_id
 
@@ -69,8 +77,10 @@ def feature_vectors(
 def direction_feature_vectors(
     specs: Sequence[FeatureSpec],
     diagram_sets: Sequence[tuple[list[float], Mapping[int, np.ndarray]]],
+    step: Step = _no_step,
 ) -> tuple[list[FeatureVector], list[LayoutEntry], str | None]:
-    """Vectors of ``specs`` on each (direction, diagrams) in turn, direction-major.
+    """Vectors of ``specs`` on each (direction, diagrams) in turn, direction-major; ``step``
+    is called before each.
 
     The layout id covers the unit directions too: vectors of other directions do not stack.
     """
@@ -78,7 +88,9 @@ def direction_feature_vectors(
     layout: list[LayoutEntry] = []
     for index, (_, diagrams) in enumerate(diagram_sets):
         start = layout[-1].stop if layout else 0
-        more_vectors, more_layout = _vectors_of(specs, diagrams, direction=index, start=start)
+        more_vectors, more_layout = _vectors_of(
+            specs, diagrams, direction=index, start=start, step=step
+        )
         vectors += more_vectors
         layout += more_layout
     if not layout:
@@ -97,10 +109,12 @@ def _vectors_of(
     diagrams: Mapping[int, np.ndarray],
     direction: int | None,
     start: int,
+    step: Step,
 ) -> tuple[list[FeatureVector], list[LayoutEntry]]:
     vectors: list[FeatureVector] = []
     layout: list[LayoutEntry] = []
     for index, spec in enumerate(specs):
+        step()
         spec_id = spec.spec_id or spec_id_of(spec)
         where = f"/features/{index}"
         # The diagram argument stands for the spec's handling of classes that never die.

@@ -32,6 +32,7 @@ from workers.core.network import (
 )
 from workers.core.skeleton_graph import skeleton_graph
 from workers.jobs.results import Computed, DiagramSet
+from workers.jobs.steps import Steps, ignore, of_direction
 from workers.spec import JobPayload, PersistenceTask
 from workers.spec.filtrations import (
     AttributeFiltration,
@@ -52,7 +53,14 @@ from workers.spec.networks import (
 from workers.spec.problems import FieldError
 from workers.spec.results import ValueConvention
 
-__all__ = ["Network", "descriptors_of", "graph_diagram_sets", "graph_output", "network_of"]
+__all__ = [
+    "Network",
+    "descriptors_of",
+    "filtration_step_count",
+    "graph_diagram_sets",
+    "graph_output",
+    "network_of",
+]
 
 
 @dataclass(frozen=True)
@@ -110,27 +118,31 @@ def network_of(
 
 
 def graph_diagram_sets(
-    network: Network, filtration: Filtration
+    network: Network, filtration: Filtration, progress: Steps | None = None
 ) -> tuple[list[DiagramSet], ValueConvention, int | None]:
     """The diagram sets of a graph filtration (one set, or one per direction of a height
     filtration with ``directions``), what their values are, and how many nodes a geodesic
-    filtration never reaches (None for other filtrations)."""
+    filtration never reaches (None for other filtrations); the node values and each
+    persistence are steps of ``progress`` (``filtration_step_count`` of them)."""
     max_dim = graph_max_dim(filtration)
+    progress = progress or Steps(ignore)
 
-    def diagrams_of(values: np.ndarray) -> dict[int, np.ndarray]:
+    def diagrams_of(values: np.ndarray, stage: str = "persistence") -> dict[int, np.ndarray]:
+        progress.begin(stage)
         return dict(enumerate(graph_diagrams(values, network.edges, max_dim=max_dim)))
 
     if isinstance(filtration, HeightFiltration):
-        several = filtration.directions is not None
-        sets = [
-            DiagramSet(
-                diagrams_of(node_heights(network.coordinates, np.asarray(unit))),
-                unit if several else None,
-            )
-            for unit in filtration.unit_directions()
-        ]
+        units = filtration.unit_directions()
+        count = len(units) if filtration.directions is not None else None
+        sets = []
+        for index, unit in enumerate(units):
+            progress.begin(of_direction("heights", index, count))
+            values = node_heights(network.coordinates, np.asarray(unit))
+            diagrams = diagrams_of(values, of_direction("persistence", index, count))
+            sets.append(DiagramSet(diagrams, unit if count is not None else None))
         return sets, "height", None
     if isinstance(filtration, RadialFiltration):
+        progress.begin("radial distance")
         values = node_radial_distances(network.coordinates, np.asarray(filtration.center))
         return [DiagramSet(diagrams_of(values))], "radial_distance", None
     if isinstance(filtration, GeodesicFiltration):
@@ -142,6 +154,7 @@ def graph_diagram_sets(
                     f"seed {seed} is not a node; the graph has {has}",
                     field=f"/filtration/seeds/{index}",
                 )
+        progress.begin("geodesic distance")
         values = geodesic_distances(
             node_count, network.edges, network.lengths, np.asarray(filtration.seeds)
         )
@@ -151,6 +164,16 @@ def graph_diagram_sets(
         values = np.asarray(filtration.values, dtype=np.float64)
         return [DiagramSet(diagrams_of(values))], "node_value", None
     raise TypeError(f"not a graph filtration: {type(filtration).__name__}")
+
+
+def filtration_step_count(filtration: Filtration | None) -> int:
+    """Steps of ``graph_diagram_sets``: the node values (unless given) and the persistence,
+    for each direction."""
+    if filtration is None:
+        return 0
+    if isinstance(filtration, HeightFiltration):
+        return 2 * len(filtration.unit_directions())
+    return 1 if isinstance(filtration, AttributeFiltration) else 2
 
 
 def _model(descriptors: CoreDescriptors) -> NetworkDescriptors:
@@ -214,9 +237,14 @@ def graph_output(network: Network) -> GraphOutput:
     )
 
 
-def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Computed:
+def compute(
+    payload: JobPayload, task: PersistenceTask, array: np.ndarray, steps: Steps
+) -> Computed:
     """Diagrams of the graph filtration (one set per direction, or none without a
     filtration), and the network descriptors and graph when the output asks for them."""
+    described = "descriptors" in task.output
+    steps.plan(1 + filtration_step_count(task.filtration) + described)
+    steps.begin("skeleton graph" if task.skeletonize else "network")
     network = network_of(
         array, layout=task.graph, skeletonize=task.skeletonize, spacing=task.spacing
     )
@@ -225,10 +253,11 @@ def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Co
     unreached = None
     if task.filtration is not None:
         with pointing_into("/filtration"):
-            sets, convention, unreached = graph_diagram_sets(network, task.filtration)
-    descriptors, shells = (
-        descriptors_of(network, task.descriptors) if "descriptors" in task.output else (None, None)
-    )
+            sets, convention, unreached = graph_diagram_sets(network, task.filtration, steps)
+    descriptors, shells = None, None
+    if described:
+        steps.begin("descriptors")
+        descriptors, shells = descriptors_of(network, task.descriptors)
     lengths_unit = payload.input.units
     if task.skeletonize and task.spacing is None:
         lengths_unit = "pixel"

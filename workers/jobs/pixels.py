@@ -15,6 +15,7 @@ from workers.core.cubical import cubical_diagrams
 from workers.core.errors import pointing_into
 from workers.core.mask_filtrations import heights, radial_distances, signed_distance
 from workers.jobs.results import Computed, DiagramSet
+from workers.jobs.steps import Steps, ignore, of_direction
 from workers.spec import JobPayload, PersistenceTask
 from workers.spec.filtrations import (
     ArrayFiltration,
@@ -30,43 +31,61 @@ __all__ = ["compute", "pixel_diagram_sets", "runs_inline"]
 
 
 def pixel_diagram_sets(
-    array: np.ndarray, filtration: ArrayFiltration, spacing: Sequence[float] | None
+    array: np.ndarray,
+    filtration: ArrayFiltration,
+    spacing: Sequence[float] | None,
+    progress: Steps | None = None,
 ) -> tuple[list[DiagramSet], ValueConvention]:
     """The diagram sets of ``filtration`` on an image or mask ``array`` (one set, or one per
-    direction of a height filtration with ``directions``) and what their values are."""
+    direction of a height filtration with ``directions``) and what their values are; the
+    filtration values and each persistence are steps of ``progress``."""
     values = np.asarray(array, dtype=np.float64)  # before any negation: no integer wrap-around
     steps = list(spacing) if spacing is not None else [1.0] * values.ndim
     max_dim = max_dim_of(filtration, values.ndim)
+    progress = progress or Steps(ignore)
 
-    def diagrams_of(filtration_values: np.ndarray) -> dict[int, np.ndarray]:
+    def diagrams_of(
+        filtration_values: np.ndarray, stage: str = "persistence"
+    ) -> dict[int, np.ndarray]:
+        progress.begin(stage)
         return dict(enumerate(cubical_diagrams(filtration_values, max_dim=max_dim)))
 
     if isinstance(filtration, CubicalFiltration):
+        progress.plan(1)  # the values are the pixels'
         if filtration.direction == "superlevel":
             return [DiagramSet(diagrams_of(-values))], "negated_pixel_value"
         return [DiagramSet(diagrams_of(values))], "pixel_value"
     if isinstance(filtration, DistanceFiltration):
+        progress.plan(2)
+        progress.begin("signed distance")
         return [DiagramSet(diagrams_of(signed_distance(values, steps)))], "signed_distance"
     if isinstance(filtration, RadialFiltration):
+        progress.plan(2)
+        progress.begin("radial distance")
         radial = radial_distances(values, steps, filtration.center)
         return [DiagramSet(diagrams_of(radial))], "radial_distance"
     if isinstance(filtration, HeightFiltration):
         units = filtration.unit_directions()
-        several = filtration.directions is not None
-        sets = [
-            DiagramSet(diagrams_of(heights(values, steps, unit)), unit if several else None)
-            for unit in units
-        ]
+        count = len(units) if filtration.directions is not None else None
+        progress.plan(2 * len(units))
+        sets = []
+        for index, unit in enumerate(units):
+            progress.begin(of_direction("heights", index, count))
+            height = heights(values, steps, unit)
+            diagrams = diagrams_of(height, of_direction("persistence", index, count))
+            sets.append(DiagramSet(diagrams, unit if count is not None else None))
         return sets, "height"
     raise TypeError(f"not an array filtration: {type(filtration).__name__}")
 
 
-def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Computed:
+def compute(
+    payload: JobPayload, task: PersistenceTask, array: np.ndarray, steps: Steps
+) -> Computed:
     filtration = task.filtration
     if not isinstance(filtration, ArrayFiltration):
         raise TypeError("an image or mask job needs an array filtration")
     with pointing_into("/filtration"):
-        sets, convention = pixel_diagram_sets(array, filtration, task.spacing)
+        sets, convention = pixel_diagram_sets(array, filtration, task.spacing, steps)
     # Pixel values have no unit; lengths have the unit of spacing, or are in pixels.
     units = None
     if convention not in ("pixel_value", "negated_pixel_value"):

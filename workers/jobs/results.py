@@ -7,6 +7,7 @@ graph, warnings, the subsample). Here the size of the result is checked, the fea
 are made and the diagrams turned into the contract's models, the same way for every kind.
 """
 
+import functools
 import time
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -16,6 +17,7 @@ import numpy as np
 
 from workers.core.errors import RequestError
 from workers.jobs.features import direction_feature_vectors, feature_vectors
+from workers.jobs.steps import Steps
 from workers.spec import SCHEMA_VERSION, Diagram, JobPayload, JobResult, PersistenceTask
 from workers.spec.results import DirectionDiagrams, ValueConvention, package_versions
 
@@ -56,8 +58,11 @@ class Computed:
 class KindWorker(Protocol):
     """A ``workers.jobs`` module that computes one kind of input (``InputKind.worker``)."""
 
-    def compute(self, payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Computed:
-        """The diagram sets of ``task`` on the stored ``array``."""
+    def compute(
+        self, payload: JobPayload, task: PersistenceTask, array: np.ndarray, steps: Steps
+    ) -> Computed:
+        """The diagram sets of ``task`` on the stored ``array``; its own steps planned on
+        ``steps`` before the first begins."""
         ...
 
     def runs_inline(self, payload: JobPayload) -> bool:
@@ -79,9 +84,16 @@ def provenance(payload: JobPayload, started: float, **extra: Any) -> dict[str, A
 
 
 def persistence_result(
-    payload: JobPayload, task: PersistenceTask, computed: Computed, job_id: str, started: float
+    payload: JobPayload,
+    task: PersistenceTask,
+    computed: Computed,
+    job_id: str,
+    started: float,
+    steps: Steps,
 ) -> dict[str, Any]:
-    """The JobResult (as JSON) of a persistence task from what its kind's worker computed."""
+    """The JobResult (as JSON) of a persistence task from what its kind's worker computed;
+    one step per feature vector, and one for the result."""
+    feature_step = functools.partial(steps.begin, "features")
     sets = computed.sets
     several = bool(sets) and sets[0].direction is not None
     if computed.diagrams_kept:  # only diagrams the result holds count toward its size
@@ -95,7 +107,7 @@ def persistence_result(
     per_direction = None
     if several:
         named = [(s.direction or [], s.diagrams) for s in sets]
-        vectors, layout, layout_id = direction_feature_vectors(task.features, named)
+        vectors, layout, layout_id = direction_feature_vectors(task.features, named, feature_step)
         if computed.diagrams_kept:
             per_direction = [
                 DirectionDiagrams(direction=direction, diagrams=_diagrams(found))
@@ -103,9 +115,10 @@ def persistence_result(
             ]
     else:
         found = sets[0].diagrams if sets else {}
-        vectors, layout, layout_id = feature_vectors(task.features, found)
+        vectors, layout, layout_id = feature_vectors(task.features, found, feature_step)
         if computed.diagrams_kept:
             diagrams = _diagrams(found)
+    steps.begin("result")
     result = JobResult.model_validate(
         {
             "job_id": job_id,

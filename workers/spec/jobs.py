@@ -1,10 +1,10 @@
 """Jobs: their states, the status view, and what travels on the queue."""
 
-from datetime import datetime
+from datetime import UTC, datetime
 from enum import StrEnum
 from typing import Annotated, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, ConfigDict, Field, PlainSerializer
 
 from workers.spec.distances import Metric
 from workers.spec.features import FeatureSpec
@@ -28,6 +28,7 @@ __all__ = [
     "StoredType",
     "cancel_key",
     "input_key",
+    "rfc3339",
 ]
 
 JOB_FUNCTION = "workers.jobs.run"
@@ -61,10 +62,35 @@ class JobState(StrEnum):
 
 
 class Progress(BaseModel):
-    """``done`` of ``total`` units of work (pairs of a distance matrix)."""
+    """``done`` of ``total`` units of work: steps of a persistence job (checked input,
+    filtration, persistence, each feature, the result), pairs of a distance matrix."""
 
     done: int
     total: int
+    stage: Annotated[
+        str | None,
+        Field(
+            description='What the job is doing now, in a few plain words ("persistence", '
+            '"features", "distances").'
+        ),
+    ] = None
+
+
+def rfc3339(moment: datetime) -> str:
+    """``moment`` in UTC as RFC 3339 with milliseconds and a Z: 2026-12-04T19:02:03.123Z."""
+    utc = moment.replace(tzinfo=UTC) if moment.tzinfo is None else moment.astimezone(UTC)
+    return utc.isoformat(timespec="milliseconds").replace("+00:00", "Z")
+
+
+Timestamp = Annotated[
+    datetime,
+    PlainSerializer(rfc3339, return_type=str, when_used="json"),
+    Field(
+        description="RFC 3339 in UTC with milliseconds and a Z, e.g. 2026-12-04T19:02:03.123Z.",
+        json_schema_extra={"format": "date-time"},
+    ),
+]
+"""A moment of a job's life, as the status answers it."""
 
 
 class JobStatus(BaseModel):
@@ -72,9 +98,9 @@ class JobStatus(BaseModel):
 
     job_id: str
     status: JobState
-    created_at: datetime | None = None
-    started_at: datetime | None = None
-    ended_at: datetime | None = None
+    created_at: Timestamp | None = None
+    started_at: Timestamp | None = None
+    ended_at: Timestamp | None = None
     problem: Annotated[Problem | None, Field(description="Why the job failed.")] = None
     progress: Annotated[
         Progress | None, Field(description="How far a running job is (jobs that report it).")
