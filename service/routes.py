@@ -23,7 +23,7 @@ from service.extension import ServiceState
 from service.gates import Gates
 from service.graphml import decode_graph
 from service.pages import job_page, wants_html
-from service.pictures import draw
+from service.pictures import draw, validators_of
 from service.queue import Job
 from service.quotas import quotas_of
 from service.submissions import Submission, distance_submission, job_submission
@@ -405,13 +405,21 @@ def job_result(job_id: str) -> Response:
 
 @v1.get("/jobs/<job_id>/plot")
 def job_plot(job_id: str) -> Response:
-    """A picture of a succeeded job: its diagram, barcode or persistence image, SVG or PNG."""
+    """A picture of a succeeded job (diagram, barcode, persistence image or distance matrix,
+    SVG or PNG), drawn once and then answered from Redis; If-None-Match gets a 304."""
     query = PlotQuery.model_validate(request.args.to_dict())
     state = _state()
     owner = owner_of(request)
     job = state.queue.find(job_id, owner)
-    picture, media_type = draw(state, job, query, owner, _gates().waiters)
-    return Response(picture, mimetype=media_type)
+    validators = validators_of(state, job, query, owner)
+    if request.if_none_match.contains(validators.etag):  # RFC 9110 section 13.1.2
+        answer = Response(status=304)
+    else:
+        picture, media_type = draw(state, job, query, owner, _gates().waiters)
+        answer = Response(picture, mimetype=media_type)
+    answer.set_etag(validators.etag)
+    answer.headers["Cache-Control"] = f"private, max-age={validators.max_age}"
+    return answer
 
 
 @v1.delete("/jobs/<job_id>")

@@ -164,6 +164,14 @@ class Settings(BaseSettings):
         "or used (by id in a job, or read).",
     )
 
+    # Pictures: each drawn once per job and query, then answered from Redis
+    picture_cache_max_bytes: int = Field(
+        4_000_000,
+        ge=0,
+        description="Largest picture kept in Redis (bytes) for the rest of its job's result "
+        "TTL; a larger one is drawn again on every request. 0: no picture is kept.",
+    )
+
     # Memory and cost of jobs: the memory limit, and the refusal up front of what cannot fit
     job_memory_limit_mb: int | None = Field(
         4096,

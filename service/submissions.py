@@ -14,12 +14,12 @@ import numpy as np
 
 from service.errors import RequestInvalid
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, PersistenceTask
-from workers.spec.arrays import diagram_rows
+from workers.spec.arrays import diagram_rows, result_array
 from workers.spec.distances import DEFAULT_DIRECTIONS, DIAGRAM_METRICS
 from workers.spec.features import PersistenceImageSpec
 from workers.spec.jobs import JobPayload, StoredInput, StoredType
 from workers.spec.kinds import InputData, kind_of
-from workers.spec.plots import PlotQuery, PlotTask
+from workers.spec.plots import PAIR_KINDS, PlotQuery, PlotTask
 from workers.spec.results import Diagram
 
 __all__ = [
@@ -190,11 +190,14 @@ def distance_submission(
         else None,
         dim=_dimension_of(request) if diagram_metric else None,
         count=count,
+        job_ids=request.job_ids,
     )
+    # The diagrams' units, when every job compared has the same (the matrix's units).
+    units = {result.get("units") for result in results or [{}]}
     return Submission(
         array=array,
         input_type=input_type,
-        units=None,
+        units=units.pop() if len(units) == 1 and diagram_metric else None,
         task=task,
         described=described,
         description=f"{request.metric} between {count} items",
@@ -286,7 +289,9 @@ def plot_submission(
     query: PlotQuery, result: dict[str, Any], payload: JobPayload, job_id: str
 ) -> Submission:
     """A plot job drawing what ``query`` asks of the succeeded job ``job_id`` (its result and
-    payload); RequestInvalid pointing into the query when the job has nothing of that kind."""
+    payload); RequestInvalid pointing into the query when the job has nothing of that kind.
+    min_persistence and top choose the pairs here, so the plot job gets only those."""
+    _check_plot_fields(query, result)
     task = PlotTask(
         type="plot",
         kind=query.kind,
@@ -297,6 +302,8 @@ def plot_submission(
         value_name=str(result.get("value_convention", "value")).replace("_", " "),
     )
     described = {"plot": query.model_dump(mode="json"), "job_id": job_id}
+    if query.kind == "matrix":
+        return _matrix_submission(task, result, payload, described, job_id)
     if query.kind == "image":
         values, dim, spec = _persistence_image(query, result, payload)
         return Submission(
@@ -314,15 +321,118 @@ def plot_submission(
             description=f"persistence image of job {job_id}",
         )
     diagrams = _chosen_diagrams(query, result)
-    rows = diagram_rows([(item["dim"], item["pairs"]) for item in diagrams])
+    rows, caption = _chosen_pairs(query, diagrams, task.units)
     return Submission(
         array=rows,
         input_type="diagrams",
         units=task.units,
-        task=task.model_copy(update={"dims": [item["dim"] for item in diagrams]}),
+        task=task.model_copy(
+            update={"dims": [item["dim"] for item in diagrams], "caption": caption}
+        ),
         described=described,
         description=f"{query.kind} of job {job_id}",
     )
+
+
+def _check_plot_fields(query: PlotQuery, result: dict[str, Any]) -> None:
+    """RequestInvalid when the kind does not fit the job, or a field does not fit the kind."""
+    is_matrix = "matrix" in result
+    if (query.kind == "matrix") != is_matrix:
+        message = (
+            f"the job is a distance matrix; draw it with kind=matrix, not kind={query.kind}"
+            if is_matrix
+            else "the job has no distance matrix; kind=matrix draws a job of POST /v1/distances"
+        )
+        raise RequestInvalid([FieldError(pointer="/kind", message=message)])
+    unfit = ["dim", "direction"] if is_matrix else []
+    if query.kind not in PAIR_KINDS:
+        unfit += ["min_persistence", "top"]
+    errors = [
+        FieldError(pointer=f"/{name}", message=f"{name} does not apply to kind={query.kind}")
+        for name in unfit
+        if getattr(query, name) is not None
+    ]
+    if errors:
+        raise RequestInvalid(errors)
+
+
+def _chosen_pairs(
+    query: PlotQuery, diagrams: list[dict[str, Any]], units: str | None
+) -> tuple[np.ndarray, str | None]:
+    """(k, 4) rows (dim, birth, death, row in its diagram) of the pairs ``query`` keeps, and
+    the caption saying what was kept; every pair and no caption without a filter."""
+    chosen = []
+    for item in diagrams:
+        rows = diagram_rows([(item["dim"], item["pairs"])])
+        rows = np.column_stack([rows, np.arange(len(rows), dtype=np.float64)])
+        persistence = rows[:, 2] - rows[:, 1]  # inf for a class that never dies
+        if query.min_persistence is not None:
+            rows, persistence = (
+                rows[persistence >= query.min_persistence],
+                persistence[persistence >= query.min_persistence],
+            )
+        if query.top is not None and len(rows) > query.top:
+            # The most persistent first, the earlier pair on a tie; drawn in the result's order.
+            kept = np.sort(np.argsort(-persistence, kind="stable")[: query.top])
+            rows = rows[kept]
+        chosen.append(rows)
+    array = np.concatenate(chosen) if chosen else np.empty((0, 4))
+    if query.min_persistence is None and query.top is None:
+        return array, None
+    total = sum(len(item["pairs"]) for item in diagrams)
+    rules = []
+    if query.min_persistence is not None:
+        rules.append(f"persistence ≥ {query.min_persistence:g}{f' {units}' if units else ''}")
+    if query.top is not None:
+        rules.append(f"top {query.top:,} per dimension")
+    return array, f"showing {len(array):,} of {total:,} pairs ({'; '.join(rules)})"
+
+
+def _matrix_submission(
+    task: PlotTask,
+    result: dict[str, Any],
+    payload: JobPayload,
+    described: dict[str, Any],
+    job_id: str,
+) -> Submission:
+    """The heatmap of a distance job's matrix, labelled with its metric and items."""
+    matrix = result_array(result)
+    if matrix is None:
+        raise ValueError(f"job {job_id} has no distance matrix")
+    distances = payload.task
+    job_ids = distances.job_ids if isinstance(distances, DistanceTask) else None
+    metric = str(result["metric"])
+    name = f"{metric.replace('_', ' ')} distance"
+    if result.get("order") is not None:
+        name += f", order {result['order']:g}"
+    if result.get("dim") is not None:
+        name += f", H{result['dim']}"
+    nulls = len(result.get("nulls") or [])
+    pairs = result["count"] * (result["count"] - 1) // 2
+    return Submission(
+        array=matrix,
+        input_type="grid",
+        units=payload.input.units,
+        task=task.model_copy(
+            update={
+                "units": payload.input.units,
+                "value_name": name,
+                "labels": [f"{i} · {found[:8]}" for i, found in enumerate(job_ids)]
+                if job_ids
+                else None,
+                "null_meaning": _NULL_MEANINGS["cosine" if metric == "cosine" else "diagram"],
+                "caption": f"{nulls:,} of {pairs:,} distances are null" if nulls else None,
+            }
+        ),
+        described=described,
+        description=f"distance matrix of job {job_id}",
+    )
+
+
+_NULL_MEANINGS = {
+    "cosine": "undefined: a vector of all zeros has no direction",
+    "diagram": "infinite: unequal numbers of classes that never die (or beyond float64)",
+}
 
 
 def _chosen_diagrams(query: PlotQuery, result: dict[str, Any]) -> list[dict[str, Any]]:

@@ -3,17 +3,23 @@ with Accept: text/html answers the job page.
 
 SVG answers are parsed as XML (xml.etree, on our own output) and their marker groups counted
 against the diagram the job returned; PNG answers are decoded with Pillow (reference decoder).
+Pictures are drawn once per job and query: the plot jobs queued are counted by wrapping the
+app's JobQueue.submit, and ETags checked as RFC 9110 section 13.1.2 (If-None-Match) says.
 """
 
 import io
 import xml.etree.ElementTree as ElementTree
 from typing import Any
 
+import numpy as np
 import pytest
 from flask.testing import FlaskClient
 from PIL import Image
+from redis import Redis
 
+from service.keys import KeyStore
 from service.settings import Settings
+from service.submissions import Submission
 from tests.support.api import JOBS, WAIT, app_with, call, fresh_queue, post, problem_of, result_of
 from tests.support.bodies import rips_job
 from tests.support.synthetic import noisy_circle
@@ -48,8 +54,32 @@ def svg_ids(svg: bytes) -> list[str]:
     return [element.get("id", "") for element in root.iter()]
 
 
-def plot(client: FlaskClient, job_id: str, query: str) -> Any:
-    return call(client, "GET", f"{JOBS}/{job_id}/plot?{query}")
+def plot(client: FlaskClient, job_id: str, query: str, **headers: str) -> Any:
+    return call(client, "GET", f"{JOBS}/{job_id}/plot?{query}", headers=headers)
+
+
+@pytest.fixture
+def plot_jobs(client: FlaskClient, monkeypatch: pytest.MonkeyPatch) -> list[Submission]:
+    """Every submission the app queues from now on (plot jobs, here), in order."""
+    queue = client.application.extensions["lacuna"].queue
+    queued: list[Submission] = []
+    submit = queue.submit
+
+    def counted(submission: Submission, *args: Any, **kwargs: Any) -> Any:
+        queued.append(submission)
+        return submit(submission, *args, **kwargs)
+
+    monkeypatch.setattr(queue, "submit", counted)
+    return queued
+
+
+def group_ids(svg: bytes, prefix: str) -> list[str]:
+    return [i for i in svg_ids(svg) if i.startswith(prefix)]
+
+
+def svg_texts(svg: bytes) -> list[str]:
+    root = ElementTree.fromstring(svg)
+    return ["".join(e.itertext()) for e in root.iter("{http://www.w3.org/2000/svg}text")]
 
 
 def test_diagram_svg_has_one_marker_group_per_point(
@@ -121,6 +151,13 @@ def test_plot_jobs_are_deleted_once_drawn(
         ("direction=0", "/direction"),
         ("colour=red", "/colour"),
         ("kind=image&dim=0", "/kind"),
+        ("top=0", "/top"),
+        ("top=many", "/top"),
+        ("min_persistence=-1", "/min_persistence"),
+        ("min_persistence=nan", "/min_persistence"),
+        ("kind=image&top=3", "/top"),
+        ("kind=image&min_persistence=0.1", "/min_persistence"),
+        ("kind=matrix", "/kind"),
     ],
 )
 def test_bad_query_is_422_naming_the_parameter(
@@ -169,7 +206,7 @@ def test_past_the_waiter_cap_a_plot_is_503_and_queues_nothing(
     before = sum(1 for _ in redis.scan_iter("rq:job:*"))
     assert waiters.acquire(blocking=False)  # another request is waiting
     try:
-        answer = plot(app.test_client(), circle_job[0], "kind=diagram")
+        answer = plot(app.test_client(), circle_job[0], "kind=diagram&width=401")
     finally:
         waiters.release()
     problem = problem_of(answer, 503)
@@ -191,7 +228,156 @@ def test_a_plot_does_not_count_against_the_unfinished_jobs_quota(
         redis_url=settings.redis_url, queue=settings.queue, max_unfinished_jobs=limit
     )
     try:
-        answer = plot(drawing.test_client(), circle_job[0], "kind=diagram")
+        answer = plot(drawing.test_client(), circle_job[0], "kind=diagram&width=402")
         assert answer.status_code == 200, answer.get_data(as_text=True)
     finally:
         call(idle.test_client(), "DELETE", queued.headers["Location"])
+
+
+# --- choosing pairs ----------------------------------------------------------------------------
+
+
+def persistence(pairs: list[list[float | None]]) -> np.ndarray:
+    return np.array([np.inf if d is None else d - b for b, d in pairs])
+
+
+def test_top_draws_the_most_persistent_pairs_of_each_dimension(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]], plot_jobs: list[Submission]
+) -> None:
+    job_id, result = circle_job
+    svg = plot(client, job_id, "kind=diagram&top=3").data
+    total = 0
+    for diagram in result["diagrams"]:
+        dim, lasting = diagram["dim"], persistence(diagram["pairs"])
+        total += len(lasting)
+        # The three largest persistences (never-dying first), by row in the result.
+        expected = sorted(np.argsort(-lasting, kind="stable")[:3].tolist())
+        assert sorted(group_ids(svg, f"point-{dim}-")) == sorted(
+            f"point-{dim}-{k}" for k in expected
+        )
+    shown = sum(min(3, len(d["pairs"])) for d in result["diagrams"])
+    assert f"showing {shown} of {total} pairs (top 3 per dimension)" in svg_texts(svg)
+    # Chosen before queueing: the plot job's input holds only the pairs drawn.
+    assert [len(submission.array) for submission in plot_jobs] == [shown]
+
+
+def test_min_persistence_keeps_the_persistent_and_the_never_dying(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    job_id, result = circle_job
+    svg = plot(client, job_id, "kind=barcode&min_persistence=0.2").data
+    kept = 0
+    for diagram in result["diagrams"]:
+        lasting = persistence(diagram["pairs"])
+        expected = np.flatnonzero(lasting >= 0.2)
+        kept += len(expected)
+        dim = diagram["dim"]
+        assert sorted(group_ids(svg, f"bar-{dim}-")) == sorted(f"bar-{dim}-{k}" for k in expected)
+    assert np.isinf(persistence(result["diagrams"][0]["pairs"])).any()  # H0 keeps its class
+    total = sum(len(d["pairs"]) for d in result["diagrams"])
+    assert f"showing {kept} of {total} pairs (persistence ≥ 0.2 um)" in svg_texts(svg)
+
+
+# --- the distance matrix -----------------------------------------------------------------------
+
+
+def test_a_distance_job_draws_its_matrix_labelled_by_job(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    job_id, _ = circle_job
+    other = result_of(client, rips_job(noisy_circle(30, seed=7).tolist(), units="um", max_dim=1))
+    body = {"metric": "wasserstein", "order": 2, "dim": 1, "job_ids": [job_id, other["job_id"]]}
+    answer = post(client, "/v1/distances", body)
+    assert answer.status_code == 200
+    distances = answer.get_json()
+    svg = plot(client, distances["job_id"], "kind=matrix")
+    assert svg.status_code == 200 and svg.mimetype == "image/svg+xml"
+    words = svg_texts(svg.data)
+    assert "wasserstein distance, order 2, H1 (um)" in words  # the colour bar
+    assert words.count(f"0 · {job_id[:8]}") == 2  # the row and the column
+    assert words.count(f"1 · {other['job_id'][:8]}") == 2
+    for query, pointer in (("kind=diagram", "/kind"), ("kind=matrix&dim=1", "/dim")):
+        problem = problem_of(plot(client, distances["job_id"], query), 422)
+        assert [e["pointer"] for e in problem["errors"]] == [pointer]
+    assert (
+        "kind=matrix"
+        in problem_of(plot(client, distances["job_id"], "kind=barcode"), 422)["detail"]
+    )
+
+
+def test_null_distances_are_drawn_apart_and_explained(client: FlaskClient) -> None:
+    # One class that never dies against none: matched only to each other, so infinite.
+    body = {"metric": "bottleneck", "diagrams": [[[0, None]], [[0, 1]], [[0, 2]]]}
+    distances = post(client, "/v1/distances", body).get_json()
+    assert distances["nulls"]
+    words = svg_texts(plot(client, distances["job_id"], "kind=matrix").data)
+    assert any(w.startswith("null: infinite") for w in words)
+    assert "2 of 3 distances are null" in words
+
+
+# --- the cache ---------------------------------------------------------------------------------
+
+
+def test_a_picture_is_drawn_once_then_answered_from_the_cache(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]], plot_jobs: list[Submission]
+) -> None:
+    job_id, _ = circle_job
+    query = "kind=barcode&width=500&format=png"
+    redis = client.application.extensions["lacuna"].queue.redis
+    kept_before = set(redis.keys(f"lacuna:picture:{job_id}:*"))
+    ttl_before = redis.ttl(f"rq:job:{job_id}")  # the result's, in whole seconds, counting down
+    first = plot(client, job_id, query)
+    ttl_after = redis.ttl(f"rq:job:{job_id}")
+    assert first.status_code == 200 and len(plot_jobs) == 1
+    again = plot(client, job_id, query)
+    assert again.status_code == 200 and len(plot_jobs) == 1  # no plot job the second time
+    assert again.data == first.data and again.mimetype == "image/png"
+    etag = first.headers["ETag"]
+    assert etag == again.headers["ETag"] and not etag.startswith("W/")  # strong
+    cache_control = first.headers["Cache-Control"]
+    assert cache_control.startswith("private, max-age=")
+    assert 0 < ttl_after <= int(cache_control.split("=")[1]) <= ttl_before
+    # One picture kept, among the job's keys.
+    (key,) = set(redis.keys(f"lacuna:picture:{job_id}:*")) - kept_before
+    assert 0 < redis.ttl(key) <= ttl_before
+    # The same query written differently (order, defaults) is the same picture.
+    same = plot(client, job_id, "format=png&width=500&height=480&kind=barcode")
+    assert same.headers["ETag"] == etag and len(plot_jobs) == 1
+    unchanged = plot(client, job_id, query, **{"If-None-Match": etag})
+    assert unchanged.status_code == 304 and unchanged.data == b"" and len(plot_jobs) == 1
+    assert unchanged.headers["ETag"] == etag
+    other = plot(client, job_id, "kind=barcode&width=501&format=png")
+    assert other.status_code == 200 and len(plot_jobs) == 2  # another query is drawn
+    assert other.headers["ETag"] != etag
+    changed = plot(client, job_id, query, **{"If-None-Match": '"something-else"'})
+    assert changed.status_code == 200 and changed.data == first.data
+
+
+def test_pictures_over_the_size_cap_are_drawn_every_time(
+    served: tuple[FlaskClient, Settings], circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    _, settings = served
+    app = app_with(redis_url=settings.redis_url, queue=settings.queue, picture_cache_max_bytes=0)
+    queue = app.extensions["lacuna"].queue
+    before = len(queue.redis.keys(f"lacuna:picture:{circle_job[0]}:*"))
+    for _ in range(2):
+        assert plot(app.test_client(), circle_job[0], "kind=diagram&width=403").status_code == 200
+    assert len(queue.redis.keys(f"lacuna:picture:{circle_job[0]}:*")) == before
+
+
+def test_tenants_cannot_read_each_others_pictures(served: tuple[FlaskClient, Settings]) -> None:
+    _, settings = served
+    assert settings.redis_url is not None
+    store = KeyStore(Redis.from_url(settings.redis_url))
+    a, b = ({"Authorization": f"Bearer {store.create(t).key}"} for t in ("lab-a", "lab-b"))
+    app = app_with(redis_url=settings.redis_url, queue=settings.queue, auth="keys")
+    client = app.test_client()
+    answer = post(client, JOBS, rips_job(max_dim=1), headers={**a, **WAIT})
+    job_id = answer.get_json()["job_id"]
+    drawn = plot(client, job_id, "kind=diagram", **a)
+    assert drawn.status_code == 200
+    assert plot(client, job_id, "kind=diagram", **a).data == drawn.data  # A reads it again
+    etag = drawn.headers["ETag"]
+    for headers in (b, {**b, "If-None-Match": etag}):
+        problem = problem_of(plot(client, job_id, "kind=diagram", **headers), 404)
+        assert problem["type"].endswith("job-not-found")

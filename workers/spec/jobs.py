@@ -130,10 +130,11 @@ class StoredInput(BaseModel):
     """Description of an input array kept in Redis next to the job (not on the queue).
 
     Arrays by type: ``points`` (n, d) coordinates; ``diagrams`` and ``diagram_set`` (k, 3)
-    rows of (dimension or diagram index, birth, death with inf for never); ``vectors`` (N, L);
+    rows of (dimension or diagram index, birth, death with inf for never; a plot job's (k, 4),
+    the pair's row in its result last); ``vectors`` (N, L);
     ``image`` and ``mask`` 2D or 3D arrays in the dtype they arrived in; ``graph`` (n + m,
     d + 1) rows of nodes, then edges (``workers.spec.kinds.graphs.graph_rows``); ``grid`` a 2D
-    array of values to draw (a persistence image).
+    array of values to draw (a persistence image, a distance matrix).
     """
 
     model_config = ConfigDict(extra="forbid")
@@ -187,6 +188,9 @@ class DistanceTask(BaseModel):
     directions: int | None = None
     dim: int | None = None
     count: Annotated[int, Field(ge=1)]
+    job_ids: Annotated[
+        list[str] | None, Field(description="The jobs compared, in matrix order (pictures).")
+    ] = None
 
 
 Task = Annotated[PersistenceTask | DistanceTask | PlotTask, Field(discriminator="type")]

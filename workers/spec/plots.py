@@ -4,9 +4,34 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field
 
-__all__ = ["MEDIA_TYPES", "PlotKind", "PlotQuery", "PlotResult", "PlotTask", "PictureFormat"]
+__all__ = [
+    "DRAWING_VERSION",
+    "MEDIA_TYPES",
+    "PAIR_KINDS",
+    "PlotKind",
+    "PlotQuery",
+    "PlotResult",
+    "PlotTask",
+    "PictureFormat",
+    "picture_key",
+]
 
-PlotKind = Literal["diagram", "barcode", "image"]
+PlotKind = Literal["diagram", "barcode", "image", "matrix"]
+PAIR_KINDS = ("diagram", "barcode")
+"""Kinds that draw (birth, death) pairs, which min_persistence and top choose among."""
+
+DRAWING_VERSION = "2"
+"""Version of the pictures' look: part of every picture's ETag, so that a change of the
+drawing (raise it with any change of workers.pictures.drawing's output) is never served
+from a cache as the old picture."""
+
+
+def picture_key(job_id: str, digest: str) -> str:
+    """Redis key of a drawn picture of job ``job_id`` (``digest``: of the normalised query
+    and the drawing version), beside the job's other keys."""
+    return f"lacuna:picture:{job_id}:{digest}"
+
+
 PictureFormat = Literal["svg", "png"]
 
 MEDIA_TYPES: dict[str, str] = {"svg": "image/svg+xml", "png": "image/png"}
@@ -25,9 +50,10 @@ class PlotQuery(BaseModel):
     kind: Annotated[
         PlotKind,
         Field(
-            description="diagram: persistence diagram (birth against death, the diagonal, a "
-            "line for classes that never die); barcode: one bar per class; image: a "
-            "persistence image the job computed as a feature."
+            description="diagram: persistence diagram (death against birth, classes that "
+            "never die in a strip above); barcode: one bar per class; image: a persistence "
+            "image the job computed as a feature; matrix: the heatmap of a distance matrix "
+            "(a job of POST /v1/distances)."
         ),
     ] = "diagram"
     dim: Annotated[
@@ -43,14 +69,36 @@ class PlotQuery(BaseModel):
         int | None,
         Field(ge=0, description="Which direction's diagrams, for a job with several."),
     ] = None
+    min_persistence: Annotated[
+        float | None,
+        Field(
+            ge=0,
+            allow_inf_nan=False,
+            description="Draw only pairs with death - birth at least this (in the result's "
+            "units); classes that never die always count as persistent enough. kind=diagram "
+            "and barcode only.",
+        ),
+    ] = None
+    top: Annotated[
+        int | None,
+        Field(
+            ge=1,
+            le=1_000_000,
+            description="Draw only the this many most persistent pairs of each dimension "
+            "(classes that never die first; ties: the earlier pair). kind=diagram and barcode "
+            "only.",
+        ),
+    ] = None
     format: PictureFormat = "svg"
     width: Annotated[PixelSize, Field(description="Picture width in pixels.")] = 640
     height: Annotated[PixelSize, Field(description="Picture height in pixels.")] = 480
 
 
 class PlotTask(BaseModel):
-    """What a plot job draws; its stored array holds the diagram rows (dim, birth, death), or
-    the persistence image's (birth, persistence) grid for kind=image."""
+    """What a plot job draws. Its stored array: for diagrams and barcodes (k, 4) rows of
+    (dim, birth, death, row of the pair in the result's diagram), the pairs chosen; the
+    persistence image's (birth, persistence) grid for kind=image; the N x N distance matrix
+    (inf or NaN where the result has null) for kind=matrix."""
 
     model_config = ConfigDict(extra="forbid")
 
@@ -64,6 +112,15 @@ class PlotTask(BaseModel):
     dims: Annotated[list[int], Field(description="Dimensions drawn (legend entries).")] = []
     birth_range: tuple[float, float] | None = None
     persistence_range: tuple[float, float] | None = None
+    caption: Annotated[
+        str | None, Field(description="What the picture leaves out (a filter's choice).")
+    ] = None
+    labels: Annotated[list[str] | None, Field(description="Row and column labels of a matrix.")] = (
+        None
+    )
+    null_meaning: Annotated[
+        str | None, Field(description="What a null entry of a matrix means.")
+    ] = None
 
 
 class PlotResult(BaseModel):
