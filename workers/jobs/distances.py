@@ -14,8 +14,18 @@ from workers.jobs.results import provenance
 from workers.spec import SCHEMA_VERSION, DistanceResult, DistanceTask, JobPayload
 from workers.spec.arrays import diagrams_of_rows
 from workers.spec.costs import largest_pair_peak
+from workers.spec.results import Engine
 
-__all__ = ["affordable_processes", "compute", "runs_inline"]
+__all__ = ["DISTANCE_ENGINES", "affordable_processes", "compute", "runs_inline"]
+
+DISTANCE_ENGINES: dict[str, Engine] = {
+    "bottleneck": "bottleneck-lacuna",
+    "wasserstein": "wasserstein-lacuna",
+    "sliced_wasserstein": "sliced-wasserstein-lacuna",
+    "euclidean": "vector-lacuna",
+    "cosine": "vector-lacuna",
+}
+"""The engine of each metric, as provenance names it."""
 
 
 def compute(
@@ -42,6 +52,7 @@ def compute(
             "order": task.order,
             "directions": task.directions,
             "dim": task.dim,
+            "never_dying": task.never_dying,
             "ground_metric": "l_infinity" if diagram_metric else None,
             "count": task.count,
             "matrix": [
@@ -49,7 +60,7 @@ def compute(
                 for row, oks in zip(matrix.tolist(), finite.tolist(), strict=True)
             ],
             "nulls": nulls,
-            "provenance": provenance(payload, started),
+            "provenance": provenance(payload, started, DISTANCE_ENGINES[task.metric]),
         }
     )
     return result.model_dump(mode="json")

@@ -50,7 +50,7 @@ from workers.spec.networks import (
     ShellDescriptors,
 )
 from workers.spec.problems import FieldError
-from workers.spec.results import ValueConvention
+from workers.spec.results import SKELETON_PACKAGES, ValueConvention
 
 __all__ = ["Network", "descriptors_of", "graph_diagram_sets", "graph_output", "network_of"]
 
@@ -229,13 +229,16 @@ def compute(payload: JobPayload, task: PersistenceTask, array: np.ndarray) -> Co
     descriptors, shells = (
         descriptors_of(network, task.descriptors) if "descriptors" in task.output else (None, None)
     )
-    lengths_unit = payload.input.units
+    coordinate_units = payload.input.units
     if task.skeletonize and task.spacing is None:
-        lengths_unit = "pixel"
+        coordinate_units = "pixel"
     return Computed(
         sets=sets,
         convention=convention,
-        units=None if convention == "node_value" else lengths_unit,
+        coordinate_units=coordinate_units,
+        engine="graph-lacuna-c" if task.filtration is not None else None,
+        spacing=task.spacing,
+        packages=SKELETON_PACKAGES if task.skeletonize else (),
         limit_pointer="/filtration",
         advice="lower max_dim",
         diagrams_kept="diagrams" in task.output,
