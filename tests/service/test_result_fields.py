@@ -181,7 +181,9 @@ def test_graph_without_a_filtration_has_no_value_unit(client: FlaskClient) -> No
         ("sliced_wasserstein", "sliced-wasserstein-lacuna"),
     ],
 )
-def test_distance_provenance_names_its_engine(client: FlaskClient, metric: str, engine: str) -> None:
+def test_distance_provenance_names_its_engine(
+    client: FlaskClient, metric: str, engine: str
+) -> None:
     body = {"metric": metric, "diagrams": [[[0, 1]], [[0, 2]]]}
     response = post(client, "/v1/distances", body)
     assert response.status_code == 200, response.get_data(as_text=True)
