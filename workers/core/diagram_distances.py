@@ -75,9 +75,7 @@ def diagram_distance(a: np.ndarray, b: np.ndarray, metric: DiagramMetric) -> flo
         finite_b, essential_b = split_essential(checked_diagram(b))
     else:
         if metric.never_dying == "cap" and (metric.cap is None or not np.isfinite(metric.cap)):
-            raise ParameterError(
-                'never_dying mode "cap" needs a finite cap', field="/never_dying/cap"
-            )
+            raise ParameterError('never_dying mode "cap" needs a finite cap', field="/metric")
         infinite: InfiniteDeaths = "drop" if metric.never_dying == "drop" else "cap"
         finite_a = finite_part(a, infinite, metric.cap)
         finite_b = finite_part(b, infinite, metric.cap)

@@ -48,7 +48,11 @@ ENGINES: dict[Engine, str] = {
 }
 """Every engine and what it is, as /v1/capabilities lists them."""
 
-ALL_PACKAGES = (*BASE_PACKAGES, "gudhi", *SKELETON_PACKAGES)
+ALL_PACKAGES = tuple(
+    dict.fromkeys(
+        (*BASE_PACKAGES, *(p for ps in ENGINE_PACKAGES.values() for p in ps), *SKELETON_PACKAGES)
+    )
+)
 """Every distribution a provenance may name."""
 
 
