@@ -16,10 +16,11 @@ from workers.spec import (
     Input,
     Limits,
 )
+from workers.spec.capabilities import FILTRATIONS, FiltrationCapability
 from workers.spec.distances import DIAGRAM_METRICS, VECTOR_METRICS
 from workers.spec.features import FEATURE_SPEC_VERSION
 from workers.spec.inputs import MAX_COORDINATES
-from workers.spec.results import package_versions
+from workers.spec.results import ALL_PACKAGES, ENGINES, package_versions
 from workers.spec.tags import members_by_tag
 
 __all__ = ["ServiceState", "limits_of", "capabilities_of"]
@@ -55,16 +56,26 @@ def capabilities_of(limits: Limits) -> Capabilities:
     return Capabilities(
         schema_version=SCHEMA_VERSION,
         input_types=list(members_by_tag(Input)),
-        filtrations=list(members_by_tag(Filtration)),
+        filtrations=_filtrations(),
         features=list(members_by_tag(FeatureSpec)),
         feature_spec_version=FEATURE_SPEC_VERSION,
         metrics=[*DIAGRAM_METRICS, *VECTOR_METRICS],
-        value_convention="edge_length",  # of Rips; results name their own
+        engines=dict(ENGINES),
         binary_media_type=NPY_MEDIA_TYPE,
         upload_formats=list(UPLOAD_FORMATS),
         limits=limits,
-        versions=package_versions(),
+        versions=package_versions(ALL_PACKAGES),
     )
+
+
+def _filtrations() -> list[FiltrationCapability]:
+    """The capability entry of every filtration type, in the order of the union; a type
+    without an entry is a bug, found when the app starts."""
+    entries = {entry.type: entry for entry in FILTRATIONS}
+    types = list(members_by_tag(Filtration))
+    if set(types) != set(entries):
+        raise RuntimeError(f"filtration entries {sorted(entries)} do not match {types}")
+    return [entries[name] for name in types]
 
 
 @dataclass(frozen=True)

@@ -54,8 +54,9 @@ Images and masks: pixels (voxels) are the top-dimensional cells of a cubical com
 foreground pixels touching at a corner are connected (8-connectivity in 2D, 26 in 3D) and
 holes connect through shared sides (4 / 6); coordinates and spacing are in array-axis order
 and pixel (0, 0) is centred at the origin; each result's value_convention says what its
-numbers are. Errors are RFC 9457 problem details; 422 answers list every offending field as a
-JSON Pointer.
+numbers are, `units` the unit of those numbers (null for pixel and node values) and
+`coordinate_units` the unit of the coordinates. Errors are RFC 9457 problem details; 422
+answers list every offending field as a JSON Pointer.
 
 Binary arrays out (feature vectors, distance matrices) are NumPy .npy bytes, media type
 application/x-npy, little-endian float64 in C order; ask for them with that Accept header.

@@ -15,7 +15,7 @@ import numpy as np
 from service.errors import RequestInvalid
 from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, PersistenceTask
 from workers.spec.arrays import diagram_rows, result_array
-from workers.spec.distances import DEFAULT_DIRECTIONS, DIAGRAM_METRICS
+from workers.spec.distances import DEFAULT_DIRECTIONS, DIAGRAM_METRICS, NeverDying
 from workers.spec.features import PersistenceImageSpec
 from workers.spec.jobs import JobPayload, StoredInput, StoredType
 from workers.spec.kinds import InputData, kind_of
@@ -189,6 +189,7 @@ def distance_submission(
         if request.metric == "sliced_wasserstein"
         else None,
         dim=_dimension_of(request) if diagram_metric else None,
+        never_dying=(request.never_dying or NeverDying()) if diagram_metric else None,
         count=count,
         job_ids=request.job_ids,
     )

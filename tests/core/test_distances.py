@@ -18,8 +18,8 @@ from scipy.stats import wasserstein_distance as scipy_wasserstein
 from tests.support.synthetic import noisy_circle, uniform
 from workers.core.bottleneck import bottleneck_distance
 from workers.core.diagram_distances import DiagramMetric, diagram_distance, vector_distance_matrix
-from workers.core.diagrams import checked_diagram
-from workers.core.errors import InvalidArrayError
+from workers.core.diagrams import checked_diagram, finite_part
+from workers.core.errors import InvalidArrayError, ParameterError
 from workers.core.landscape import landscape
 from workers.core.matching import BLOCK_CELLS
 from workers.core.rips import rips_diagrams
@@ -292,6 +292,86 @@ def test_different_essential_counts_are_infinitely_far(metric: DiagramMetric) ->
     assert diagram_distance(b, a, metric) == math.inf
     with pytest.warns(UserWarning, match="essential"):
         assert pot_wasserstein(a, b, 1.0, keep_essential_parts=True) == math.inf
+
+
+def transformed(pairs: np.ndarray, mode: str, cap: float | None) -> np.ndarray:
+    """Reference transform, written out from its definition: drop the classes that never
+    die, or end each at max(birth, cap)."""
+    pairs = np.asarray(pairs, dtype=np.float64).reshape(-1, 2)
+    essential = np.isinf(pairs[:, 1])
+    if mode == "drop":
+        return pairs[~essential]
+    assert cap is not None
+    deaths = np.where(essential, np.maximum(pairs[:, 0], cap), pairs[:, 1])
+    return np.column_stack([pairs[:, 0], deaths])
+
+
+NEVER_DYING = [("drop", None), ("cap", 0.7), ("cap", 3.0), ("cap", -1.0)]
+"""(mode, cap): a cap inside the diagrams, beyond them, and before every birth."""
+
+
+@pytest.mark.parametrize(("mode", "cap"), NEVER_DYING)
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_dropped_or_capped_never_dying_classes_match_references(
+    mode: str, cap: float | None, seed: int
+) -> None:
+    # Different numbers of classes that never die: infinitely far when kept apart, finite
+    # once dropped or capped, and then the distance of the transformed diagrams.
+    rng = np.random.default_rng(10 + seed)
+    a = with_essential(rng, 15, list(rng.uniform(0, 1, seed + 1)))
+    b = with_essential(rng, 9, list(rng.uniform(0, 2, seed + 2)))
+    a_ref, b_ref = transformed(a, mode, cap), transformed(b, mode, cap)
+    kept_apart = diagram_distance(a, b, DiagramMetric("bottleneck"))
+    assert kept_apart == math.inf
+    # Reference library gudhi's Hera (exact: delta 0) on the transformed diagrams; also
+    # gudhi.bottleneck_distance, which can answer the next candidate up on ties (see
+    # tests/service/test_distances_api.py), so only as an upper bound.
+    ours = diagram_distance(a, b, DiagramMetric("bottleneck", never_dying=mode, cap=cap))
+    assert ours == pytest.approx(gudhi.hera.bottleneck_distance(a_ref, b_ref, 0), abs=1e-12)
+    assert ours <= gudhi.bottleneck_distance(a_ref, b_ref, 0) + 1e-12
+    # Reference library gudhi.wasserstein (POT's exact network simplex).
+    for order in (1.0, 2.0, 3.0):
+        metric = DiagramMetric("wasserstein", order=order, never_dying=mode, cap=cap)
+        ours = diagram_distance(a, b, metric)
+        assert ours == pytest.approx(pot_wasserstein(a_ref, b_ref, order), rel=1e-12, abs=1e-12)
+    # Reference library gudhi (representations.metrics._sliced_wasserstein_distance), on its
+    # own angles as in test_sliced_wasserstein_matches_gudhi.
+    directions = 12
+    angles = np.linspace(-np.pi / 2, np.pi / 2, num=directions, endpoint=False)[:-1]
+    reference = _sliced_wasserstein_distance(a_ref, b_ref, directions)
+    assert sliced_wasserstein_on_angles(
+        finite_part(a, mode, cap), finite_part(b, mode, cap), angles
+    ) == pytest.approx(reference, rel=1e-12, abs=1e-12)
+    metric = DiagramMetric("sliced_wasserstein", directions=directions, never_dying=mode, cap=cap)
+    ours = diagram_distance(a, b, metric)
+    expected = sliced_wasserstein_distance(a_ref, b_ref, directions=directions)
+    assert ours == pytest.approx(expected, rel=1e-12, abs=1e-12)
+
+
+def test_capped_never_dying_class_by_hand() -> None:
+    # Hand computation: [0, inf] capped at 5 is [0, 5], half persistence 2.5 to the diagonal;
+    # against the empty diagram it goes there at 2.5 in every metric of order 1. Dropped, it
+    # leaves two empty diagrams, at distance 0.
+    a = np.array([[0.0, np.inf]])
+    for name in ("bottleneck", "wasserstein"):
+        capped = DiagramMetric(name, never_dying="cap", cap=5.0)  # type: ignore[arg-type]
+        assert diagram_distance(a, EMPTY, capped) == pytest.approx(2.5)
+        dropped = DiagramMetric(name, never_dying="drop")  # type: ignore[arg-type]
+        assert diagram_distance(a, EMPTY, dropped) == 0.0
+    squared = DiagramMetric("wasserstein", order=2.0, never_dying="cap", cap=5.0)
+    assert diagram_distance(a, np.array([[1.0, np.inf]]), squared) == pytest.approx(1.0)
+    # A class born after the cap has zero persistence once capped, like any empty bar.
+    late = DiagramMetric("bottleneck", never_dying="cap", cap=5.0)
+    assert diagram_distance(np.array([[6.0, np.inf]]), EMPTY, late) == 0.0
+    assert diagram_distance(a, EMPTY, DiagramMetric("bottleneck")) == math.inf
+
+
+@pytest.mark.parametrize("cap", [None, math.inf, math.nan])
+def test_cap_mode_needs_a_finite_cap(cap: float | None) -> None:
+    metric = DiagramMetric("bottleneck", never_dying="cap", cap=cap)
+    with pytest.raises(ParameterError) as raised:
+        diagram_distance(np.array([[0.0, np.inf]]), EMPTY, metric)
+    assert raised.value.field == "/metric"  # the argument; requests are checked before this
 
 
 # --- sliced Wasserstein --------------------------------------------------------------------

@@ -204,6 +204,36 @@ INVALID = [
         id="diagram-not-a-list",
     ),
     pytest.param(
+        {"metric": "bottleneck", "never_dying": {"mode": "cap"}, "diagrams": [A, B]},
+        ["/never_dying/cap"],
+        'mode "cap" needs a cap value',
+        id="cap-mode-without-cap",
+    ),
+    pytest.param(
+        {"metric": "bottleneck", "never_dying": {"mode": "drop", "cap": 2}, "diagrams": [A, B]},
+        ["/never_dying/cap"],
+        'only used with mode "cap"',
+        id="cap-without-cap-mode",
+    ),
+    pytest.param(
+        {"metric": "wasserstein", "never_dying": {"mode": "cap", "cap": "5"}, "diagrams": [A]},
+        ["/never_dying/cap"],
+        "valid number",
+        id="cap-not-a-number",
+    ),
+    pytest.param(
+        {"metric": "wasserstein", "never_dying": {"mode": "forever"}, "diagrams": [A]},
+        ["/never_dying/mode"],
+        "'separate', 'drop' or 'cap'",
+        id="unknown-never-dying-mode",
+    ),
+    pytest.param(
+        {"metric": "euclidean", "never_dying": {"mode": "drop"}, "vectors": [[1.0], [2.0]]},
+        ["/never_dying"],
+        "only used by diagram metrics",
+        id="never-dying-with-a-vector-metric",
+    ),
+    pytest.param(
         {"metric": "manhattan", "vectors": [[1.0], [2.0]]},
         ["/metric"],
         "euclidean",
@@ -588,6 +618,63 @@ def test_large_request_answers_202_and_reports_progress(few_inline: FlaskClient)
     assert response.status_code == 202
     job_id = response.get_json()["job_id"]
     assert status_once(few_inline, job_id, {"succeeded", "failed"})["status"] == "succeeded"
+
+
+def test_never_dying_drop_and_cap_give_finite_distances(
+    client: FlaskClient, worker: subprocess.Popen[bytes]
+) -> None:
+    rng = np.random.default_rng(14)
+    diagrams = [
+        random_diagram(rng, finite=3, essential=1),
+        random_diagram(rng, finite=4, essential=0),
+        random_diagram(rng, finite=2, essential=2),
+    ]
+    arrays = [pairs_array(d) for d in diagrams]
+    kept_apart = answered(post(client, DISTANCES, {"metric": "bottleneck", "diagrams": diagrams}))
+    assert kept_apart["never_dying"] == {"mode": "separate", "cap": None}  # the default, echoed
+    assert len(kept_apart["nulls"]) == 3 and "never_dying" in kept_apart["nulls"][0]["reason"]
+    cap = 1.5
+    cases = [
+        ("bottleneck", {}, bottleneck_reference),
+        ("wasserstein", {"order": 2}, REFERENCES["wasserstein-2"]),
+    ]
+    for never_dying in ({"mode": "drop", "cap": None}, {"mode": "cap", "cap": cap}):
+        # The same transform written out: dropped, or death max(birth, cap).
+        def transformed(pairs: np.ndarray, mode: str = str(never_dying["mode"])) -> np.ndarray:
+            essential = np.isinf(pairs[:, 1])
+            if mode == "drop":
+                return pairs[~essential]
+            deaths = np.where(essential, np.maximum(pairs[:, 0], cap), pairs[:, 1])
+            return np.column_stack([pairs[:, 0], deaths])
+
+        for metric, parameters, reference in cases:
+            body = {"metric": metric, "never_dying": never_dying, "diagrams": diagrams}
+            answer = answered(post(client, DISTANCES, {**body, **parameters}))
+            assert answer["never_dying"] == never_dying
+            assert answer["nulls"] == []
+            assert_distance_matrix(answer, 3)
+            matrix = matrix_of(answer)
+            for i in range(3):
+                for j in range(i + 1, 3):
+                    # Reference libraries gudhi's Hera and gudhi.wasserstein (POT) on the
+                    # transformed diagrams.
+                    expected = reference(transformed(arrays[i]), transformed(arrays[j]))
+                    assert matrix[i, j] == pytest.approx(expected, abs=1e-9), (metric, i, j)
+
+
+def test_capped_class_against_nothing_by_hand(
+    client: FlaskClient, worker: subprocess.Popen[bytes]
+) -> None:
+    # Hand computation: [0, inf] capped at 5 is [0, 5], which goes to the diagonal at half
+    # its persistence, 2.5, in the bottleneck and the order-1 Wasserstein distance.
+    never_dying = {"mode": "cap", "cap": 5}
+    for metric in ("bottleneck", "wasserstein"):
+        body = {"metric": metric, "never_dying": never_dying, "diagrams": [[[0, None]], []]}
+        answer = answered(post(client, DISTANCES, body))
+        assert answer["matrix"] == [[0.0, 2.5], [2.5, 0.0]], metric
+        assert answer["nulls"] == []
+    vectors = answered(post(client, DISTANCES, {"metric": "euclidean", "vectors": [[1.0], [2.0]]}))
+    assert vectors["never_dying"] is None
 
 
 # --- capabilities ----------------------------------------------------------------------------

@@ -545,6 +545,29 @@ def test_mask_geometry_follows_the_pixel_convention_and_the_radii() -> None:
     assert far > 2 * near
 
 
+def test_demo_direction_is_node_order_on_the_graph_and_array_axis_order_on_its_mask() -> None:
+    # What the README's networks section says: the demo graph's nodes are (x, y), so the
+    # growth direction is [0, 1]; its mask has rows along y, so on the mask's skeleton
+    # (array-axis order, (row, column)) the same direction is [1, 0]. Geometry: both reach
+    # the same depth from the source edge, within a vessel radius and a pixel.
+    network = capillary_network(branch_probability=0.05, fusion_probability=0.3, seed=1)
+    request = capillary_request(network)
+    assert request["filtration"] == {"type": "height", "direction": [0, 1]}
+    nodes = np.asarray(request["input"]["nodes"])  # type: ignore[index]
+    spacing = 2.0
+    skeleton = skeleton_graph(network_mask(network, spacing=spacing), [spacing, spacing])
+    graph_depth, mask_depth = nodes @ [0.0, 1.0], skeleton.coordinates @ [1.0, 0.0]
+    slack = SPROUT_RADIUS + math.hypot(spacing, spacing)
+    assert abs(mask_depth.max() - graph_depth.max()) <= slack
+    assert abs(mask_depth.min() - graph_depth.min()) <= slack
+    # Every skeleton node, read (row, column) = (y, x), lies on a vessel of the graph: within
+    # half a step of a node plus a radius and a pixel; read the other way round, most do not.
+    reach = 10.0 / 2 + slack
+    tree = cKDTree(nodes)
+    assert tree.query(skeleton.coordinates[:, ::-1])[0].max() <= reach
+    assert np.mean(tree.query(skeleton.coordinates)[0] <= reach) < 0.5
+
+
 @pytest.mark.parametrize(("branch", "fusion"), [(0.02, 0.05), (0.08, 0.6)])
 def test_every_network_component_is_drawn_in_one_piece(branch: float, fusion: float) -> None:
     # Reference libraries networkx (components of the source) and scipy.ndimage.label

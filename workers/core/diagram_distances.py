@@ -10,6 +10,12 @@ distance inf. The essential part adds to each metric as its own formula would:
 - wasserstein: (W_p(finite parts)^p + sum of gap^p)^(1/p);
 - sliced_wasserstein: SW(finite parts) + sum of gaps (the 1-Wasserstein distance of the
   births on the line).
+
+Or, as ``DiagramMetric.never_dying`` asks, essential classes are dropped from both diagrams
+before matching, or capped: a death inf becomes max(birth, cap), the ``"infinite": "cap"``
+of the feature specs (``workers.core.diagrams.finite_part``), and the capped classes are
+matched like any finite point, to points or to the diagonal. Either way every distance is
+finite.
 """
 
 from collections.abc import Sequence
@@ -20,13 +26,14 @@ import numpy as np
 from scipy.spatial.distance import pdist, squareform
 
 from workers.core.bottleneck import bottleneck_distance
-from workers.core.diagrams import checked_diagram, split_essential
+from workers.core.diagrams import InfiniteDeaths, checked_diagram, finite_part, split_essential
 from workers.core.errors import ParameterError
 from workers.core.sliced_wasserstein import sliced_wasserstein_distance
 from workers.core.wasserstein import wasserstein_distance
 
 __all__ = [
     "DiagramMetric",
+    "NeverDyingMode",
     "VectorMetric",
     "diagram_distance",
     "distances_for_pairs",
@@ -36,18 +43,24 @@ __all__ = [
 
 VectorMetric = Literal["euclidean", "cosine"]
 
+NeverDyingMode = Literal["separate", "drop", "cap"]
+"""How a diagram distance treats classes with death inf (see the module docstring)."""
+
 
 @dataclass(frozen=True)
 class DiagramMetric:
     """A distance between diagrams: ``name`` and the parameters it takes.
 
     order: the p of wasserstein (>= 1); directions: the number of angles of
-    sliced_wasserstein.
+    sliced_wasserstein; never_dying: classes with death inf matched only to each other
+    (``separate``), left out (``drop``) or ended at ``max(birth, cap)`` (``cap``).
     """
 
     name: Literal["bottleneck", "wasserstein", "sliced_wasserstein"]
     order: float = 1.0
     directions: int = 50
+    never_dying: NeverDyingMode = "separate"
+    cap: float | None = None
 
 
 def essential_counts(diagrams: Sequence[np.ndarray]) -> np.ndarray:
@@ -57,8 +70,16 @@ def essential_counts(diagrams: Sequence[np.ndarray]) -> np.ndarray:
 
 def diagram_distance(a: np.ndarray, b: np.ndarray, metric: DiagramMetric) -> float:
     """Distance between diagrams a (n, 2) and b (m, 2); deaths may be inf."""
-    finite_a, essential_a = split_essential(checked_diagram(a))
-    finite_b, essential_b = split_essential(checked_diagram(b))
+    if metric.never_dying == "separate":
+        finite_a, essential_a = split_essential(checked_diagram(a))
+        finite_b, essential_b = split_essential(checked_diagram(b))
+    else:
+        if metric.never_dying == "cap" and (metric.cap is None or not np.isfinite(metric.cap)):
+            raise ParameterError('never_dying mode "cap" needs a finite cap', field="/metric")
+        infinite: InfiniteDeaths = "drop" if metric.never_dying == "drop" else "cap"
+        finite_a = finite_part(a, infinite, metric.cap)
+        finite_b = finite_part(b, infinite, metric.cap)
+        essential_a = essential_b = np.empty(0)
     if len(essential_a) != len(essential_b):
         return float("inf")
     gaps = np.abs(np.sort(essential_a) - np.sort(essential_b))

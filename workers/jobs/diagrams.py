@@ -24,7 +24,9 @@ def compute(
     return Computed(
         sets=[DiagramSet(diagrams)],
         convention=None,
-        units=payload.input.units,
+        coordinate_units=None,
+        engine=None,
+        given_units=payload.input.units,
         limit_pointer="/input/diagrams",
         advice="send fewer pairs",
     )

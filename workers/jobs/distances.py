@@ -15,11 +15,21 @@ from workers.jobs.results import provenance
 from workers.spec import SCHEMA_VERSION, DistanceResult, DistanceTask, JobPayload
 from workers.spec.arrays import diagrams_of_rows
 from workers.spec.costs import largest_pair_peak
+from workers.spec.results import Engine
 
-__all__ = ["DISTANCES_STAGE", "affordable_processes", "compute", "runs_inline"]
+__all__ = ["DISTANCES_STAGE", "DISTANCE_ENGINES", "affordable_processes", "compute", "runs_inline"]
 
 DISTANCES_STAGE = "distances"
 """The stage of a distance job's progress, which counts pairs."""
+
+DISTANCE_ENGINES: dict[str, Engine] = {
+    "bottleneck": "bottleneck-lacuna",
+    "wasserstein": "wasserstein-lacuna",
+    "sliced_wasserstein": "sliced-wasserstein-lacuna",
+    "euclidean": "vector-lacuna",
+    "cosine": "vector-lacuna",
+}
+"""The engine of each metric, as provenance names it."""
 
 
 def compute(
@@ -49,6 +59,7 @@ def compute(
             "order": task.order,
             "directions": task.directions,
             "dim": task.dim,
+            "never_dying": task.never_dying,
             "ground_metric": "l_infinity" if diagram_metric else None,
             "count": task.count,
             "matrix": [
@@ -56,7 +67,7 @@ def compute(
                 for row, oks in zip(matrix.tolist(), finite.tolist(), strict=True)
             ],
             "nulls": nulls,
-            "provenance": provenance(payload, started),
+            "provenance": provenance(payload, started, DISTANCE_ENGINES[task.metric]),
         }
     )
     return result.model_dump(mode="json")

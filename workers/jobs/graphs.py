@@ -51,7 +51,7 @@ from workers.spec.networks import (
     ShellDescriptors,
 )
 from workers.spec.problems import FieldError
-from workers.spec.results import ValueConvention
+from workers.spec.results import SKELETON_PACKAGES, ValueConvention
 
 __all__ = [
     "Network",
@@ -258,13 +258,16 @@ def compute(
     if described:
         steps.begin("descriptors")
         descriptors, shells = descriptors_of(network, task.descriptors)
-    lengths_unit = payload.input.units
+    coordinate_units = payload.input.units
     if task.skeletonize and task.spacing is None:
-        lengths_unit = "pixel"
+        coordinate_units = "pixel"
     return Computed(
         sets=sets,
         convention=convention,
-        units=None if convention == "node_value" else lengths_unit,
+        coordinate_units=coordinate_units,
+        engine="graph-lacuna-c" if task.filtration is not None else None,
+        spacing=task.spacing,
+        packages=SKELETON_PACKAGES if task.skeletonize else (),
         limit_pointer="/filtration",
         advice="lower max_dim",
         diagrams_kept="diagrams" in task.output,

@@ -63,6 +63,8 @@ def distance_matrix(
         name=task.metric,  # type: ignore[arg-type]  # a diagram metric: checked at submission
         order=task.order or 1.0,
         directions=task.directions or DEFAULT_DIRECTIONS,
+        never_dying=task.never_dying.mode if task.never_dying else "separate",
+        cap=task.never_dying.cap if task.never_dying else None,
     )
     rows, cols = np.triu_indices(count, k=1)
 
@@ -73,7 +75,9 @@ def distance_matrix(
     matrix = np.zeros((count, count))
     matrix[rows, cols] = values
     matrix[cols, rows] = values
-    return matrix, _diagram_nulls(matrix, essential_counts(items))
+    separate = metric.never_dying == "separate"
+    counts = essential_counts(items) if separate else np.zeros(count, dtype=np.int64)
+    return matrix, _diagram_nulls(matrix, counts)
 
 
 def _diagram_nulls(matrix: np.ndarray, essential: np.ndarray) -> list[NullEntry]:
@@ -88,7 +92,8 @@ def _diagram_reason(i: int, j: int, essential: np.ndarray) -> str:
         return (
             f"diagram {i} has {essential[i]} classes that never die and diagram {j} has "
             f"{essential[j]}; such classes are matched only to each other, so the distance is "
-            "infinite"
+            'infinite (never_dying {"mode": "drop"} or {"mode": "cap", "cap": c} gives a '
+            "finite one)"
         )
     return "the distance is beyond the range of float64"
 

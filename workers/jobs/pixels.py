@@ -86,14 +86,13 @@ def compute(
         raise TypeError("an image or mask job needs an array filtration")
     with pointing_into("/filtration"):
         sets, convention = pixel_diagram_sets(array, filtration, task.spacing, steps)
-    # Pixel values have no unit; lengths have the unit of spacing, or are in pixels.
-    units = None
-    if convention not in ("pixel_value", "negated_pixel_value"):
-        units = payload.input.units if task.spacing is not None else "pixel"
     return Computed(
         sets=sets,
         convention=convention,
-        units=units,
+        # The pixel grid is in the unit of spacing, or in pixels without it.
+        coordinate_units=payload.input.units if task.spacing is not None else "pixel",
+        engine="cubical-lacuna-c",
+        spacing=task.spacing,
         limit_pointer="/filtration",
         advice="lower max_dim, smooth the image or send a smaller region",
     )

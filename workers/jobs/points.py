@@ -40,7 +40,8 @@ def compute(
     return Computed(
         sets=[DiagramSet(dict(enumerate(diagrams)))],
         convention="edge_length",
-        units=payload.input.units,
+        coordinate_units=payload.input.units,
+        engine="rips-gudhi-float64",
         limit_pointer="/filtration",
         advice="lower max_dim or max_edge, or subsample",
         provenance=provenance,

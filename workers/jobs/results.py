@@ -9,7 +9,7 @@ are made and the diagrams turned into the contract's models, the same way for ev
 
 import functools
 import time
-from collections.abc import Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import Any, Protocol
 
@@ -19,7 +19,14 @@ from workers.core.errors import RequestError
 from workers.jobs.features import direction_feature_vectors, feature_vectors
 from workers.jobs.steps import Steps
 from workers.spec import SCHEMA_VERSION, Diagram, JobPayload, JobResult, PersistenceTask
-from workers.spec.results import DirectionDiagrams, ValueConvention, package_versions
+from workers.spec.results import (
+    LENGTH_CONVENTIONS,
+    DirectionDiagrams,
+    Engine,
+    ValueConvention,
+    engine_packages,
+    package_versions,
+)
 
 __all__ = ["Computed", "DiagramSet", "KindWorker", "persistence_result", "provenance"]
 
@@ -41,12 +48,21 @@ class Computed:
     """One set, one per direction, or none (a graph job without a filtration)."""
     convention: ValueConvention | None
     """What the diagram values are (None for given diagrams and no filtration)."""
-    units: str | None
-    """Unit of the values."""
+    coordinate_units: str | None
+    """Unit of the coordinates (points, graph nodes after spacing, the pixel grid); the
+    values carry it when the convention makes them lengths."""
+    engine: Engine | None
+    """The method that computed the diagrams (None for given diagrams and no filtration)."""
     limit_pointer: str
     """Where a result with too many pairs points (one set; several point at the directions)."""
     advice: str
     """How to make such a result smaller."""
+    spacing: Sequence[float] | None = None
+    """The spacing the job used (image, mask and graph inputs)."""
+    given_units: str | None = None
+    """Unit of given diagrams' values, as the client sent it."""
+    packages: tuple[str, ...] = ()
+    """Distributions the job ran on beyond the base ones and its engine's."""
     diagrams_kept: bool = True
     """Does the result hold the diagrams (a graph job may ask for descriptors only)?"""
     fields: Mapping[str, Any] = field(default_factory=dict)
@@ -70,13 +86,20 @@ class KindWorker(Protocol):
         ...
 
 
-def provenance(payload: JobPayload, started: float, **extra: Any) -> dict[str, Any]:
-    """The provenance fields of every result: input and request hashes, versions, time, and
-    the id of the request that queued the job."""
+def provenance(
+    payload: JobPayload,
+    started: float,
+    engine: Engine | None,
+    packages: Iterable[str] = (),
+    **extra: Any,
+) -> dict[str, Any]:
+    """The provenance fields of every result: input and request hashes, the engine and the
+    versions of what it ran on, time, and the id of the request that queued the job."""
     return {
         "input_sha256": payload.input.sha256,
         "request_sha256": payload.request_sha256,
-        "versions": package_versions(),
+        "versions": package_versions((*engine_packages(engine), *packages)),
+        "engine": engine,
         "elapsed_s": time.perf_counter() - started,
         "request_id": payload.request_id,
         **extra,
@@ -124,7 +147,9 @@ def persistence_result(
             "job_id": job_id,
             "schema_version": SCHEMA_VERSION,
             "value_convention": computed.convention,
-            "units": computed.units,
+            "units": _value_units(computed),
+            "coordinate_units": computed.coordinate_units,
+            "spacing": None if computed.spacing is None else list(computed.spacing),
             "diagrams": diagrams,
             "per_direction": per_direction,
             "vectors": vectors,
@@ -132,10 +157,20 @@ def persistence_result(
             "layout": layout,
             "layout_id": layout_id,
             **computed.fields,
-            "provenance": provenance(payload, started, **computed.provenance),
+            "provenance": provenance(
+                payload, started, computed.engine, computed.packages, **computed.provenance
+            ),
         }
     )
     return result.model_dump(mode="json")
+
+
+def _value_units(computed: Computed) -> str | None:
+    """The unit of the diagram values: the coordinates' when they are lengths, none for pixel
+    and node values, the client's for given diagrams."""
+    if computed.convention is None:
+        return computed.given_units
+    return computed.coordinate_units if computed.convention in LENGTH_CONVENTIONS else None
 
 
 def _check_pair_count(

@@ -27,7 +27,7 @@ from workers.spec.problems import FieldError, Problem
 from workers.spec.requests import JobRequest
 from workers.spec.results import Diagram, FeatureVector, JobResult, LayoutEntry, Provenance
 
-SCHEMA_VERSION = "5"
+SCHEMA_VERSION = "6"
 """Version of the request/result schema; bumped on any change a client could notice."""
 
 NPY_MEDIA_TYPE = "application/x-npy"

@@ -4,6 +4,8 @@ from typing import Literal
 
 from pydantic import BaseModel, Field
 
+from workers.spec.results import Engine, ValueConvention
+
 
 class Limits(BaseModel):
     """Configured limits; requests above them are refused with a problem naming the limit."""
@@ -65,22 +67,99 @@ class Caller(BaseModel):
     usage: TenantUsage
 
 
+class FiltrationCapability(BaseModel):
+    """One filtration type: what it runs on, what its values are and what computes it."""
+
+    type: str
+    inputs: list[str] = Field(
+        description='Input types that take it (a mask sent with "skeletonize" takes the '
+        "filtrations of a graph)."
+    )
+    value_conventions: list[ValueConvention] = Field(
+        description="The value_convention its results carry (cubical: pixel_value for "
+        "sublevel, negated_pixel_value for superlevel)."
+    )
+    values_are_lengths: bool = Field(
+        description="Are the values lengths? Then results carry the coordinates' unit in "
+        "`units`; otherwise (pixel and node values) `units` is null."
+    )
+    engines: list[Engine] = Field(description="What computes it (see `engines`).")
+
+
+FILTRATIONS: tuple[FiltrationCapability, ...] = (
+    FiltrationCapability(
+        type="rips",
+        inputs=["points"],
+        value_conventions=["edge_length"],
+        values_are_lengths=True,
+        engines=["rips-gudhi-float64"],
+    ),
+    FiltrationCapability(
+        type="cubical",
+        inputs=["image"],
+        value_conventions=["pixel_value", "negated_pixel_value"],
+        values_are_lengths=False,
+        engines=["cubical-lacuna-c"],
+    ),
+    FiltrationCapability(
+        type="distance",
+        inputs=["mask"],
+        value_conventions=["signed_distance"],
+        values_are_lengths=True,
+        engines=["cubical-lacuna-c"],
+    ),
+    FiltrationCapability(
+        type="height",
+        inputs=["mask", "graph"],
+        value_conventions=["height"],
+        values_are_lengths=True,
+        engines=["cubical-lacuna-c", "graph-lacuna-c"],
+    ),
+    FiltrationCapability(
+        type="radial",
+        inputs=["mask", "graph"],
+        value_conventions=["radial_distance"],
+        values_are_lengths=True,
+        engines=["cubical-lacuna-c", "graph-lacuna-c"],
+    ),
+    FiltrationCapability(
+        type="geodesic",
+        inputs=["graph"],
+        value_conventions=["geodesic_distance"],
+        values_are_lengths=True,
+        engines=["graph-lacuna-c"],
+    ),
+    FiltrationCapability(
+        type="attribute",
+        inputs=["graph"],
+        value_conventions=["node_value"],
+        values_are_lengths=False,
+        engines=["graph-lacuna-c"],
+    ),
+)
+"""Every filtration type, in the order of the Filtration union."""
+
+
 class Capabilities(BaseModel):
     """Answer of ``GET /v1/capabilities``."""
 
     schema_version: str
     input_types: list[str]
-    filtrations: list[str]
+    filtrations: list[FiltrationCapability]
     features: list[str]
     feature_spec_version: str
     metrics: list[str]
-    value_convention: str
+    engines: dict[str, str] = Field(
+        description="Every engine a result's provenance may name, and what it is."
+    )
     binary_media_type: str = Field(description="Media type of binary arrays (NumPy .npy).")
     upload_formats: list[str] = Field(
         description="File formats accepted as the `data` part of a multipart job request."
     )
     limits: Limits
-    versions: dict[str, str]
+    versions: dict[str, str] = Field(
+        description="Versions of every distribution a result's provenance may name."
+    )
     caller: Caller | None = Field(
         None, description="The caller's tenant, quotas and usage (filled in per request)."
     )

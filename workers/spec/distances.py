@@ -2,7 +2,15 @@
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Discriminator, Field, Tag
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Discriminator,
+    Field,
+    Tag,
+    ValidationInfo,
+    field_validator,
+)
 
 from workers.spec.capabilities import Limits
 from workers.spec.numbers import Coordinate, FiniteFloat
@@ -15,6 +23,7 @@ __all__ = [
     "DiagramItem",
     "DistanceRequest",
     "DistanceResult",
+    "NeverDying",
     "NullEntry",
     "VECTOR_METRICS",
     "distance_field_errors",
@@ -30,6 +39,54 @@ DEFAULT_DIRECTIONS = 50
 """Directions of sliced_wasserstein when the request names none (echoed in the result)."""
 
 Metric = Literal["bottleneck", "wasserstein", "sliced_wasserstein", "euclidean", "cosine"]
+
+
+_CAP_GOES_WITH_MODE: dict[str, Any] = {
+    "if": {"required": ["mode"], "properties": {"mode": {"const": "cap"}}},
+    "then": {"required": ["cap"], "properties": {"cap": {"type": "number"}}},
+    "else": {"properties": {"cap": {"type": "null"}}},
+}
+"""The OpenAPI document's statement of ``NeverDying._cap_goes_with_mode``."""
+
+
+class NeverDying(BaseModel):
+    """How a diagram metric treats classes that never die (death null).
+
+    ``separate`` (the default) matches them only to each other, sorted births against sorted
+    births, so diagrams with different numbers of them are at distance infinity (null in the
+    matrix, with a reason in ``nulls``). ``drop`` leaves them out of both diagrams before
+    matching. ``cap`` ends them at ``cap``: a class born at b dies at max(b, cap), so one
+    born at or after the cap has zero persistence and is left out; they are then matched
+    like every other point, to points or to the diagonal, and every distance is finite.
+    """
+
+    model_config = ConfigDict(extra="forbid", json_schema_extra=_CAP_GOES_WITH_MODE)
+
+    mode: Annotated[
+        Literal["separate", "drop", "cap"],
+        Field(
+            description='"separate": matched only to each other; "drop": left out; "cap": '
+            "ended at `cap`."
+        ),
+    ] = "separate"
+    cap: Annotated[
+        Coordinate | None,
+        Field(
+            validate_default=True,
+            description='Death given to classes that never die; required with "cap", in the '
+            "units of the diagram values.",
+        ),
+    ] = None
+
+    @field_validator("cap")
+    @classmethod
+    def _cap_goes_with_mode(cls, cap: float | None, info: ValidationInfo) -> float | None:
+        mode = info.data.get("mode")
+        if mode == "cap" and cap is None:
+            raise ValueError('mode "cap" needs a cap value')
+        if mode in ("separate", "drop") and cap is not None:
+            raise ValueError('cap is only used with mode "cap"')
+        return cap
 
 
 def _diagram_kind(value: Any) -> str | None:
@@ -72,6 +129,7 @@ _DISTANCE_RULES: dict[str, Any] = {
         {"if": _given("order", "number"), "then": _metric_in(("wasserstein",))},
         {"if": _given("directions", "integer"), "then": _metric_in(("sliced_wasserstein",))},
         {"if": _given("dim", "integer"), "then": _metric_in(DIAGRAM_METRICS)},
+        {"if": _given("never_dying", "object"), "then": _metric_in(DIAGRAM_METRICS)},
         {
             "if": {"allOf": [_given("job_ids", "array"), _metric_in(DIAGRAM_METRICS)]},
             "then": _given("dim", "integer"),
@@ -81,14 +139,16 @@ _DISTANCE_RULES: dict[str, Any] = {
 """The rules between fields that the OpenAPI document states (``distance_field_errors``
 checks the same): exactly one of diagrams, vectors or job_ids; diagrams take diagram
 metrics and vectors vector metrics; order only with wasserstein, directions only with
-sliced_wasserstein, dim only with diagram metrics and required with job_ids."""
+sliced_wasserstein, dim and never_dying only with diagram metrics, dim required with
+job_ids."""
 
 
 class DistanceRequest(BaseModel):
     """Body of ``POST /v1/distances``: a metric and N diagrams, vectors or finished jobs.
 
     Diagram metrics (bottleneck, wasserstein, sliced_wasserstein) use the L-infinity ground
-    metric and match classes that never die only to each other. Vector metrics (euclidean,
+    metric and match classes that never die only to each other, unless ``never_dying`` says
+    to drop or cap them. Vector metrics (euclidean,
     cosine) compare feature vectors: given inline, or the concatenated vectors of jobs.
     Exactly one of ``diagrams``, ``vectors`` or ``job_ids``.
     """
@@ -118,6 +178,13 @@ class DistanceRequest(BaseModel):
         Dimension | None,
         Field(
             description="Homology dimension compared; required with job_ids and a diagram metric."
+        ),
+    ] = None
+    never_dying: Annotated[
+        NeverDying | None,
+        Field(
+            description='Classes that never die (diagram metrics only). Default: {"mode": '
+            '"separate"}.'
         ),
     ] = None
     diagrams: Annotated[
@@ -167,6 +234,10 @@ class DistanceResult(BaseModel):
     order: float | None = None
     directions: int | None = None
     dim: int | None = None
+    never_dying: Annotated[
+        NeverDying | None,
+        Field(description="How classes that never die were treated (diagram metrics)."),
+    ] = None
     ground_metric: Annotated[
         Literal["l_infinity"] | None,
         Field(description="Ground metric between diagram points (diagram metrics only)."),
@@ -225,6 +296,14 @@ def distance_field_errors(request: DistanceRequest, limits: Limits) -> list[Fiel
         )
     if request.dim is not None and not diagram_metric:
         errors.append(FieldError(pointer="/dim", message="dim is only used by diagram metrics"))
+    if request.never_dying is not None and not diagram_metric:
+        errors.append(
+            FieldError(
+                pointer="/never_dying",
+                message=f"{request.metric} compares feature vectors, which have no classes "
+                "that never die; never_dying is only used by diagram metrics",
+            )
+        )
     if source == "job_ids" and diagram_metric and request.dim is None:
         errors.append(
             FieldError(pointer="/dim", message="name the homology dimension to compare (dim)")

@@ -6,7 +6,7 @@ from typing import Annotated, Literal
 
 from pydantic import BaseModel, ConfigDict, Field, PlainSerializer
 
-from workers.spec.distances import Metric
+from workers.spec.distances import Metric, NeverDying
 from workers.spec.features import FeatureSpec
 from workers.spec.filtrations import Filtration
 from workers.spec.networks import DescriptorOptions, OutputKind
@@ -187,6 +187,9 @@ class DistanceTask(BaseModel):
     order: float | None = None
     directions: int | None = None
     dim: int | None = None
+    never_dying: Annotated[
+        NeverDying | None, Field(description="Resolved for diagram metrics, else None.")
+    ] = None
     count: Annotated[int, Field(ge=1)]
     job_ids: Annotated[
         list[str] | None, Field(description="The jobs compared, in matrix order (pictures).")

@@ -1,5 +1,6 @@
 """What a finished job returns."""
 
+from collections.abc import Iterable
 from functools import cache
 from importlib.metadata import version
 from typing import Annotated, Literal
@@ -10,24 +11,66 @@ from workers.spec.networks import GraphOutput, NetworkDescriptors, ShellDescript
 from workers.spec.numbers import Coordinate
 from workers.spec.problems import FieldError
 
-PROVENANCE_PACKAGES = ("lacuna", "numpy", "scipy", "gudhi")
-"""Packages whose versions shape a result; every provenance records them."""
+BASE_PACKAGES = ("lacuna", "numpy", "scipy")
+"""Distributions (importlib.metadata names) every job's code runs on, so every provenance
+names them."""
+
+ENGINE_PACKAGES: dict[str, tuple[str, ...]] = {"rips-gudhi-float64": ("gudhi",)}
+"""Distributions an engine runs on beyond ``BASE_PACKAGES``."""
+
+SKELETON_PACKAGES = ("scikit-image",)
+"""Distributions a mask's skeleton graph is made with (scikit-image skeletonize)."""
+
+Engine = Literal[
+    "rips-gudhi-float64",
+    "cubical-lacuna-c",
+    "graph-lacuna-c",
+    "bottleneck-lacuna",
+    "wasserstein-lacuna",
+    "sliced-wasserstein-lacuna",
+    "vector-lacuna",
+]
+"""lacuna's own name for the method that computed a result."""
+
+ENGINES: dict[Engine, str] = {
+    "rips-gudhi-float64": "Vietoris-Rips persistence: lacuna's filtration cuts and edge "
+    "collapse, reduced by the float64 Ripser algorithm built into gudhi",
+    "cubical-lacuna-c": "cubical persistence of pixel or voxel values by lacuna's own C "
+    "engine (union-find, Alexander duality, cohomology in 3D)",
+    "graph-lacuna-c": "lower-star persistence of node values on a graph by lacuna's own C "
+    "engine (union-find, elder rule)",
+    "bottleneck-lacuna": "exact bottleneck distance: binary search over candidate costs with "
+    "scipy's Hopcroft-Karp matching",
+    "wasserstein-lacuna": "exact Wasserstein distance: the assignment problem solved by "
+    "scipy's LAPJVsp",
+    "sliced-wasserstein-lacuna": "sliced Wasserstein distance on evenly spaced directions, numpy",
+    "vector-lacuna": "euclidean or cosine distance between feature vectors, numpy and scipy",
+}
+"""Every engine and what it is, as /v1/capabilities lists them."""
+
+ALL_PACKAGES = tuple(
+    dict.fromkeys(
+        (*BASE_PACKAGES, *(p for ps in ENGINE_PACKAGES.values() for p in ps), *SKELETON_PACKAGES)
+    )
+)
+"""Every distribution a provenance may name."""
 
 
 @cache  # reading package metadata costs ~5 ms, and a process never changes its packages
-def _installed_versions() -> tuple[tuple[str, str], ...]:
-    versions = {name: version(name) for name in PROVENANCE_PACKAGES}
-    versions["ripser"] = f"gudhi-{versions['gudhi']}"
-    return tuple(versions.items())
+def _installed_versions(names: tuple[str, ...]) -> tuple[tuple[str, str], ...]:
+    return tuple((name, version(name)) for name in names)
 
 
-def package_versions() -> dict[str, str]:
-    """Versions recorded in provenance and capabilities.
+def package_versions(extra: Iterable[str] = ()) -> dict[str, str]:
+    """Versions of ``BASE_PACKAGES`` and of the ``extra`` distributions a job also ran on,
+    by their importlib.metadata distribution names."""
+    names = tuple(dict.fromkeys((*BASE_PACKAGES, *extra)))
+    return dict(_installed_versions(names))
 
-    ``ripser`` names the Ripser build that reduced the filtration: the float64 one inside
-    gudhi, so its value is ``gudhi-<version>``.
-    """
-    return dict(_installed_versions())
+
+def engine_packages(engine: str | None) -> tuple[str, ...]:
+    """The distributions ``engine`` runs on beyond the base ones."""
+    return ENGINE_PACKAGES.get(engine or "", ())
 
 
 Pair = tuple[Coordinate, Coordinate | None]
@@ -124,7 +167,22 @@ class Provenance(BaseModel):
             "by spec_id count as the specs they name."
         ),
     ]
-    versions: dict[str, str]
+    versions: Annotated[
+        dict[str, str],
+        Field(
+            description="Version of each installed distribution (by its importlib.metadata "
+            "name) whose code computed the result: lacuna, numpy and scipy always, gudhi for "
+            "Rips, scikit-image for a mask's skeleton graph."
+        ),
+    ]
+    engine: Annotated[
+        Engine | None,
+        Field(
+            description="lacuna's name for the method that computed the diagrams or the "
+            "distances (see engines in /v1/capabilities); null for given diagrams and for "
+            "graph jobs without a filtration."
+        ),
+    ] = None
     elapsed_s: Annotated[float, Field(description="Wall time of the computation itself.")]
     request_id: Annotated[
         str | None,
@@ -150,6 +208,12 @@ ValueConvention = Literal[
     "node_value",
 ]
 """What the numbers of a diagram are."""
+
+LENGTH_CONVENTIONS: frozenset[ValueConvention] = frozenset(
+    {"edge_length", "signed_distance", "height", "radial_distance", "geodesic_distance"}
+)
+"""Conventions whose values are lengths, in the unit of the coordinates; the others (pixel
+and node values) carry no unit."""
 
 
 class DirectionDiagrams(BaseModel):
@@ -181,7 +245,29 @@ class JobResult(BaseModel):
     ]
     units: Annotated[
         str | None,
-        Field(description="Unit of the values, when they are lengths or coordinates."),
+        Field(
+            description="Unit of the diagram values: the unit of the coordinates when the "
+            "values are lengths (edge_length, signed_distance, height, radial_distance, "
+            "geodesic_distance); null for pixel and node values, which have none. For "
+            "given diagrams, the input's units as sent."
+        ),
+    ] = None
+    coordinate_units: Annotated[
+        str | None,
+        Field(
+            description="Unit of the coordinates: of the points, of graph nodes (after "
+            'spacing), or of the pixel grid (the unit of spacing; "pixel" for an image or '
+            "mask sent without spacing). Null when the input gave none, and for given "
+            "diagrams."
+        ),
+    ] = None
+    spacing: Annotated[
+        list[float] | None,
+        Field(
+            description="The spacing the job used (image, mask and graph inputs), in "
+            "array-axis order for images and masks and in node-coordinate order for graphs; "
+            "null when none was sent (1 per axis)."
+        ),
     ] = None
     diagrams: Annotated[
         list[Diagram],
