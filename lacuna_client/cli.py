@@ -261,8 +261,10 @@ def _batch_exit(statuses: Sequence[str | None]) -> int:
 def _status(args: argparse.Namespace) -> int:
     status = _client(args).status(args.job_id)
     text = status["status"]
-    if status.get("progress"):
-        text += f" ({status['progress']['done']} of {status['progress']['total']})"
+    progress = status.get("progress")
+    if progress and status["status"] in ("queued", "running"):  # an ended job's is history
+        stage = f"{progress['stage']}: " if progress.get("stage") else ""
+        text += f" ({stage}{progress['done']} of {progress['total']} done)"
     if status.get("problem"):
         text += f": {status['problem'].get('title')}: {status['problem'].get('detail')}"
     if status["status"] == "cancelled" and status.get("ended_at"):
