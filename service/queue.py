@@ -333,6 +333,18 @@ class JobQueue:
         """The payload the job was queued with (what it computes, with resolved specs)."""
         return JobPayload.model_validate(job.args[0])
 
+    def remaining_ttl_s(self, job: Job) -> int | None:
+        """Seconds until ``job`` (and its result) expires: None when it never does, 0 once
+        it is gone."""
+        remaining = int(self.redis.ttl(job.key))  # -1: no expiry, -2: no such key
+        return None if remaining == -1 else max(remaining, 0)
+
+    def request_as_sent(self, job: Job) -> dict[str, str] | None:
+        """The request as the client sent it (``Submission.sent``: its media type and text),
+        or None for a job queued before requests were kept."""
+        sent: dict[str, str] | None = job.meta.get("request")
+        return sent
+
     def discard(self, job: Job) -> None:
         """Delete a job that has served its purpose (a picture once sent), and its input."""
         job.delete()

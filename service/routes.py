@@ -23,7 +23,7 @@ from service.extension import ServiceState
 from service.gates import Gates
 from service.graphml import decode_graph
 from service.pages import job_page, wants_html
-from service.pictures import draw, validators_of
+from service.pictures import draw, picture_of
 from service.queue import Job
 from service.quotas import quotas_of
 from service.submissions import Submission, distance_submission, job_submission
@@ -388,7 +388,7 @@ def job_status(job_id: str) -> Response:
     status = queue.status(job)
     if wants_html(request):
         result = queue.result(job) if status.status is JobState.succeeded else None
-        page = job_page(status, job, queue.payload_of(job), result)
+        page = job_page(status, job, queue.payload_of(job), result, queue.request_as_sent(job))
         return Response(page, mimetype="text/html")
     return jsonify(status.model_dump(mode="json"))
 
@@ -410,15 +410,15 @@ def job_plot(job_id: str) -> Response:
     query = PlotQuery.model_validate(request.args.to_dict())
     state = _state()
     owner = owner_of(request)
-    job = state.queue.find(job_id, owner)
-    validators = validators_of(state, job, query, owner)
-    if request.if_none_match.contains(validators.etag):  # RFC 9110 section 13.1.2
+    picture = picture_of(state, state.queue.find(job_id, owner), query, owner)
+    # RFC 9110 section 13.1.2: If-None-Match compares weakly; checked after the query was.
+    if request.if_none_match.contains_weak(picture.etag):
         answer = Response(status=304)
     else:
-        picture, media_type = draw(state, job, query, owner, _gates().waiters)
-        answer = Response(picture, mimetype=media_type)
-    answer.set_etag(validators.etag)
-    answer.headers["Cache-Control"] = f"private, max-age={validators.max_age}"
+        drawn, media_type = draw(state, picture, _gates().waiters)
+        answer = Response(drawn, mimetype=media_type)
+    answer.set_etag(picture.etag)
+    answer.headers["Cache-Control"] = f"private, max-age={picture.max_age}"
     return answer
 
 

@@ -171,6 +171,13 @@ class Settings(BaseSettings):
         description="Largest picture kept in Redis (bytes) for the rest of its job's result "
         "TTL; a larger one is drawn again on every request. 0: no picture is kept.",
     )
+    picture_cache_bytes_per_job: int = Field(
+        16_000_000,
+        ge=0,
+        description="Most bytes of one job's pictures kept in Redis at a time (counted until "
+        "the job expires); past it, further pictures of the job are drawn on every request. "
+        "Bounds what the many distinct queries of a job can store.",
+    )
 
     # Memory and cost of jobs: the memory limit, and the refusal up front of what cannot fit
     job_memory_limit_mb: int | None = Field(

@@ -421,7 +421,7 @@ def _matrix_submission(
                 "labels": [f"{i} · {found[:8]}" for i, found in enumerate(job_ids)]
                 if job_ids
                 else None,
-                "null_meaning": _NULL_MEANINGS["cosine" if metric == "cosine" else "diagram"],
+                "null_meaning": _null_meaning(result),
                 "caption": f"{nulls:,} of {pairs:,} distances are null" if nulls else None,
             }
         ),
@@ -430,10 +430,19 @@ def _matrix_submission(
     )
 
 
-_NULL_MEANINGS = {
-    "cosine": "undefined: a vector of all zeros has no direction",
-    "diagram": "infinite: unequal numbers of classes that never die (or beyond float64)",
-}
+_OVERFLOW = "beyond the range of float64"
+
+
+def _null_meaning(result: dict[str, Any]) -> str:
+    """What a null entry of the distance matrix ``result`` means, as its metric and
+    never_dying mode make one: only "separate" (the default) gives infinite distances."""
+    metric = result["metric"]
+    if metric == "cosine":
+        return f"undefined: a vector of all zeros has no direction (or {_OVERFLOW})"
+    mode = (result.get("never_dying") or {}).get("mode", "separate")
+    if metric in DIAGRAM_METRICS and mode == "separate":
+        return f"infinite: unequal numbers of classes that never die (or {_OVERFLOW})"
+    return _OVERFLOW
 
 
 def _chosen_diagrams(query: PlotQuery, result: dict[str, Any]) -> list[dict[str, Any]]:

@@ -8,6 +8,7 @@ app's JobQueue.submit, and ETags checked as RFC 9110 section 13.1.2 (If-None-Mat
 """
 
 import io
+import uuid
 import xml.etree.ElementTree as ElementTree
 from typing import Any
 
@@ -16,13 +17,16 @@ import pytest
 from flask.testing import FlaskClient
 from PIL import Image
 from redis import Redis
+from rq.serializers import JSONSerializer
 
 from service.keys import KeyStore
+from service.queue import Job
 from service.settings import Settings
-from service.submissions import Submission
+from service.submissions import Submission, plot_submission
 from tests.support.api import JOBS, WAIT, app_with, call, fresh_queue, post, problem_of, result_of
 from tests.support.bodies import rips_job
 from tests.support.synthetic import noisy_circle
+from workers.spec.plots import PlotQuery, PlotTask
 
 IMAGE_FEATURE = {
     "type": "persistence_image",
@@ -381,3 +385,122 @@ def test_tenants_cannot_read_each_others_pictures(served: tuple[FlaskClient, Set
     for headers in (b, {**b, "If-None-Match": etag}):
         problem = problem_of(plot(client, job_id, "kind=diagram", **headers), 404)
         assert problem["type"].endswith("job-not-found")
+
+
+def test_a_jobs_pictures_are_kept_within_its_byte_budget(
+    served: tuple[FlaskClient, Settings],
+) -> None:
+    client, settings = served
+    job_id = result_of(client, rips_job(noisy_circle(30, seed=4).tolist(), max_dim=1))["job_id"]
+    redis = client.application.extensions["lacuna"].queue.redis
+    kept = f"lacuna:picture:{job_id}:*"
+    on = {"redis_url": settings.redis_url, "queue": settings.queue}
+    # Budget 0: drawn, never kept; this measures the picture's size.
+    first = plot(app_with(**on, picture_cache_bytes_per_job=0).test_client(), job_id, "width=400")
+    assert first.status_code == 200 and redis.keys(kept) == []
+    size = len(first.data)
+    # Budget 1.5 pictures: the first is kept, the next (about as large) drawn but not kept.
+    budgeted = app_with(**on, picture_cache_bytes_per_job=size + size // 2).test_client()
+    assert plot(budgeted, job_id, "width=400").data == first.data
+    assert len(redis.keys(kept)) == 1
+    for _ in range(2):
+        other = plot(budgeted, job_id, "width=401")
+        assert other.status_code == 200 and b"<svg" in other.data[:1000]
+        assert len(redis.keys(kept)) == 1
+    used = f"lacuna:picture-bytes:{job_id}"
+    assert int(redis.get(used)) == size
+    assert 0 < redis.ttl(used) <= redis.ttl(f"rq:job:{job_id}")  # expires with the job
+
+
+def test_if_none_match_compares_weakly(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]], plot_jobs: list[Submission]
+) -> None:
+    # RFC 9110 section 13.1.2: If-None-Match uses the weak comparison, so W/"x" matches "x".
+    job_id, _ = circle_job
+    etag = plot(client, job_id, "kind=diagram&width=410").headers["ETag"]
+    unchanged = plot(client, job_id, "kind=diagram&width=410", **{"If-None-Match": f"W/{etag}"})
+    assert unchanged.status_code == 304 and unchanged.headers["ETag"] == etag
+    listed = plot(client, job_id, "kind=diagram&width=410", **{"If-None-Match": f'"x", {etag}'})
+    assert listed.status_code == 304
+    assert len(plot_jobs) <= 1  # drawn at most once (the first request, unless kept before)
+
+
+def test_if_none_match_never_hides_a_query_that_does_not_fit_the_job(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]], plot_jobs: list[Submission]
+) -> None:
+    # A Rips job has no matrix and no H3: 422 naming the field, even to If-None-Match: *.
+    job_id, _ = circle_job
+    unfit = (("kind=matrix", "/kind"), ("dim=3", "/dim"), ("kind=image&top=2", "/top"))
+    for query, pointer in unfit:
+        problem = problem_of(plot(client, job_id, query, **{"If-None-Match": "*"}), 422)
+        assert [e["pointer"] for e in problem["errors"]] == [pointer]
+    assert plot(client, job_id, "kind=diagram", **{"If-None-Match": "*"}).status_code == 304
+    assert plot_jobs == []
+
+
+def test_the_etag_changes_with_lacunas_version(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # An upgrade may change the drawing without a DRAWING_VERSION bump: its pictures are new.
+    job_id, _ = circle_job
+    etag = plot(client, job_id, "kind=diagram&width=420").headers["ETag"]
+    monkeypatch.setattr("service.pictures._lacuna_version", lambda: "0.0.0+another")
+    assert plot(client, job_id, "kind=diagram&width=420").headers["ETag"] != etag
+
+
+def test_remaining_ttl_of_a_job(
+    client: FlaskClient, circle_job: tuple[str, dict[str, Any]]
+) -> None:
+    state = client.application.extensions["lacuna"]
+    redis = state.queue.redis
+    ended = Job(circle_job[0], connection=redis)
+    assert 0 < (state.queue.remaining_ttl_s(ended) or 0) <= state.settings.result_ttl_s
+    gone = Job(str(uuid.uuid4()), connection=redis)
+    assert state.queue.remaining_ttl_s(gone) == 0  # Redis: -2
+    forever = Job(str(uuid.uuid4()), connection=redis)
+    redis.hset(forever.key, "status", "finished")
+    assert state.queue.remaining_ttl_s(forever) is None  # Redis: -1
+    redis.delete(forever.key)
+
+
+@pytest.mark.parametrize(
+    ("body", "meaning"),
+    [
+        ({"metric": "bottleneck"}, "infinite: unequal numbers of classes that never die"),
+        ({"metric": "bottleneck", "never_dying": {"mode": "drop"}}, "beyond the range of float64"),
+        (
+            {"metric": "wasserstein", "never_dying": {"mode": "cap", "cap": 3.0}},
+            "beyond the range of float64",
+        ),
+        ({"metric": "euclidean", "vectors": [[0, 1], [1, 0]]}, "beyond the range of float64"),
+        ({"metric": "cosine", "vectors": [[0, 1], [1, 0]]}, "undefined: a vector of all zeros"),
+    ],
+)
+def test_the_null_text_of_a_matrix_follows_its_metric_and_never_dying(
+    client: FlaskClient, body: dict[str, Any], meaning: str
+) -> None:
+    # Only "separate" (the default) makes a diagram distance infinite for unequal counts of
+    # classes that never die; with drop or cap (and euclidean) a null can only be an overflow.
+    # Such overflows are out of reach of the inputs' bounds, so the null is put in the result.
+    items = {} if "vectors" in body else {"diagrams": [[[0, 1], [0, None]], [[0, 2]]]}
+    answer = post(client, "/v1/distances", {**items, **body})
+    assert answer.status_code == 200, answer.get_json()
+    distances = answer.get_json()
+    queue = client.application.extensions["lacuna"].queue
+    job = Job.fetch(distances["job_id"], connection=queue.redis, serializer=JSONSerializer)
+    distances["matrix"][0][1] = distances["matrix"][1][0] = None
+    query = PlotQuery(kind="matrix")
+    drawn = plot_submission(query, distances, queue.payload_of(job), job.id)
+    assert isinstance(drawn.task, PlotTask)
+    assert (drawn.task.null_meaning or "").startswith(meaning), drawn.task.null_meaning
+
+
+def test_the_openapi_document_describes_the_plot_answers(client: FlaskClient) -> None:
+    operation = client.get("/v1/openapi.json").get_json()["paths"]["/v1/jobs/{job_id}/plot"]["get"]
+    responses = operation["responses"]
+    assert {"ETag", "Cache-Control"} <= set(responses["200"]["headers"])
+    assert "304" in responses and set(responses["304"]["headers"]) == {"ETag", "Cache-Control"}
+    assert "If-None-Match" in [p["name"] for p in operation["parameters"]]
+    words = operation["description"]
+    assert "kind=matrix" in words and "never dies" in words and "point-<dim>s-never" in words
+    assert "dashed" not in words and "infinity tick" not in words  # not the old look

@@ -5,6 +5,7 @@ from typing import Annotated, Literal
 from pydantic import BaseModel, ConfigDict, Field
 
 __all__ = [
+    "DRAWING_SAMPLE_SHA256",
     "DRAWING_VERSION",
     "MEDIA_TYPES",
     "PAIR_KINDS",
@@ -13,7 +14,6 @@ __all__ = [
     "PlotResult",
     "PlotTask",
     "PictureFormat",
-    "picture_key",
 ]
 
 PlotKind = Literal["diagram", "barcode", "image", "matrix"]
@@ -25,11 +25,10 @@ DRAWING_VERSION = "2"
 drawing (raise it with any change of workers.pictures.drawing's output) is never served
 from a cache as the old picture."""
 
-
-def picture_key(job_id: str, digest: str) -> str:
-    """Redis key of a drawn picture of job ``job_id`` (``digest``: of the normalised query
-    and the drawing version), beside the job's other keys."""
-    return f"lacuna:picture:{job_id}:{digest}"
+DRAWING_SAMPLE_SHA256 = "3a02626fe1aad8f49cf6b0d7d9b81e32c33ddd856987df4534c9b98ec183287f"
+"""The drawing at DRAWING_VERSION: hash of a small fixed diagram, barcode and matrix drawn
+as SVG (tests/pictures/test_drawing_version.py). That test fails when the drawing changes,
+asking for a new DRAWING_VERSION with the new hash."""
 
 
 PictureFormat = Literal["svg", "png"]
