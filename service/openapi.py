@@ -308,6 +308,25 @@ _UNAVAILABLE = _problem(
     "bodies as it may; retry after the Retry-After header."
 )
 _NOT_FOUND = _problem("No such job for this owner, or it has expired.")
+_PICTURE_HEADERS = {
+    "ETag": {
+        "description": "Strong validator of the picture (the job, the owner, the normalised "
+        "query, the drawing's version and lacuna's).",
+        "schema": {"type": "string"},
+    },
+    "Cache-Control": {
+        "description": "private, max-age=<seconds the job's result has left>.",
+        "schema": {"type": "string"},
+    },
+}
+_IF_NONE_MATCH = {
+    "name": "If-None-Match",
+    "in": "header",
+    "required": False,
+    "description": "ETags of pictures held (weak comparison, RFC 9110 section 13.1.2): 304 "
+    "when one is this picture's.",
+    "schema": {"type": "string"},
+}
 
 
 def _paths() -> dict[str, Any]:
@@ -419,24 +438,40 @@ def _paths() -> dict[str, Any]:
             "get": {
                 "summary": "A picture of a succeeded job",
                 "description": "Drawn on a worker within max_wait_s: the persistence diagram "
-                "(the diagonal, a dashed line with an infinity tick for classes that never die, "
-                "axis labels with the result's units, one colour per dimension and a legend), "
-                "the barcode, or a persistence image the job computed as a feature. In SVG each "
-                "point is a group with id point-<dim>-<k> (bars bar-<dim>-<k>), up to 20000; "
-                "above that, one group per dimension (point-<dim>s, bar-<dim>s). Query error "
-                "pointers point into the query "
-                "taken as an object (`/dim` is `?dim=`).",
+                "(death against birth; each dimension with its own colour and marker shape, H0 "
+                "circle, H1 triangle, H2 square, H3 diamond; classes that never die in a strip "
+                "labelled never dies above the diagram; the half-plane death < birth shaded; "
+                "the legend outside the axes with each dimension's pair count), the barcode "
+                "(one bar per class, those that never die running into a strip on the right), "
+                "a persistence image the job computed as a feature (colour bar: intensity), or "
+                "kind=matrix: the heatmap of a POST /v1/distances job (rows and columns the "
+                "items, null distances hatched and explained). Axes name the value and its "
+                "units; a caption says what min_persistence or top left out. In SVG each point "
+                "is a group with id point-<dim>-<k> (bars bar-<dim>-<k>), k the pair's row in "
+                "the result, up to 20000; above that, one group per dimension (point-<dim>s, "
+                "point-<dim>s-never in the strip, bar-<dim>s). A picture is drawn once per job "
+                "and query and then answered from Redis (within picture_cache_max_bytes per "
+                "picture and picture_cache_bytes_per_job per job) for the rest of the job's "
+                "result TTL. The query is checked against the job before If-None-Match, which "
+                "compares weakly (RFC 9110 section 13.1.2). Query error pointers point into the "
+                "query taken as an object (`/dim` is `?dim=`).",
                 "operationId": "getPlot",
-                "parameters": _query_parameters(PlotQuery),
+                "parameters": [*_query_parameters(PlotQuery), _IF_NONE_MATCH],
                 "responses": {
                     "200": {
                         "description": "The picture.",
+                        "headers": _PICTURE_HEADERS,
                         "content": {
                             "image/svg+xml": {"schema": {"type": "string"}},
                             "image/png": {
                                 "schema": {"type": "string", "contentMediaType": "image/png"}
                             },
                         },
+                    },
+                    "304": {
+                        "description": "Not modified: If-None-Match names the picture's ETag "
+                        "(or is *); no body.",
+                        "headers": _PICTURE_HEADERS,
                     },
                     "404": _NOT_FOUND,
                     "409": _problem("The job has not succeeded (yet)."),

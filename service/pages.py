@@ -31,9 +31,12 @@ def wants_html(request: Request) -> bool:
     return accept.best_match(["application/json", "text/html"]) == "text/html"
 
 
-def job_page(status: JobStatus, job: Job, payload: JobPayload, result: Any) -> str:
-    """The page of ``job``: its ``status``, the ``payload`` it was queued with, and its
-    ``result`` once it has succeeded (None before)."""
+def job_page(
+    status: JobStatus, job: Job, payload: JobPayload, result: Any, sent: dict[str, str] | None
+) -> str:
+    """The page of ``job``: its ``status``, the ``payload`` it was queued with, its
+    ``result`` once it has succeeded (None before) and the request as it was ``sent``
+    (``JobQueue.request_as_sent``)."""
     unfinished = status.status in (JobState.queued, JobState.running)
     return render_template(
         "job.html",
@@ -43,7 +46,7 @@ def job_page(status: JobStatus, job: Job, payload: JobPayload, result: Any) -> s
         unfinished=unfinished,
         payload=payload,
         description=job.description or "",
-        sent=_sent(job, payload),
+        sent=_sent(sent, payload),
         result=result,
         pictures=_pictures(job.id, result) if result is not None else [],
         per_direction=bool(result and result.get("per_direction")),
@@ -59,10 +62,10 @@ def not_found_page(detail: str, request_id: str | None) -> str:
     return render_template("not_found.html", detail=detail, request_id=request_id)
 
 
-def _sent(job: Job, payload: JobPayload) -> dict[str, str]:
-    """The request as the client sent it (``service.submissions.request_as_sent``); a job
-    queued before requests were kept shows its task as computed, and says so."""
-    sent: dict[str, str] | None = job.meta.get("request")
+def _sent(sent: dict[str, str] | None, payload: JobPayload) -> dict[str, str]:
+    """The request as the client sent it; a job queued before requests were kept (by a
+    server of an earlier version, still within its result TTL) shows its task as computed,
+    and says so."""
     if sent is not None:
         return {**sent, "kept": "as sent"}
     task = payload.task.model_dump(mode="json", exclude_none=True)
@@ -122,13 +125,13 @@ def _pair_counts(result: dict[str, Any]) -> list[dict[str, Any]]:
     ]
 
 
-def _values(result: dict[str, Any]) -> dict[str, str] | None:
-    """What the diagram values are and their unit (null: no unit, as pixel intensities)."""
+def _values(result: dict[str, Any]) -> dict[str, str | None] | None:
+    """What the diagram values are and their unit (None: no unit, as pixel intensities)."""
     if "value_convention" not in result:  # a distance matrix has no diagram values
         return None
     return {
         "convention": result.get("value_convention") or "as given",
-        "units": result.get("units") or "no unit",
+        "units": result.get("units"),
     }
 
 

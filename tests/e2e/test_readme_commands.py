@@ -4,8 +4,9 @@ port and Redis; never port 8000 or 6379 of the machine).
 
 Substituted: the test server's address for ``localhost:8000`` / ``127.0.0.1:8000``, the job
 id the quickstart's POST answered for ``<id>``, the installed ``lacuna`` for
-``.venv/bin/lacuna``. A command that cannot run here is in NOT_RUN with its reason; any other
-command the README gains is run, so the README cannot drift from what works.
+``.venv/bin/lacuna`` and the test's interpreter for ``.venv/bin/python`` (inline commands).
+A command that cannot run here is in NOT_RUN with its reason; any other command the README
+gains is run, so the README cannot drift from what works.
 """
 
 import json
@@ -246,7 +247,8 @@ def test_readme_commands_run(base: str, redis_server: str, folder: Path) -> None
 
 def test_readme_python_m_commands_run(folder: Path) -> None:
     # Inline `python -m ...` commands of the prose (the README's picture, say) run too.
-    inline = re.findall(r"`(python -m [^`]+)`", README.read_text(encoding="utf-8"))
+    # The venv's interpreter, as a fresh clone has it, is the test's own.
+    inline = re.findall(r"`((?:\.venv/bin/)?python -m [^`]+)`", README.read_text(encoding="utf-8"))
     assert inline
     for text in inline:
         argv = [sys.executable, *shlex.split(text)[1:]]

@@ -196,7 +196,8 @@ def test_matrix_labels_thinned_and_nulls_explained() -> None:
     matrix[3, 9] = matrix[9, 3] = np.inf
     svg = matrix_plot(
         matrix,
-        value_label="bottleneck distance, H1 (um)",
+        value_name="bottleneck distance, H1",
+        units="um",
         null_meaning="infinite: unequal numbers",
         width=480,
         height=480,
@@ -206,13 +207,13 @@ def test_matrix_labels_thinned_and_nulls_explained() -> None:
     labels = sorted({int(w) for w in words if w.isdigit()} & set(range(150)) - {0})
     step = labels[0]
     assert 1 < step and all(label % step == 0 for label in labels)  # every step-th item
-    png = matrix_plot(matrix, value_label="x", format="png", width=300, height=260)
+    png = matrix_plot(matrix, value_name="x", format="png", width=300, height=260)
     assert Image.open(io.BytesIO(png)).size == (300, 260)
 
 
 def test_matrix_rows_carry_their_job_ids() -> None:
     labels = ["0 · 3f2a1b9c", "1 · 77aa0e12"]
-    words = texts(matrix_plot(np.array([[0.0, 1.0], [1.0, 0.0]]), value_label="d", labels=labels))
+    words = texts(matrix_plot(np.array([[0.0, 1.0], [1.0, 0.0]]), value_name="d", labels=labels))
     assert words.count("0 · 3f2a1b9c") == 2 and "item · job" in words  # rows and columns
     assert not any(w.startswith("null") for w in words)  # no null, no null legend
 

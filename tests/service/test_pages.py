@@ -21,6 +21,7 @@ from flask.testing import FlaskClient
 from redis import Redis
 from werkzeug.test import TestResponse
 
+from service.auth import PUBLIC_OWNER
 from service.keys import KeyStore
 from service.settings import Settings
 from service.submissions import SENT_REQUEST_BYTES, request_as_sent
@@ -186,7 +187,7 @@ def test_intensities_have_no_unit_and_coordinates_theirs(
     _, page = page_of(client, image_job[0])
     assert page.by_id["values"] is not None
     words = page.words
-    assert "pixel_value in no unit" in words
+    assert "pixel_value (no unit)" in words
     assert "spacing 0.5 × 0.25 um" in words
     assert re.search(r"image, stored as 150 × 150 Input SHA-256", words), words
 
@@ -355,3 +356,18 @@ def test_another_tenants_job_is_an_html_404(redis_url: str) -> None:
     assert mine.status_code == 200
     assert theirs.status_code == 404 and theirs.mimetype == "text/html"
     assert "No such job" in page.words
+
+
+def test_a_job_queued_before_requests_were_kept_shows_its_task_as_computed(
+    client: FlaskClient,
+) -> None:
+    # A job queued by a server of an earlier version (no request in its meta) keeps a page
+    # until its result expires, across the upgrade.
+    answer = post(client, JOBS, rips_job(max_dim=1), headers=WAIT)
+    job_id = answer.get_json()["job_id"]
+    job = client.application.extensions["lacuna"].queue.find(job_id, PUBLIC_OWNER)
+    del job.meta["request"]
+    job.save_meta()
+    html = call(client, "GET", f"{JOBS}/{job_id}", headers=HTML).get_data(as_text=True)
+    assert "As computed" in html
+    assert sent_request(html)["filtration"]["type"] == "rips"

@@ -558,7 +558,8 @@ def _thinned(count: int, room_px: float) -> np.ndarray:
 def matrix_plot(
     matrix: np.ndarray,
     *,
-    value_label: str,
+    value_name: str,
+    units: str | None = None,
     labels: Sequence[str] | None = None,
     null_meaning: str | None = None,
     caption: str | None = None,
@@ -568,8 +569,8 @@ def matrix_plot(
 ) -> bytes:
     """A distance matrix as a heatmap, rows and columns in the order of the request,
     labelled by ``labels`` (or their index), thinned when there are many; the colour bar is
-    labelled ``value_label``. Entries that are inf or NaN (null in the result) are hatched
-    and explained by ``null_meaning`` in a legend below."""
+    labelled ``value_name`` with its ``units``. Entries that are inf or NaN (null in the
+    result) are hatched and explained by ``null_meaning`` in a legend below."""
     figure = _figure(width, height, format)
     values = np.asarray(matrix, dtype=np.float64)
     if values.ndim != 2 or values.shape[0] != values.shape[1] or not values.size:
@@ -608,7 +609,7 @@ def matrix_plot(
             interpolation="nearest",
             zorder=1,
         )
-        _colour_bar(figure, shown, axes, value_label, height)
+        _colour_bar(figure, shown, axes, _value_label(value_name, units), height)
         room = min(width, height) * 0.7
         chosen = _thinned(count, room)
         long_names = max(len(name) for name in names) > 3

@@ -31,7 +31,8 @@ def picture(task: PlotTask, array: np.ndarray) -> PlotResult:
     elif task.kind == "matrix":
         drawn = plots.matrix_plot(
             array,
-            value_label=f"{task.value_name} ({task.units})" if task.units else task.value_name,
+            value_name=task.value_name,
+            units=task.units,
             labels=task.labels,
             null_meaning=task.null_meaning,
             caption=task.caption,
