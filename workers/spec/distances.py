@@ -223,6 +223,14 @@ class DistanceResult(BaseModel):
         Literal["l_infinity"] | None,
         Field(description="Ground metric between diagram points (diagram metrics only)."),
     ] = None
+    units: Annotated[
+        str | None,
+        Field(
+            description="Units of the distances of a diagram metric: the diagrams' units when "
+            "every job compared has the same one (job_ids); null for inline diagrams, for "
+            "jobs of different or no units, and for vector metrics."
+        ),
+    ] = None
     count: int
     matrix: Annotated[
         list[list[float | None]],
