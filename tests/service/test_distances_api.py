@@ -570,7 +570,9 @@ def test_a_matrix_of_jobs_of_one_unit_is_in_that_unit(
 
     in_um = [job(31, "um"), job(32, "um")]
     for ids, units in [(in_um, "um"), ([*in_um, job(33, "mm")], None), ([job(34, None)], None)]:
-        answer = answered(post(client, DISTANCES, {"metric": "bottleneck", "dim": 0, "job_ids": ids}))
+        answer = answered(
+            post(client, DISTANCES, {"metric": "bottleneck", "dim": 0, "job_ids": ids})
+        )
         assert answer["units"] == units, ids
     inline = answered(post(client, DISTANCES, {"metric": "bottleneck", "diagrams": [A, B]}))
     assert inline["units"] is None  # inline diagrams say no units

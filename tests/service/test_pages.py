@@ -4,10 +4,9 @@ counts, units apart, the request as sent, a progress bar and reloading while unf
 HTML 404 for browsers.
 
 HTML is read with the standard library's parser; pair counts are checked against gudhi's
-cubical complex (reference library), hashes against hashlib.
+cubical complex (reference library).
 """
 
-import hashlib
 import io
 import json
 import re

@@ -21,7 +21,9 @@ def distance(mode: str, cap: float | None) -> Any:
 
 
 @pytest.mark.parametrize(("make", "mode_field"), [(feature, "infinite"), (distance, "mode")])
-def test_cap_goes_with_cap_in_both_formats(make: Callable[[str, float | None], Any], mode_field: str) -> None:
+def test_cap_goes_with_cap_in_both_formats(
+    make: Callable[[str, float | None], Any], mode_field: str
+) -> None:
     assert make("cap", 2.5).cap == 2.5
     assert make("drop", None).cap is None
     with pytest.raises(ValidationError, match=f'{mode_field} "cap" needs a cap value'):
@@ -33,10 +35,14 @@ def test_cap_goes_with_cap_in_both_formats(make: Callable[[str, float | None], A
 def test_both_formats_state_the_same_rule_in_their_schemas() -> None:
     feature_rule = {k: BettiCurveSpec.model_json_schema()[k] for k in ("if", "then", "else")}
     distance_rule = {k: NeverDying.model_json_schema()[k] for k in ("if", "then", "else")}
-    assert feature_rule["then"] == distance_rule["then"] == {
-        "required": ["cap"],
-        "properties": {"cap": {"type": "number"}},
-    }
+    assert (
+        feature_rule["then"]
+        == distance_rule["then"]
+        == {
+            "required": ["cap"],
+            "properties": {"cap": {"type": "number"}},
+        }
+    )
     assert feature_rule["if"]["properties"] == {"infinite": {"const": "cap"}}
     assert distance_rule["if"]["properties"] == {"mode": {"const": "cap"}}
     feature_cap = BettiCurveSpec.model_json_schema()["properties"]["cap"]

@@ -21,7 +21,7 @@ Cap = Annotated[
     Coordinate | None,
     Field(
         validate_default=True,
-        description='Death given to classes that never die, in the units of the diagram '
+        description="Death given to classes that never die, in the units of the diagram "
         'values; required with "cap", and only then.',
     ),
 ]

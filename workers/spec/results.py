@@ -34,9 +34,10 @@ Engine = Literal[
 named in ``versions``, never in the engine's name."""
 
 ENGINES: dict[Engine, str] = {
-    "rips-cut-collapse-float64": "Vietoris-Rips persistence in float64: the filtration cut where the "
-    "relative neighbourhood graph and a subsample bound the deaths, dense graphs reduced by "
-    "edge collapse, then Ripser's reduction (gudhi's build, its version under gudhi)",
+    "rips-cut-collapse-float64": "Vietoris-Rips persistence in float64: the filtration "
+    "cut where the relative neighbourhood graph and a subsample bound the deaths, dense "
+    "graphs reduced by edge collapse, then Ripser's reduction (gudhi's build, its version "
+    "under gudhi)",
     "cubical-lacuna-c": "cubical persistence of pixel or voxel values by lacuna's own C "
     "engine (union-find, Alexander duality, cohomology in 3D)",
     "graph-lacuna-c": "lower-star persistence of node values on a graph by lacuna's own C "
