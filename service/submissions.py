@@ -5,7 +5,6 @@ The array travels next to the job as .npy bytes; the task (small JSON) travels o
 ``sent`` is the request as the client sent it, for the job page (``request_as_sent``).
 """
 
-import hashlib
 import json
 from dataclasses import dataclass
 from typing import Any
@@ -34,8 +33,8 @@ __all__ = [
 SENT_REQUEST_BYTES = 16_384
 """Most bytes of the request kept as sent (its JSON text, large arrays already shortened)."""
 
-_ARRAY_SHOWN_CHARS = 120
-"""Arrays whose compact JSON is longer become a placeholder: their shape and hash."""
+_ARRAY_SHOWN_ITEMS = 24
+"""Arrays (nested lists of numbers) with more numbers become a placeholder with their shape."""
 
 _ITEMS_SHOWN = 32
 """Longer lists of objects or strings show their first items and how many more there are."""
@@ -60,9 +59,10 @@ class Submission:
 
 def request_as_sent(body: Any, media_type: str) -> dict[str, str]:
     """The JSON ``body`` of a request (a multipart request's ``request`` part) as the client
-    sent it, defaults not filled in: its media type and its indented JSON text, each large
-    array replaced by a placeholder such as ``"<5000 × 2 array, sha256 ab12cd34ef56…>"``
-    (the hash of the array's compact JSON), cut at ``SENT_REQUEST_BYTES``."""
+    sent it, defaults not filled in: its media type and its indented JSON text, each array of
+    more than ``_ARRAY_SHOWN_ITEMS`` numbers replaced by its shape, such as
+    ``"<5000 × 2 array; see Input SHA-256>"`` (the page's hash of the stored input), cut at
+    ``SENT_REQUEST_BYTES``."""
     text = _indented(_shortened(body))
     raw = text.encode("utf-8")
     if len(raw) > SENT_REQUEST_BYTES:
@@ -93,34 +93,61 @@ def _shortened(value: Any) -> Any:
         return value[:_TEXT_SHOWN_CHARS] + f"... ({len(value)} characters)"
     if not isinstance(value, list):
         return value
-    shape = _array_shape(value)
-    if shape is not None:
-        compact = json.dumps(value, separators=(",", ":"))
-        if len(compact) <= _ARRAY_SHOWN_CHARS:
-            return value
-        digest = hashlib.sha256(compact.encode("utf-8")).hexdigest()[:12]
-        return f"<{shape} array, sha256 {digest}…>"
+    if _more_items_than(value, _ARRAY_SHOWN_ITEMS):
+        shape = _array_shape(value)
+        if shape is not None:
+            return f"<{shape} array; see Input SHA-256>"
     shown = [_shortened(item) for item in value[:_ITEMS_SHOWN]]
     if len(value) > _ITEMS_SHOWN:
         shown.append(f"<... {len(value) - _ITEMS_SHOWN} more items>")
     return shown
 
 
+_END = object()
+"""End of a list, for ``_more_items_than``."""
+
+
+def _more_items_than(value: list[Any], limit: int) -> bool:
+    """Does ``value`` hold more than ``limit`` items, counted through nested lists? Walks at
+    most ``limit + 1`` of them: the cost does not grow with the array."""
+    count = 0
+    pending = [iter(value)]  # depth first: a row is counted before the next one is looked at
+    while pending:
+        item = next(pending[-1], _END)
+        if item is _END:
+            pending.pop()
+        elif isinstance(item, list):
+            pending.append(iter(item))
+        else:
+            count += 1
+            if count > limit:
+                return True
+    return False
+
+
 def _array_shape(array: list[Any]) -> str | None:
-    """``"5000 × 2"`` for numbers in rows of equal length, ``"5000-item"`` for numbers in
-    ragged rows; None for a list holding a string or an object (not an array)."""
+    """``"5000 × 2"`` for rows of equal length holding numbers, ``"5000-item"`` for ragged
+    rows; None when the first item at the bottom is a string, an object or a boolean (not
+    an array). Only the lengths of rows are read, never each number: a million points cost
+    one pass over their rows."""
     shape = [len(array)]
-    ragged = False
     level = array
-    while level and all(isinstance(row, list) for row in level):
-        widths = {len(row) for row in level}
-        ragged = ragged or len(widths) != 1
-        if not ragged:
-            shape.append(widths.pop())
+    while level and isinstance(level[0], list):
+        try:
+            widths = set(map(len, level))  # a list, string or object: a valid request's rows
+        except TypeError:  # a number beside lists: not an array
+            return None
+        if len(widths) != 1:
+            return f"{len(array)}-item"
+        shape.append(widths.pop())
+        if not shape[-1] or not isinstance(level[0][0], list):
+            level = level[0]
+            break
         level = [item for row in level for item in row]
-    if any(isinstance(item, list | dict | str) for item in level):
+    first = level[0] if level else 0
+    if isinstance(first, bool) or not isinstance(first, int | float | None):
         return None
-    return f"{len(array)}-item" if ragged else " × ".join(str(size) for size in shape)
+    return " × ".join(str(size) for size in shape)
 
 
 def job_submission(

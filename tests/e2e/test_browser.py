@@ -1,7 +1,8 @@
 """The job page in a real headless Chromium (Debian's chromium package) against a real
 ``lacuna serve``: the page loads, names the job and the research-use caution, and shows the
 pictures it references from the plot route (pixels of the H0 and H1 colours in the
-screenshot, which is kept as a test artifact); an unknown job is a page too.
+screenshot, which is kept as a test artifact); a queued or running job's page reloads itself
+and shows a progress bar, an ended job's page does neither; an unknown job is a page too.
 """
 
 import io
@@ -15,6 +16,7 @@ from PIL import Image
 
 from lacuna_client import Client
 from tests.support.synthetic import noisy_circle
+from tests.support.waiting import wait_until
 from workers.pictures.drawing import COLOURS
 
 pytestmark = pytest.mark.e2e
@@ -69,6 +71,7 @@ def test_job_page_loads_and_shows_the_plots(base: str, tmp_path: Path) -> None:
     # The pictures are resources of their own, fetched by the browser from the plot route.
     assert f'src="/v1/jobs/{job}/plot?kind=diagram"' in dom.stdout
     assert "data:image" not in dom.stdout and 'id="pair-counts"' in dom.stdout
+    assert not refreshes(dom.stdout) and "<progress" not in dom.stdout  # it has ended
 
     shot = tmp_path / "job-page.png"
     done = chromium(tmp_path, f"--screenshot={shot}", "--window-size=1280,2000", url)
@@ -80,6 +83,43 @@ def test_job_page_loads_and_shows_the_plots(base: str, tmp_path: Path) -> None:
     assert pixels_near(picture, COLOURS[0]) > 200
     assert pixels_near(picture, COLOURS[1]) > 20
     print(f"screenshot: {shot}")
+
+
+def refreshes(dom: str) -> bool:
+    return '<meta http-equiv="refresh"' in dom
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed")
+def test_an_unfinished_job_page_reloads_itself_with_a_progress_bar(
+    base: str, tmp_path: Path
+) -> None:
+    client = Client(base)
+    # H2 of 2000 random points in 3D: tens of seconds each, so with two workers busy the
+    # third job waits in the queue; all are cancelled once their pages are seen.
+    points = np.random.default_rng(0).uniform(size=(2000, 3))
+    jobs = [client.submit_points(points, {"type": "rips", "max_dim": 2}) for _ in range(3)]
+    try:
+        states = {job: "" for job in jobs}
+
+        def both_seen() -> bool:
+            states.update({job: client.status(job)["status"] for job in jobs})
+            return {"queued", "running"} <= set(states.values())
+
+        wait_until(both_seen, 60, lambda: f"a running and a queued job among {states}")
+        for state in ("running", "queued"):
+            job = next(job for job, seen in states.items() if seen == state)
+            dom = chromium(tmp_path, "--dump-dom", f"{base}/v1/jobs/{job}")
+            assert dom.returncode == 0, dom.stderr[-2000:]
+            assert refreshes(dom.stdout), state
+            assert '<progress id="progress"' in dom.stdout, state
+    finally:
+        for job in jobs:
+            client.cancel(job)
+    wait_until(lambda: client.status(jobs[0])["status"] == "cancelled", 60, "cancelled")
+    dom = chromium(tmp_path, "--dump-dom", f"{base}/v1/jobs/{jobs[0]}")
+    assert dom.returncode == 0, dom.stderr[-2000:]
+    assert "cancelled" in dom.stdout
+    assert not refreshes(dom.stdout) and "<progress" not in dom.stdout
 
 
 @pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed")

@@ -559,6 +559,25 @@ def test_distances_between_jobs(client: FlaskClient, worker: subprocess.Popen[by
         assert matrix_of(answer) == pytest.approx(cdist(stacked, stacked, metric), abs=1e-12)
 
 
+def test_a_matrix_of_jobs_of_one_unit_is_in_that_unit(
+    client: FlaskClient, worker: subprocess.Popen[bytes]
+) -> None:
+    # Bottleneck and Wasserstein distances are lengths in the diagrams' values (L-infinity
+    # between points: common practice), so they share the diagrams' units when there is one.
+    def job(seed: int, units: str | None) -> str:
+        body = rips_job(noisy_circle(20, seed=seed).tolist(), units=units)
+        return str(result_of(client, body)["job_id"])
+
+    in_um = [job(31, "um"), job(32, "um")]
+    for ids, units in [(in_um, "um"), ([*in_um, job(33, "mm")], None), ([job(34, None)], None)]:
+        answer = answered(
+            post(client, DISTANCES, {"metric": "bottleneck", "dim": 0, "job_ids": ids})
+        )
+        assert answer["units"] == units, ids
+    inline = answered(post(client, DISTANCES, {"metric": "bottleneck", "diagrams": [A, B]}))
+    assert inline["units"] is None  # inline diagrams say no units
+
+
 # --- large requests: 202, progress, result ---------------------------------------------------
 
 

@@ -170,6 +170,10 @@ def test_cancel_running_job_stops_it(client: FlaskClient, worker: subprocess.Pop
     assert client.delete(f"/v1/jobs/{job_id}").status_code in (200, 202)
     status = status_once(client, job_id, {"cancelled", "failed", "succeeded"})
     assert status["status"] == "cancelled"
+    # It ended when it was cancelled, after it started (RFC 3339 with a Z, so they order as
+    # text).
+    assert status["started_at"] is not None and status["ended_at"] is not None
+    assert status["started_at"] <= status["ended_at"]
     # Stopped, not left computing in the background: the child that ran it was killed (a
     # finished job leaves its child alive for the next one).
     wait_until(lambda: not running(busy), 60, f"compute child {busy} killed")

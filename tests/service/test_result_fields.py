@@ -132,10 +132,11 @@ def test_the_jobs_above_cover_every_filtration(filtrations: dict[str, dict[str, 
 
 
 def test_each_engine_names_the_distributions_it_ran_on(client: FlaskClient) -> None:
-    # Rips reduces with gudhi's float64 Ripser; a skeleton graph comes from scikit-image;
-    # cubical and graph persistence are lacuna's own C, on numpy and scipy only.
+    # Rips reduces with gudhi's float64 Ripser (named in versions, not in the engine); a
+    # skeleton graph comes from scikit-image; cubical and graph persistence are lacuna's own
+    # C, on numpy and scipy only.
     rips = result_of(client, POINTS)["provenance"]
-    assert rips["engine"] == "rips-gudhi-float64"
+    assert rips["engine"] == "rips-cut-collapse-float64"
     assert set(rips["versions"]) == {"lacuna", "numpy", "scipy", "gudhi"}
     cubical = result_of(client, image("sublevel"))["provenance"]
     assert cubical["engine"] == "cubical-lacuna-c"

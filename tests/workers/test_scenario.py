@@ -5,6 +5,7 @@ ripser, scipy and the readers of each file format."""
 import csv
 import json
 import math
+import re
 import subprocess
 import sys
 import time
@@ -566,6 +567,24 @@ def test_demo_direction_is_node_order_on_the_graph_and_array_axis_order_on_its_m
     tree = cKDTree(nodes)
     assert tree.query(skeleton.coordinates[:, ::-1])[0].max() <= reach
     assert np.mean(tree.query(skeleton.coordinates)[0] <= reach) < 0.5
+
+
+README = Path(__file__).resolve().parents[2] / "README.md"
+
+
+def test_readme_commands_give_the_demo_direction_of_each_input() -> None:
+    # The rule tested above, applied to every README command (continuation lines joined):
+    # the direction is [0, 1] on the demo graphs (nodes (x, y)), [1, 0] on the demo masks
+    # and their skeletons (array-axis order (row, column) = (y, x)).
+    commands = README.read_text(encoding="utf-8").replace("\\\n", " ").splitlines()
+    checked = 0
+    for command in commands:
+        directions = re.findall(r'"direction": (\[[^\]]*\])', command)
+        for demo, expected in (("demo/masks/", "[1, 0]"), ("demo/network/", "[0, 1]")):
+            if demo in command and directions:
+                assert set(directions) == {expected}, command
+                checked += 1
+    assert checked >= 1  # the skeleton command of the README is among them
 
 
 @pytest.mark.parametrize(("branch", "fusion"), [(0.02, 0.05), (0.08, 0.6)])

@@ -61,6 +61,7 @@ def compute(
             "dim": task.dim,
             "never_dying": task.never_dying,
             "ground_metric": "l_infinity" if diagram_metric else None,
+            "units": payload.input.units,  # the shared units of the diagrams (submission)
             "count": task.count,
             "matrix": [
                 [float(v) if ok else None for v, ok in zip(row, oks, strict=True)]

@@ -30,10 +30,6 @@ Step = Callable[[], None]
 """Called as each feature vector begins (a step of the job's progress)."""
 
 
-def _no_step() -> None:
-    """No progress to report."""
-
-
 def feature_values(spec: FeatureSpec, pairs: np.ndarray) -> np.ndarray:
     """The values of ``spec`` on one diagram (k, 2) with inf deaths, shaped as the spec says."""
     finite = finite_part(pairs, spec.infinite, spec.cap)
@@ -65,7 +61,7 @@ def layout_id_of(spec_ids: Sequence[str]) -> str:
 
 
 def feature_vectors(
-    specs: Sequence[FeatureSpec], diagrams: Mapping[int, np.ndarray], step: Step = _no_step
+    specs: Sequence[FeatureSpec], diagrams: Mapping[int, np.ndarray], step: Step
 ) -> tuple[list[FeatureVector], list[LayoutEntry], str | None]:
     """Vectors of ``specs`` on ``diagrams`` (dimension -> (k, 2)), their layout and its id;
     ``step`` is called before each."""
@@ -77,7 +73,7 @@ def feature_vectors(
 def direction_feature_vectors(
     specs: Sequence[FeatureSpec],
     diagram_sets: Sequence[tuple[list[float], Mapping[int, np.ndarray]]],
-    step: Step = _no_step,
+    step: Step,
 ) -> tuple[list[FeatureVector], list[LayoutEntry], str | None]:
     """Vectors of ``specs`` on each (direction, diagrams) in turn, direction-major; ``step``
     is called before each.

@@ -30,10 +30,11 @@ from workers.core.diagram_distances import (
 from workers.spec.distances import DEFAULT_DIRECTIONS, NullEntry
 from workers.spec.jobs import DistanceTask
 
-__all__ = ["Report", "distance_matrix", "usable_cores"]
+__all__ = ["PairsDone", "distance_matrix", "usable_cores"]
 
-Report = Callable[[int, int], None]
-"""(done, total) units of work; called as chunks finish."""
+PairsDone = Callable[[int, int], None]
+"""Called with (done, total) pairs of items as chunks finish; the distance job turns it into
+its progress (``workers.compute.Report``)."""
 
 _FAILED = (1 << 63) - 1
 """Chunk index that marks an error message instead of values."""
@@ -50,7 +51,7 @@ def usable_cores() -> int:
 
 
 def distance_matrix(
-    items: Sequence[np.ndarray], task: DistanceTask, report: Report, processes: int
+    items: Sequence[np.ndarray], task: DistanceTask, report: PairsDone, processes: int
 ) -> tuple[np.ndarray, list[NullEntry]]:
     """(N, N) distances of ``items`` under ``task``'s metric (nan: undefined, inf: infinite),
     and the reason for each entry that is not finite, above the diagonal."""
@@ -112,7 +113,7 @@ def _vector_nulls(matrix: np.ndarray) -> list[NullEntry]:
 
 
 def _fan_out(
-    compute: Callable[[np.ndarray], np.ndarray], total: int, processes: int, report: Report
+    compute: Callable[[np.ndarray], np.ndarray], total: int, processes: int, report: PairsDone
 ) -> np.ndarray:
     """compute(indices) over 0..total-1 in chunks, on up to ``processes`` forked processes."""
     chunks = np.array_split(np.arange(total), max(1, -(-total // defaults.CHUNK_PAIRS)))

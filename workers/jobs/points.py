@@ -41,7 +41,7 @@ def compute(
         sets=[DiagramSet(dict(enumerate(diagrams)))],
         convention="edge_length",
         coordinate_units=payload.input.units,
-        engine="rips-gudhi-float64",
+        engine="rips-cut-collapse-float64",
         limit_pointer="/filtration",
         advice="lower max_dim or max_edge, or subsample",
         provenance=provenance,

@@ -39,7 +39,13 @@ class Steps:
         self.total += count
 
     def begin(self, stage: str) -> None:
-        """The next step, ``stage``, begins: the steps before it are over."""
+        """The next step, ``stage``, begins: the steps before it are over. A step beyond the
+        planned total is a bug of the job's plan (the bar would pass its end): RuntimeError."""
+        if self.begun >= self.total:
+            raise RuntimeError(
+                f"step {stage!r} begins after all {self.total} planned steps have begun; "
+                "plan it before the first step begins"
+            )
         self._report(self.begun, self.total, stage)
         self.begun += 1
 

@@ -92,7 +92,7 @@ FILTRATIONS: tuple[FiltrationCapability, ...] = (
         inputs=["points"],
         value_conventions=["edge_length"],
         values_are_lengths=True,
-        engines=["rips-gudhi-float64"],
+        engines=["rips-cut-collapse-float64"],
     ),
     FiltrationCapability(
         type="cubical",

@@ -13,6 +13,7 @@ from pydantic import (
 )
 
 from workers.spec.capabilities import Limits
+from workers.spec.never_dying import Cap, cap_rule, checked_cap
 from workers.spec.numbers import Coordinate, FiniteFloat
 from workers.spec.problems import FieldError
 from workers.spec.results import Diagram, Dimension, Pair, Provenance, pair_errors
@@ -41,14 +42,6 @@ DEFAULT_DIRECTIONS = 50
 Metric = Literal["bottleneck", "wasserstein", "sliced_wasserstein", "euclidean", "cosine"]
 
 
-_CAP_GOES_WITH_MODE: dict[str, Any] = {
-    "if": {"required": ["mode"], "properties": {"mode": {"const": "cap"}}},
-    "then": {"required": ["cap"], "properties": {"cap": {"type": "number"}}},
-    "else": {"properties": {"cap": {"type": "null"}}},
-}
-"""The OpenAPI document's statement of ``NeverDying._cap_goes_with_mode``."""
-
-
 class NeverDying(BaseModel):
     """How a diagram metric treats classes that never die (death null).
 
@@ -60,7 +53,7 @@ class NeverDying(BaseModel):
     like every other point, to points or to the diagonal, and every distance is finite.
     """
 
-    model_config = ConfigDict(extra="forbid", json_schema_extra=_CAP_GOES_WITH_MODE)
+    model_config = ConfigDict(extra="forbid", json_schema_extra=cap_rule("mode"))
 
     mode: Annotated[
         Literal["separate", "drop", "cap"],
@@ -69,24 +62,12 @@ class NeverDying(BaseModel):
             "ended at `cap`."
         ),
     ] = "separate"
-    cap: Annotated[
-        Coordinate | None,
-        Field(
-            validate_default=True,
-            description='Death given to classes that never die; required with "cap", in the '
-            "units of the diagram values.",
-        ),
-    ] = None
+    cap: Cap = None
 
     @field_validator("cap")
     @classmethod
     def _cap_goes_with_mode(cls, cap: float | None, info: ValidationInfo) -> float | None:
-        mode = info.data.get("mode")
-        if mode == "cap" and cap is None:
-            raise ValueError('mode "cap" needs a cap value')
-        if mode in ("separate", "drop") and cap is not None:
-            raise ValueError('cap is only used with mode "cap"')
-        return cap
+        return checked_cap("mode", info.data.get("mode"), cap)
 
 
 def _diagram_kind(value: Any) -> str | None:
@@ -241,6 +222,14 @@ class DistanceResult(BaseModel):
     ground_metric: Annotated[
         Literal["l_infinity"] | None,
         Field(description="Ground metric between diagram points (diagram metrics only)."),
+    ] = None
+    units: Annotated[
+        str | None,
+        Field(
+            description="Units of the distances of a diagram metric: the diagrams' units when "
+            "every job compared has the same one (job_ids); null for inline diagrams, for "
+            "jobs of different or no units, and for vector metrics."
+        ),
     ] = None
     count: int
     matrix: Annotated[

@@ -24,6 +24,7 @@ from pydantic import (
 )
 
 from workers.spec.arrays import canonical_sha256
+from workers.spec.never_dying import Cap, cap_rule, checked_cap
 from workers.spec.numbers import Coordinate, FiniteFloat
 from workers.spec.problems import FieldError
 from workers.spec.results import Dimension
@@ -69,18 +70,10 @@ Range = Annotated[
 Count = Annotated[int, Field(strict=True, ge=1)]
 
 
-_CAP_GOES_WITH_INFINITE: dict[str, Any] = {
-    "if": {"required": ["infinite"], "properties": {"infinite": {"const": "cap"}}},
-    "then": {"required": ["cap"], "properties": {"cap": {"type": "number"}}},
-    "else": {"properties": {"cap": {"type": "null"}}},
-}
-"""The OpenAPI document's statement of ``_Feature._cap_goes_with_infinite``."""
-
-
 class _Feature(BaseModel):
     """Fields every feature spec has."""
 
-    model_config = ConfigDict(extra="forbid", json_schema_extra=_CAP_GOES_WITH_INFINITE)
+    model_config = ConfigDict(extra="forbid", json_schema_extra=cap_rule("infinite"))
 
     dim: Dimension
     spec_id: Annotated[
@@ -99,23 +92,12 @@ class _Feature(BaseModel):
             "out)."
         ),
     ] = "drop"
-    cap: Annotated[
-        Coordinate | None,
-        Field(
-            validate_default=True,
-            description='Death given to classes that never die; required with "cap".',
-        ),
-    ] = None
+    cap: Cap = None
 
     @field_validator("cap")
     @classmethod
     def _cap_goes_with_infinite(cls, cap: float | None, info: ValidationInfo) -> float | None:
-        infinite = info.data.get("infinite")
-        if infinite == "cap" and cap is None:
-            raise ValueError('infinite "cap" needs a cap value')
-        if infinite == "drop" and cap is not None:
-            raise ValueError('cap is only used with infinite "cap"')
-        return cap
+        return checked_cap("infinite", info.data.get("infinite"), cap)
 
 
 class LinearWeight(BaseModel):

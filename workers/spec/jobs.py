@@ -28,7 +28,6 @@ __all__ = [
     "StoredType",
     "cancel_key",
     "input_key",
-    "rfc3339",
 ]
 
 JOB_FUNCTION = "workers.jobs.run"
@@ -62,8 +61,10 @@ class JobState(StrEnum):
 
 
 class Progress(BaseModel):
-    """``done`` of ``total`` units of work: steps of a persistence job (checked input,
-    filtration, persistence, each feature, the result), pairs of a distance matrix."""
+    """``done`` of ``total`` units of work: steps of a persistence job (a subsample, a
+    network or skeleton graph and its descriptors when the job has them, the filtration's
+    values unless they are the input's own, persistence, each feature, the result; per
+    direction for a sweep), pairs of a distance matrix."""
 
     done: int
     total: int
@@ -76,7 +77,7 @@ class Progress(BaseModel):
     ] = None
 
 
-def rfc3339(moment: datetime) -> str:
+def _rfc3339(moment: datetime) -> str:
     """``moment`` in UTC as RFC 3339 with milliseconds and a Z: 2026-12-04T19:02:03.123Z."""
     utc = moment.replace(tzinfo=UTC) if moment.tzinfo is None else moment.astimezone(UTC)
     return utc.isoformat(timespec="milliseconds").replace("+00:00", "Z")
@@ -84,7 +85,7 @@ def rfc3339(moment: datetime) -> str:
 
 Timestamp = Annotated[
     datetime,
-    PlainSerializer(rfc3339, return_type=str, when_used="json"),
+    PlainSerializer(_rfc3339, return_type=str, when_used="json"),
     Field(
         description="RFC 3339 in UTC with milliseconds and a Z, e.g. 2026-12-04T19:02:03.123Z.",
         json_schema_extra={"format": "date-time"},

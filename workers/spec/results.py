@@ -15,14 +15,14 @@ BASE_PACKAGES = ("lacuna", "numpy", "scipy")
 """Distributions (importlib.metadata names) every job's code runs on, so every provenance
 names them."""
 
-ENGINE_PACKAGES: dict[str, tuple[str, ...]] = {"rips-gudhi-float64": ("gudhi",)}
+ENGINE_PACKAGES: dict[str, tuple[str, ...]] = {"rips-cut-collapse-float64": ("gudhi",)}
 """Distributions an engine runs on beyond ``BASE_PACKAGES``."""
 
 SKELETON_PACKAGES = ("scikit-image",)
 """Distributions a mask's skeleton graph is made with (scikit-image skeletonize)."""
 
 Engine = Literal[
-    "rips-gudhi-float64",
+    "rips-cut-collapse-float64",
     "cubical-lacuna-c",
     "graph-lacuna-c",
     "bottleneck-lacuna",
@@ -30,11 +30,18 @@ Engine = Literal[
     "sliced-wasserstein-lacuna",
     "vector-lacuna",
 ]
-"""lacuna's own name for the method that computed a result."""
+"""lacuna's own name for the method that computed a result; the libraries it runs on are
+named in ``versions``, never in the engine's name."""
+
+FormerEngine = Literal["rips-gudhi-float64"]
+"""Names engines had before, still in results stored before the rename (kept for
+``result_ttl_s``, and across restarts): the same method as ``rips-cut-collapse-float64``."""
 
 ENGINES: dict[Engine, str] = {
-    "rips-gudhi-float64": "Vietoris-Rips persistence: lacuna's filtration cuts and edge "
-    "collapse, reduced by the float64 Ripser algorithm built into gudhi",
+    "rips-cut-collapse-float64": "Vietoris-Rips persistence in float64: the filtration "
+    "cut where the relative neighbourhood graph and a subsample bound the deaths, dense "
+    "graphs reduced by edge collapse, then Ripser's reduction (gudhi's build, its version "
+    "under gudhi)",
     "cubical-lacuna-c": "cubical persistence of pixel or voxel values by lacuna's own C "
     "engine (union-find, Alexander duality, cohomology in 3D)",
     "graph-lacuna-c": "lower-star persistence of node values on a graph by lacuna's own C "
@@ -176,11 +183,12 @@ class Provenance(BaseModel):
         ),
     ]
     engine: Annotated[
-        Engine | None,
+        Engine | FormerEngine | None,
         Field(
             description="lacuna's name for the method that computed the diagrams or the "
             "distances (see engines in /v1/capabilities); null for given diagrams and for "
-            "graph jobs without a filtration."
+            'graph jobs without a filtration. "rips-gudhi-float64" is the former name of '
+            '"rips-cut-collapse-float64", in results computed before the rename.'
         ),
     ] = None
     elapsed_s: Annotated[float, Field(description="Wall time of the computation itself.")]
