@@ -36,6 +36,20 @@ def _own_redis_only(redis_server: str) -> None:
     """Start the suite's Redis before any test, so nothing falls back to another one."""
 
 
+@pytest.fixture(scope="session", autouse=True)
+def _own_state_folder(tmp_path_factory: pytest.TempPathFactory) -> Iterator[None]:
+    """A `lacuna serve` that a test starts without --data-dir keeps its state under the
+    suite's own XDG_STATE_HOME, never in the user's ~/.local/state/lacuna (whose lock would
+    stop the user's own server)."""
+    before = os.environ.get("XDG_STATE_HOME")
+    os.environ["XDG_STATE_HOME"] = str(tmp_path_factory.mktemp("state"))
+    yield
+    if before is None:
+        os.environ.pop("XDG_STATE_HOME", None)
+    else:
+        os.environ["XDG_STATE_HOME"] = before
+
+
 @pytest.fixture
 def redis_url(redis_server: str) -> str:
     """URL of the test database, flushed before each test (it holds nothing else)."""

@@ -109,19 +109,23 @@ def serving(memory_mb: int, max_wait_s: int) -> Iterator[tuple[str, subprocess.P
     env = {k: v for k, v in os.environ.items() if k != "LACUNA_REDIS_URL"}
     env.update(LACUNA_QUEUE=f"fuzz-{uuid.uuid4().hex[:12]}", LACUNA_MAX_WAIT_S=str(max_wait_s))
     command = [sys.executable, "-m", "service", "serve", "--host", "127.0.0.1"]
-    process = subprocess.Popen(
-        [*command, "--port", str(port), "--local-workers", "1", "--http-workers", "1"],
-        env=env,
-        stdout=subprocess.DEVNULL,
-        stderr=subprocess.DEVNULL,
-        preexec_fn=_data_limit(memory_mb),
-    )
-    base = f"http://127.0.0.1:{port}"
-    try:
-        wait_ready(base, workers=1)
-        yield base, process
-    finally:
-        stop(process, signal.SIGTERM)
+    # A data directory of its own: never the user's state folder (whose lock would refuse the
+    # user's own `lacuna serve`, and whose append-only file every run would grow and reload).
+    with tempfile.TemporaryDirectory(prefix="lacuna-fuzz-data-") as data_dir:
+        process = subprocess.Popen(
+            [*command, "--port", str(port), "--local-workers", "1", "--http-workers", "1"]
+            + ["--data-dir", data_dir],
+            env=env,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+            preexec_fn=_data_limit(memory_mb),
+        )
+        base = f"http://127.0.0.1:{port}"
+        try:
+            wait_ready(base, workers=1)
+            yield base, process
+        finally:
+            stop(process, signal.SIGTERM)
 
 
 @dataclass

@@ -1,6 +1,6 @@
 """Engines are named by lacuna, after their method; the libraries they use are in versions."""
 
-from workers.spec.results import ALL_PACKAGES, ENGINE_PACKAGES, ENGINES, Provenance
+from workers.spec.results import ALL_PACKAGES, ENGINE_PACKAGES, ENGINES
 
 
 def test_no_engine_is_named_after_a_library_it_runs_on() -> None:
@@ -13,12 +13,3 @@ def test_every_engine_is_described_and_its_libraries_are_known() -> None:
     assert all(ENGINES[engine] for engine in ENGINES)
     assert set(ENGINE_PACKAGES) <= set(ENGINES)
     assert {p for packages in ENGINE_PACKAGES.values() for p in packages} <= set(ALL_PACKAGES)
-
-
-def test_results_stored_under_a_former_engine_name_still_validate() -> None:
-    # Results outlive an upgrade (result_ttl_s, and the embedded Redis keeps them across
-    # restarts), so the document keeps accepting the name they were computed under.
-    stored = {"input_sha256": "0" * 64, "request_sha256": "0" * 64, "versions": {}}
-    former = Provenance.model_validate({**stored, "engine": "rips-gudhi-float64", "elapsed_s": 0})
-    assert former.engine == "rips-gudhi-float64"
-    assert "rips-gudhi-float64" not in ENGINES  # never given to a new result

@@ -33,10 +33,6 @@ Engine = Literal[
 """lacuna's own name for the method that computed a result; the libraries it runs on are
 named in ``versions``, never in the engine's name."""
 
-FormerEngine = Literal["rips-gudhi-float64"]
-"""Names engines had before, still in results stored before the rename (kept for
-``result_ttl_s``, and across restarts): the same method as ``rips-cut-collapse-float64``."""
-
 ENGINES: dict[Engine, str] = {
     "rips-cut-collapse-float64": "Vietoris-Rips persistence in float64: the filtration "
     "cut where the relative neighbourhood graph and a subsample bound the deaths, dense "
@@ -183,12 +179,11 @@ class Provenance(BaseModel):
         ),
     ]
     engine: Annotated[
-        Engine | FormerEngine | None,
+        Engine | None,
         Field(
             description="lacuna's name for the method that computed the diagrams or the "
             "distances (see engines in /v1/capabilities); null for given diagrams and for "
-            'graph jobs without a filtration. "rips-gudhi-float64" is the former name of '
-            '"rips-cut-collapse-float64", in results computed before the rename.'
+            "graph jobs without a filtration."
         ),
     ] = None
     elapsed_s: Annotated[float, Field(description="Wall time of the computation itself.")]
