@@ -211,7 +211,7 @@ def test_a_distance_process_beyond_its_share_fails_the_job() -> None:
 
 
 _USE_UNDER_A_CAP = """
-import sys, threading
+import os, sys, threading, time
 from workers.memory import MIB, address_space_cap
 
 CHUNK = 64 * 1024  # below malloc's mmap threshold: served from an arena
@@ -228,7 +228,12 @@ if sys.argv[1] == "main-arena":
 elif sys.argv[1] == "thread-arena":
     worker = threading.Thread(target=hold, args=(40 * MIB,))
     worker.start()
-    worker.join()  # its arena, 40 MiB of it used once, is free for the main thread
+    worker.join()
+    # join() returns once Python is done with the thread, before the thread itself has exited
+    # and glibc has put its arena (40 MiB of it used once) on the free list for the main
+    # thread (malloc/arena.c, arena_thread_freeres): wait until the kernel has no such task.
+    while len(os.listdir("/proc/self/task")) > 1:
+        time.sleep(0.001)
 got, kept = 0, []
 try:
     with address_space_cap(int(sys.argv[2]) * MIB):
