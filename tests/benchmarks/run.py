@@ -1,6 +1,6 @@
 """``make bench``: lacuna against reference libraries, measured side by side in one run.
 
-Ten tables, all ratios (no absolute targets in tests):
+Eleven tables, all ratios (no absolute targets in tests):
 
 1. Rips engine (H0+H1, full filtration) against ripser, gudhi with edge collapse and
    giotto-ph, on uniform points and noisy circles; diagrams are checked equal.
@@ -15,6 +15,8 @@ Ten tables, all ratios (no absolute targets in tests):
    skeletonize alone (tests/benchmarks/graphs.py).
 10. Start-up of the installed `lacuna --help` against `python -c pass` and importing requests
     and numpy (tests/benchmarks/startup.py).
+11. Dowker persistence of two populations (2k/500 to 20k/5k points) against a Python loop
+    filling a gudhi SimplexTree (tests/benchmarks/dowker.py).
 
 Options: ``--quick`` skips n = 2000 (Rips) and 5000 (one pair); ``--cap S`` bounds each
 reference run (default 120 s); ``--only`` runs one group of tables.
@@ -40,6 +42,7 @@ import numpy as np
 import requests
 
 from tests.benchmarks.cubical import cubical_table
+from tests.benchmarks.dowker import dowker_table
 from tests.benchmarks.engines import REFERENCES, Engine, lacuna, ripser
 from tests.benchmarks.graphs import graph_table, skeleton_table
 from tests.benchmarks.startup import startup_table
@@ -244,7 +247,16 @@ def main() -> None:
     parser.add_argument("--cap", type=float, default=120.0, help="seconds per reference run")
     parser.add_argument(
         "--only",
-        choices=["engine", "service", "features", "distances", "cubical", "graphs", "cli"],
+        choices=[
+            "engine",
+            "service",
+            "features",
+            "distances",
+            "cubical",
+            "graphs",
+            "cli",
+            "dowker",
+        ],
         default=None,
     )
     args = parser.parse_args()
@@ -265,6 +277,8 @@ def main() -> None:
         skeleton_table(args.cap)
     if args.only in (None, "cli"):
         startup_table(cap=args.cap)
+    if args.only in (None, "dowker"):
+        dowker_table(args.cap)
 
 
 if __name__ == "__main__":
