@@ -515,6 +515,16 @@ def test_layout_refuses_parameters_out_of_range(arguments: dict[str, object], fi
     assert caught.value.field == field
 
 
+def test_layout_that_cannot_be_packed_in_its_rounds_is_refused(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # The guard behind MAX_PACKING: with one round of candidates, 2000 cells do not fit.
+    monkeypatch.setattr(cell_module, "_MAX_ROUNDS", 1)
+    with pytest.raises(ParameterError) as caught:
+        two_population_layout("mixed", 1600, 400, 0.1, 0)
+    assert caught.value.field == "/region"
+
+
 def immune_near_tumour(kind: str, seed: int, mixing: float = 0.05) -> float:
     """The fraction of immune cells with a tumour cell within two cell spacings (28 um), by
     workers.core.cell_mixing (itself checked against scipy's cdist in tests/core)."""
