@@ -34,7 +34,7 @@ def cells(tmp_path_factory: pytest.TempPathFactory) -> list[Path]:
     folder = tmp_path_factory.mktemp("demo")
     done = run("demo", "cells", "--out", str(folder), "--count", "50")
     assert done.returncode == 0, done.stderr
-    files = sorted(folder.glob("*.csv"))
+    files = sorted(folder.glob("cells-*.csv"))
     assert len(files) == 50
     return files
 

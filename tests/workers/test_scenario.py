@@ -25,6 +25,7 @@ from service.extension import limits_of
 from service.graphml import decode_graph
 from service.settings import Settings
 from service.uploads import decode_array
+from workers.core.cell_mixing import mixing_descriptors
 from workers.core.errors import ParameterError
 from workers.core.network import edge_lengths, network_descriptors
 from workers.core.skeleton_graph import skeleton_graph
@@ -36,7 +37,7 @@ from workers.scenario.capillaries import (
     capillary_network,
     capillary_request,
 )
-from workers.scenario.cells import cell_layout
+from workers.scenario.cells import CLASS_NAMES, cell_layout, two_population_layout
 from workers.scenario.vessel_masks import network_mask, tube_volume, vessel_image
 from workers.spec import JobRequest
 from workers.spec.kinds import GraphArrays, kind_of, request_errors
@@ -440,6 +441,141 @@ def test_cell_patterns_are_told_apart_by_their_h0_diagrams() -> None:
         assert mixed <= 2  # one spread-out group, at most a few cells astray
 
 
+# Two-population layouts at tissue spacing --------------------------------------------------
+
+LAYOUTS = ("mixed", "excluded", "ringed")
+SPACING = math.sqrt(cell_module.CELL_AREA)  # about 14 um between neighbouring cells
+
+
+@pytest.mark.parametrize("kind", LAYOUTS)
+def test_layout_counts_hard_core_region_and_spacing(kind: str) -> None:
+    points, labels = two_population_layout(kind, 1600, 400, 0.05, 3)
+    assert points.shape == (2000, 2) and points.dtype == np.float64
+    assert labels.dtype == np.int64 and labels.tolist() == [0] * 1600 + [1] * 400
+    assert CLASS_NAMES == ("tumour", "immune")
+    tree = cKDTree(points)
+    nearest, _ = tree.query(points, k=2)  # the first neighbour is the cell itself
+    assert nearest[:, 1].min() >= cell_module.MIN_DISTANCE  # the hard core holds
+    # Tissue spacing (the brief: about 10 to 15 um between neighbouring cells).
+    assert 9.5 < np.median(nearest[:, 1]) < 13.0
+    # The default region: the square giving each cell CELL_AREA (around the disc for ringed).
+    side = math.sqrt(2000 * cell_module.CELL_AREA)
+    if kind == "ringed":
+        side = 2 * math.sqrt(2000 * cell_module.CELL_AREA / math.pi)
+        radius = np.hypot(*(points - side / 2).T)
+        assert radius.max() <= side / 2
+    assert points.min() >= 0 and points.max() <= side
+
+
+@pytest.mark.parametrize("kind", LAYOUTS)
+def test_layout_same_seed_same_layout_and_different_seeds_differ(kind: str) -> None:
+    # Common practice: a seeded generator (numpy default_rng) replays exactly.
+    a, b, c = (two_population_layout(kind, 300, 100, 0.1, seed) for seed in (5, 5, 6))
+    assert np.array_equal(a[0], b[0]) and np.array_equal(a[1], b[1])
+    assert not np.array_equal(a[0], c[0])
+
+
+def test_layout_in_a_given_region_and_one_cell_of_a_class() -> None:
+    points, labels = two_population_layout("excluded", 1, 1, 0.0, 0, region=(300.0, 100.0))
+    assert labels.tolist() == [0, 1]
+    # A sharp boundary (mixing 0): the immune cell is the one nearer the edge x = width.
+    assert points[1, 0] > points[0, 0]
+    points, _ = two_population_layout("mixed", 50, 20, 1.0, 0, region=(300.0, 100.0))
+    assert np.all((points >= 0) & (points <= (300.0, 100.0)))
+
+
+@pytest.mark.parametrize(
+    ("arguments", "field"),
+    [
+        ({"kind": "striped"}, "/kind"),
+        ({"n_first": 0}, "/n_first"),
+        ({"n_second": 1.5}, "/n_second"),
+        ({"n_second": True}, "/n_second"),
+        ({"mixing": -0.1}, "/mixing"),
+        ({"mixing": 1.5}, "/mixing"),
+        ({"mixing": float("nan")}, "/mixing"),
+        ({"region": (100.0, 0.0)}, "/region"),
+        ({"region": (100.0,)}, "/region"),
+        ({"region": (100.0, float("inf"))}, "/region"),
+        # 200 cells of hard-core discs 9 um wide cover 0.51 of 100 x 250 um: more than allowed.
+        ({"region": (100.0, 250.0)}, "/region"),
+    ],
+)
+def test_layout_refuses_parameters_out_of_range(arguments: dict[str, object], field: str) -> None:
+    given: dict[str, object] = {
+        "kind": "mixed",
+        "n_first": 150,
+        "n_second": 50,
+        "mixing": 0.1,
+        "seed": 0,
+    }
+    given.update(arguments)
+    with pytest.raises(ParameterError) as caught:
+        two_population_layout(**given)  # type: ignore[arg-type]
+    assert caught.value.field == field
+
+
+def test_layout_that_cannot_be_packed_in_its_rounds_is_refused(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # The guard behind MAX_PACKING: with one round of candidates, 2000 cells do not fit.
+    monkeypatch.setattr(cell_module, "_MAX_ROUNDS", 1)
+    with pytest.raises(ParameterError) as caught:
+        two_population_layout("mixed", 1600, 400, 0.1, 0)
+    assert caught.value.field == "/region"
+
+
+def immune_near_tumour(kind: str, seed: int, mixing: float = 0.05) -> float:
+    """The fraction of immune cells with a tumour cell within two cell spacings (28 um), by
+    workers.core.cell_mixing (itself checked against scipy's cdist in tests/core)."""
+    points, labels = two_population_layout(kind, 2000, 500, mixing, seed)
+    found = mixing_descriptors(points, labels, CLASS_NAMES, [2 * SPACING])
+    return found.pairs[("immune", "tumour")].fraction_within[0]
+
+
+def test_layouts_differ_the_way_they_are_named() -> None:
+    for seed in range(3):
+        near = {kind: immune_near_tumour(kind, seed) for kind in LAYOUTS}
+        # Geometry (from the layouts' definitions): interspersed immune cells all have tumour
+        # neighbours. The ring holds the outer 0.2 of the disc's area, 1 - sqrt(0.8) = 0.106
+        # of its radius of 399 um: 42 um, 3 spacings, so about 2/3 of it lies within 2
+        # spacings of the core. The band along one edge is 0.2 of 707 um, 10 spacings, so
+        # about 2/10 of it does (measured 0.57-0.61 and 0.19-0.21 over these seeds).
+        assert near["mixed"] > 0.95
+        assert 0.45 < near["ringed"] < 0.75
+        assert 0.1 < near["excluded"] < 0.3
+        assert near["mixed"] > near["ringed"] > near["excluded"]
+        # Ringed: immune cells further from the centre than tumour cells (median radius). In a
+        # uniform disc of radius R the fraction within r is (r/R)^2 (area law); tumour cells
+        # fill the inner 0.8 of the area (median radius sqrt(0.4) R), immune cells the outer
+        # 0.2 (median sqrt(0.9) R): a ratio of sqrt(0.9 / 0.4) = 1.5; labels at random give 1.
+        for kind, low, high in (("ringed", 1.4, 1.6), ("mixed", 0.9, 1.1)):
+            points, labels = two_population_layout(kind, 2000, 500, 0.05, seed)
+            radius = np.hypot(*(points - points.mean(axis=0)).T)
+            ratio = np.median(radius[labels == 1]) / np.median(radius[labels == 0])
+            assert low < ratio < high, (kind, ratio)
+        # Excluded: the immune cells beyond the tumour cells along x.
+        points, labels = two_population_layout("excluded", 2000, 500, 0.05, seed)
+        assert np.quantile(points[labels == 1, 0], 0.1) > np.quantile(points[labels == 0, 0], 0.9)
+
+
+def test_mixing_mixes() -> None:
+    # mixing 1 gives labels at random whatever the layout: then excluded is as mixed as mixed.
+    assert immune_near_tumour("excluded", 0, mixing=1.0) > 0.95
+    assert immune_near_tumour("excluded", 0, mixing=0.3) > immune_near_tumour("excluded", 0)
+
+
+def test_layout_of_20000_and_5000_cells_is_quick() -> None:
+    for kind in LAYOUTS:
+        started = time.perf_counter()
+        points, labels = two_population_layout(kind, 20_000, 5_000, 0.05, 1)
+        elapsed = time.perf_counter() - started
+        print(f"two_population_layout {kind} 20000 + 5000: {elapsed:.2f} s")
+        assert elapsed < 5.0
+        assert np.bincount(labels).tolist() == [20_000, 5_000]
+        assert cKDTree(points).query(points, k=2)[0][:, 1].min() >= cell_module.MIN_DISTANCE
+
+
 # Vessel masks and images ----------------------------------------------------------------
 
 
@@ -712,7 +848,8 @@ DEMO_SEED = 11
 
 EXPECTED_FILES = {
     "network": {f"network-{stem}.{ext}" for stem in NETWORK_STEMS for ext in ("json", "graphml")},
-    "cells": {f"cells-{pattern}-{k}.csv" for pattern in PATTERNS for k in range(4)},
+    "cells": {f"cells-{pattern}-{k}.csv" for pattern in PATTERNS for k in range(4)}
+    | {f"layout-{kind}.{ext}" for kind in LAYOUTS for ext in ("csv", "geojson")},
     "masks": {f"vessels-{stem}.png" for stem in NETWORK_STEMS[:3]}
     | {f"tubes-{k}.tif" for k in range(3)},
     "images": {
@@ -785,6 +922,38 @@ def test_cell_tables_read_back_with_the_csv_module(demo: Path) -> None:
         assert np.max(np.abs(table_points - points)) <= 5e-4  # 3 decimals
 
 
+def test_layout_files_read_back_as_csv_and_geojson(demo: Path) -> None:
+    readme = (demo / "cells" / "README.txt").read_text(encoding="utf-8")
+    assert "NOT\nlongitude and latitude" in readme and "RFC 7946" in readme
+    for kind in LAYOUTS:
+        points, labels = two_population_layout(kind, 2000, 500, 0.05, DEMO_SEED)
+        classes = [CLASS_NAMES[code] for code in labels.tolist()]
+        with (demo / "cells" / f"layout-{kind}.csv").open(newline="", encoding="utf-8") as table:
+            reader = csv.DictReader(table)  # reference reader: the csv module
+            rows = list(reader)
+        assert reader.fieldnames == ["x", "y", "class"]
+        assert [row["class"] for row in rows] == classes
+        table_points = np.array([[float(row["x"]), float(row["y"])] for row in rows])
+        assert np.max(np.abs(table_points - points)) <= 5e-4  # 3 decimals
+        # GeoJSON (RFC 7946): a FeatureCollection (3.3) of Features (3.2) with Point
+        # geometries (3.1.2) whose coordinates are a position of two numbers (3.1.1), read by
+        # the json module.
+        collection = json.loads((demo / "cells" / f"layout-{kind}.geojson").read_bytes())
+        assert set(collection) == {"type", "features"}
+        assert collection["type"] == "FeatureCollection"
+        features = collection["features"]
+        assert len(features) == 2500
+        for feature in features:
+            assert set(feature) == {"type", "geometry", "properties"}
+            assert feature["type"] == "Feature"
+            assert feature["geometry"]["type"] == "Point"
+            position = feature["geometry"]["coordinates"]
+            assert len(position) == 2 and all(type(v) is float for v in position)
+        assert [f["properties"] for f in features] == [{"class": name} for name in classes]
+        geo_points = np.array([f["geometry"]["coordinates"] for f in features])
+        assert np.array_equal(geo_points, table_points)  # the same cells as the table
+
+
 def test_masks_read_back_with_pillow_and_tifffile(demo: Path) -> None:
     limits = limits_of(Settings())
     for i, stem in enumerate(NETWORK_STEMS[:3]):
@@ -854,6 +1023,7 @@ def test_one_kind_writes_into_the_directory_itself(tmp_path: Path) -> None:
         "cells-surrounding-0.csv",
         "cells-mixed-1.csv",
         "cells-segregated-1.csv",
+        *(f"layout-{kind}.{ext}" for kind in LAYOUTS for ext in ("csv", "geojson")),
         "README.txt",
     }
 

@@ -3,10 +3,11 @@ runs ``python -m workers.scenario``): write synthetic demo inputs for lacuna, ea
 with a README.txt.
 
 ``network`` writes capillary-network job requests (JSON) and the same graphs as GraphML;
-``cells`` two-population cell tables (CSV); ``masks`` 2D vessel masks (PNG) and 3D tube masks
-(TIFF); ``images`` intensity images of those masks (.npy and TIFF). ``all`` (the default)
-writes every kind, into the subfolders network/, cells/, masks/ and images/ of DIR; a single
-kind writes into DIR itself.
+``cells`` two-population cell tables (CSV) and three two-population layouts at tissue
+spacing (CSV and GeoJSON, one of each layout whatever --count says); ``masks`` 2D vessel
+masks (PNG) and 3D tube masks (TIFF); ``images`` intensity images of those masks (.npy and
+TIFF). ``all`` (the default) writes every kind, into the subfolders network/, cells/, masks/
+and images/ of DIR; a single kind writes into DIR itself.
 """
 
 import argparse
@@ -39,7 +40,8 @@ def _parser() -> argparse.ArgumentParser:
         default="all",
         choices=("all", *KINDS),
         help="network: graph job requests (JSON) and GraphML; cells: two-population cell "
-        "tables (CSV); masks: 2D (PNG) and 3D (TIFF) vessel masks; images: intensity images "
+        "tables (CSV) and three tumour/immune layouts (CSV and GeoJSON); masks: 2D (PNG) and "
+        "3D (TIFF) vessel masks; images: intensity images "
         "(.npy and TIFF); all (default): every kind, each in a subfolder of DIR",
     )
     parser.add_argument(
@@ -52,7 +54,7 @@ def _parser() -> argparse.ArgumentParser:
         metavar="N",
         help="files of each sort per kind (default: "
         + ", ".join(f"{kind} {count}" for kind, count in DEFAULT_COUNTS.items())
-        + ")",
+        + "; the three layouts of cells are written once each)",
     )
     parser.add_argument(
         "--seed", type=int, default=0, metavar="S", help="seed of the first file (default 0)"

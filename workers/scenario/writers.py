@@ -1,7 +1,8 @@
 """The demo scenario's files: each kind of synthetic input written with a README.txt.
 
 ``write_networks``, ``write_cells``, ``write_masks`` and ``write_images`` (one per kind in
-``WRITERS``) take a directory, a count and a first seed and return the data files written;
+``WRITERS``) take a directory, a count and a first seed and return the data files written
+(``write_cells`` also writes the three two-population layouts, whatever the count);
 ``python -m workers.scenario`` is their command line.
 """
 
@@ -33,6 +34,20 @@ PATTERNS = (
 )
 """(pattern of workers.scenario.cell_layout, description), taken in turn for the files. The
 names are repeated here so that a usage error needs no import of numpy."""
+
+LAYOUTS = (
+    ("mixed", "immune cells interspersed among the tumour cells"),
+    ("excluded", "immune cells kept beyond a straight boundary, along the edge x = width"),
+    ("ringed", "immune cells in a ring around a core of tumour cells"),
+)
+"""(kind of workers.scenario.two_population_layout, description): one file of each, whatever
+--count says."""
+
+LAYOUT_COUNTS = (2000, 500)
+"""(tumour, immune) cells of each two-population layout."""
+
+LAYOUT_MIXING = 0.05
+"""Mixing of the two-population layouts: boundaries a few cells wide."""
 
 KINDS = ("network", "cells", "masks", "images")
 """What the command writes; ``all`` is every kind, each in a subfolder of its name."""
@@ -107,6 +122,30 @@ Patterns:
 
 Files (seed given to workers.scenario.cell_layout):
 {files}
+
+Two-population layouts at tissue spacing
+----------------------------------------
+
+Each layout-<kind>.csv file is a table of tumour and immune cells
+(workers.scenario.two_population_layout): columns x and y (micrometres) and class (tumour or
+immune, tumour first); {layout_first} tumour and {layout_second} immune cells, mixing {mixing:g}.
+No two cells are closer than {min_distance:g} um, and each has about {cell_area:g} um^2 of
+tissue (cells about {spacing:.0f} um apart). The layout-<kind>.geojson file of the same name
+holds the same cells as a GeoJSON FeatureCollection (RFC 7946) of Point features, each with a
+"class" property.
+
+The GeoJSON coordinates are planar micrometres in the frame of the table (x, y), NOT
+longitude and latitude. RFC 7946 assumes WGS 84 longitude/latitude for every GeoJSON file, so
+these files bend that rule: read them as planar coordinates, and never place them on a map.
+
+The mixed and excluded layouts share their seed and so their cell positions (packed first,
+then labelled): the x, y columns alone cannot tell them apart, only the classes can.
+
+Kinds:
+{layouts}
+
+Files (seed given to workers.scenario.two_population_layout):
+{layout_files}
 """
 
 MASKS_README = """\
@@ -244,29 +283,98 @@ def _graph_of(request: dict[str, object]) -> "nx.Graph":
     return graph
 
 
-def write_cells(out: Path, count: int, seed: int) -> list[Path]:
-    """Write ``count`` cell tables (CSV) and README.txt into ``out``; the table paths."""
+def _write_table(path: Path, header: list[str], rows: list[list[str]]) -> None:
+    with path.open("w", newline="", encoding="utf-8") as table:
+        writer = csv.writer(table, lineterminator="\n")
+        writer.writerow(header)
+        writer.writerows(rows)
+
+
+def _write_pattern_tables(out: Path, count: int, seed: int) -> tuple[list[Path], list[str]]:
+    """The cells-<pattern>-<k>.csv tables; their paths and README lines."""
     from workers.scenario.cells import cell_layout
 
-    out.mkdir(parents=True, exist_ok=True)
-    paths = []
-    lines = []
+    paths, lines = [], []
     for i in range(count):
         pattern, description = PATTERNS[i % len(PATTERNS)]
         points, populations = cell_layout(pattern, seed + i, size=CELL_SIZE, count=CELL_COUNT)
         path = out / f"cells-{pattern}-{i // len(PATTERNS)}.csv"
-        with path.open("w", newline="", encoding="utf-8") as table:
-            writer = csv.writer(table, lineterminator="\n")
-            writer.writerow(["x", "y", "population"])
-            writer.writerows(
+        _write_table(
+            path,
+            ["x", "y", "population"],
+            [
                 [f"{x:.3f}", f"{y:.3f}", population]
                 for (x, y), population in zip(points.tolist(), populations.tolist(), strict=True)
-            )
+            ],
+        )
         paths.append(path)
         lines.append(
             f"  {path.name}: pattern {pattern}, seed {seed + i}, {CELL_COUNT} cells "
             f"({int((populations == 'A').sum())} A, {int((populations == 'B').sum())} B)"
         )
+    return paths, lines
+
+
+def _geojson_points(coordinates: list[list[float]], classes: list[str]) -> dict[str, object]:
+    """A GeoJSON FeatureCollection (RFC 7946 section 3.3) of one Point feature per cell with
+    its class as the property "class"."""
+    return {
+        "type": "FeatureCollection",
+        "features": [
+            {
+                "type": "Feature",
+                "geometry": {"type": "Point", "coordinates": xy},
+                "properties": {"class": name},
+            }
+            for xy, name in zip(coordinates, classes, strict=True)
+        ],
+    }
+
+
+def _write_layouts(out: Path, seed: int) -> tuple[list[Path], list[str]]:
+    """The layout-<kind>.csv and .geojson files; their paths and README lines."""
+    from workers.scenario.cells import CLASS_NAMES, two_population_layout
+
+    paths, lines = [], []
+    first, second = LAYOUT_COUNTS
+    for kind, _ in LAYOUTS:
+        points, labels = two_population_layout(kind, first, second, LAYOUT_MIXING, seed)
+        # Both files hold the table's 3-decimal values, so they read back alike.
+        coordinates = [[round(x, 3), round(y, 3)] for x, y in points.tolist()]
+        classes = [CLASS_NAMES[code] for code in labels.tolist()]
+        table = out / f"layout-{kind}.csv"
+        _write_table(
+            table,
+            ["x", "y", "class"],
+            [
+                [f"{x:.3f}", f"{y:.3f}", name]
+                for (x, y), name in zip(coordinates, classes, strict=True)
+            ],
+        )
+        geojson = table.with_suffix(".geojson")
+        text = json.dumps(_geojson_points(coordinates, classes), separators=(",", ":"))
+        geojson.write_text(text + "\n", encoding="utf-8")
+        paths += [table, geojson]
+        x_most, y_most = points.max(axis=0)
+        lines.append(
+            f"  {table.name}, {geojson.name}: seed {seed},\n"
+            f"    {first} tumour and {second} immune cells, x up to {x_most:.0f} um and y up to "
+            f"{y_most:.0f} um"
+        )
+    return paths, lines
+
+
+def write_cells(out: Path, count: int, seed: int) -> list[Path]:
+    """Write ``count`` cell tables (CSV), the three two-population layouts (CSV and GeoJSON)
+    and README.txt into ``out``; the paths of the tables, then of the layouts (CSV, then its
+    GeoJSON, for each)."""
+    import math
+
+    from workers.scenario.cells import CELL_AREA, MIN_DISTANCE
+
+    out.mkdir(parents=True, exist_ok=True)
+    tables, lines = _write_pattern_tables(out, count, seed)
+    layouts, layout_lines = _write_layouts(out, seed)
     width, height = CELL_SIZE
     (out / "README.txt").write_text(
         CELLS_README.format(
@@ -275,14 +383,22 @@ def write_cells(out: Path, count: int, seed: int) -> list[Path]:
             height=height,
             patterns="\n".join(f"  {name}: {text}" for name, text in PATTERNS),
             files="\n".join(lines),
+            layout_first=LAYOUT_COUNTS[0],
+            layout_second=LAYOUT_COUNTS[1],
+            mixing=LAYOUT_MIXING,
+            min_distance=MIN_DISTANCE,
+            cell_area=CELL_AREA,
+            spacing=math.sqrt(CELL_AREA),
+            layouts="\n".join(f"  {name}: {text}" for name, text in LAYOUTS),
+            layout_files="\n".join(layout_lines),
             disclaimer=_disclaimer(
-                "cells of two populations placed at random in a "
-                f"{width:g} x {height:g} um region after one of three patterns"
+                "cells of two populations placed at random in a region after one of three "
+                "patterns, or packed at tissue spacing and labelled after one of three layouts"
             ),
         ),
         encoding="utf-8",
     )
-    return paths
+    return tables + layouts
 
 
 def _volume_format() -> dict[str, object]:
