@@ -180,6 +180,14 @@ def test_bad_csv_is_a_422_at_data_naming_the_line_and_column(
     csv_refused(client, text, hint)
 
 
+def test_an_upload_needs_its_format_and_the_points_once(client: FlaskClient) -> None:
+    table = b"x,y,class\n0,0,a\n"
+    refused(upload(client, {}, table), ["/input/format"], '"format": "csv"')
+    doubled = {**CSV, "points": [[0, 0]], "labels": ["a"]}
+    refused(upload(client, doubled, table), ["/input/points"], "one way")
+    refused(upload(client, {**CSV, "label_property": "a"}, table), ["/input/label_property"], "")
+
+
 def test_a_csv_with_more_points_than_the_limit_is_refused(redis_url: str) -> None:
     from tests.support.api import app_with, fresh_queue
 
