@@ -2,7 +2,10 @@
 
 Each file becomes a job request the way its extension says (``--input-type`` overrides):
 
-    .csv              points: the columns named by --columns (default x, y and z if present)
+    .csv              points: the columns named by --columns (default x, y and z if present);
+                      labelled_points with --label-column (uploaded as it is)
+    .geojson          labelled_points: Point or Polygon features, the class in the property
+                      --label-property names (default "class"; uploaded as it is)
     .npy              image (an array of values); points, mask with --input-type
     .tif .tiff .png   image; mask with --input-type mask (uploaded as they are)
     .graphml          graph (uploaded as it is)
@@ -55,11 +58,17 @@ DEFAULT_TYPES = {
     ".tiff": "image",
     ".png": "image",
     ".graphml": "graph",
+    ".geojson": "labelled_points",
     ".json": "graph",
 }
 """Input type of each file extension when --input-type does not say."""
 
-DEFAULT_FILTRATIONS = {"points": "rips", "image": "cubical", "mask": "distance"}
+DEFAULT_FILTRATIONS = {
+    "points": "rips",
+    "labelled_points": "rips",
+    "image": "cubical",
+    "mask": "distance",
+}
 """Filtration of each input type when neither --filtration nor the file says (a graph, or a
 mask's skeleton, has none by default: its filtrations need a direction, center, seeds or
 values)."""
@@ -86,6 +95,10 @@ class BatchOptions:
     spacing: list[float] | None = None
     units: str | None = None
     columns: list[str] | None = None
+    label_column: str | None = None
+    """The class column of .csv tables: given, they are labelled points."""
+    label_property: str = "class"
+    """The class property of .geojson features."""
     skeletonize: bool = False
     output: list[str] | None = None
     descriptors: Json | None = None
@@ -116,7 +129,8 @@ def request_of(path: Path, options: BatchOptions) -> tuple[Json, bytes | None]:
         raise BatchError(
             f"{path}: unknown file type {suffix!r} (not one of {', '.join(DEFAULT_TYPES)})"
         )
-    kind = options.input_type or DEFAULT_TYPES[suffix]
+    labelled = suffix == ".csv" and options.label_column is not None
+    kind = options.input_type or ("labelled_points" if labelled else DEFAULT_TYPES[suffix])
     try:
         raw = path.read_bytes()
     except OSError as error:
@@ -131,6 +145,14 @@ def request_of(path: Path, options: BatchOptions) -> tuple[Json, bytes | None]:
             given = dict(document["input"])
         else:
             given.update(document)
+    elif kind == "labelled_points" and suffix in (".csv", ".geojson"):
+        data = raw
+        if suffix == ".csv":
+            given.update(format="csv", label_column=options.label_column or "class")
+            if options.columns is not None:
+                given["columns"] = options.columns
+        else:
+            given.update(format="geojson", label_property=options.label_property)
     elif suffix == ".csv":
         given["points"] = _csv_points(path, raw, options.columns).tolist()
     elif suffix == ".npy" and kind == "points":

@@ -194,6 +194,8 @@ def _submit(args: argparse.Namespace) -> int:
         spacing=args.spacing,
         units=args.units,
         columns=args.columns.split(",") if args.columns else None,
+        label_column=args.label_column,
+        label_property=args.label_property,
         skeletonize=args.skeletonize,
         output=list(dict.fromkeys(outputs)) or None,
         descriptors=args.descriptors,
@@ -385,13 +387,17 @@ def _client_commands(commands: Any) -> None:
         **shown,
     )
     submit.add_argument(
-        "files", nargs="+", metavar="FILE", help=".csv .npy .tif .tiff .png .graphml .json"
+        "files",
+        nargs="+",
+        metavar="FILE",
+        help=".csv .npy .tif .tiff .png .graphml .geojson .json",
     )
     submit.add_argument(
         "--input-type",
-        choices=["points", "image", "mask", "graph"],
-        help="what the files hold (default by extension: .csv points, .npy/.tif/.png image, "
-        ".graphml/.json graph)",
+        choices=["points", "labelled_points", "image", "mask", "graph"],
+        help="what the files hold (default by extension: .csv points, or labelled_points "
+        "with --label-column; .npy/.tif/.png image; .graphml/.json graph; .geojson "
+        "labelled_points)",
     )
     submit.add_argument(
         "--filtration",
@@ -439,7 +445,19 @@ def _client_commands(commands: Any) -> None:
     submit.add_argument(
         "--columns",
         metavar="NAME,NAME[,NAME]",
-        help="coordinate columns of .csv tables (default x,y[,z])",
+        help="coordinate columns of .csv tables (default x,y[,z]; x,y for labelled points)",
+    )
+    submit.add_argument(
+        "--label-column",
+        metavar="NAME",
+        help=".csv tables: the column holding each point's class; the files are then "
+        "labelled points (uploaded as they are)",
+    )
+    submit.add_argument(
+        "--label-property",
+        metavar="NAME",
+        default="class",
+        help=".geojson files: the feature property holding each point's class (default class)",
     )
     submit.add_argument(
         "--skeletonize",

@@ -123,7 +123,8 @@ class Client:
 
     def submit(self, request: Json, data: bytes | None = None, filename: str = "data") -> str:
         """Submit a job request (the JSON body of ``POST /v1/jobs``); with ``data``, as
-        multipart with ``data`` as the uploaded file (.npy, TIFF, PNG or GraphML bytes).
+        multipart with ``data`` as the uploaded file (.npy, TIFF, PNG, GraphML, CSV or GeoJSON
+        bytes).
         Returns the job id."""
         headers = {"Idempotency-Key": str(uuid.uuid4())}
         if data is None:
@@ -156,6 +157,54 @@ class Client:
             request,
         )
         return self.submit(body)
+
+    def submit_labelled_points(
+        self,
+        points: np.ndarray,
+        labels: Sequence[str],
+        filtration: Json | None = None,
+        features: Sequence[Json] = (),
+        *,
+        units: str | None = None,
+        **request: Any,
+    ) -> str:
+        """Points of several classes: (n, 2|3) coordinates and one class name per point; a
+        ``"population"`` in the filtration computes on that class alone."""
+        array = np.asarray(points, dtype=np.float64)
+        given = {
+            "type": "labelled_points",
+            "points": array.tolist(),
+            "labels": [str(label) for label in labels],
+            "units": units,
+        }
+        return self.submit(_request(given, filtration, features, request))
+
+    def submit_labelled_table(
+        self,
+        data: bytes,
+        format: str,
+        filtration: Json | None = None,
+        features: Sequence[Json] = (),
+        *,
+        columns: Sequence[str] | None = None,
+        label_column: str | None = None,
+        label_property: str | None = None,
+        units: str | None = None,
+        **request: Any,
+    ) -> str:
+        """Labelled points in a file, uploaded as it is: ``format`` "csv" (a header row; the
+        coordinate ``columns``, default x, y; the class in ``label_column``, default class)
+        or "geojson" (a FeatureCollection; the class in ``label_property``, default class)."""
+        given: Json = {"type": "labelled_points", "format": format, "units": units}
+        for name, value in (
+            ("columns", None if columns is None else list(columns)),
+            ("label_column", label_column),
+            ("label_property", label_property),
+        ):
+            if value is not None:
+                given[name] = value
+        body = _request(given, filtration, features, request)
+        return self.submit(body, data, f"points.{format}")
 
     def submit_diagrams(
         self,

@@ -41,6 +41,7 @@ def limits_of(settings: Settings) -> Limits:
         max_volume_voxels=settings.max_volume_voxels,
         max_graph_nodes=settings.max_graph_nodes,
         max_graph_edges=settings.max_graph_edges,
+        max_label_classes=settings.max_label_classes,
         max_upload_bytes=settings.max_upload_bytes,
         max_result_pairs=settings.max_result_pairs,
         job_time_limit_s=settings.job_time_limit_s,

@@ -21,7 +21,7 @@ _DIAGRAM_PICTURES = (("diagram", "Persistence diagram"), ("barcode", "Barcode"))
 _IMAGE_PICTURE = ("image", "Persistence image")
 _MATRIX_PICTURE = ("matrix", "Distance matrix")
 
-_COORDINATE_INPUTS = ("points", "image", "mask", "graph")
+_COORDINATE_INPUTS = ("points", "labelled_points", "image", "mask", "graph")
 """Input types whose request ``units`` are those of coordinates (points, spacing, nodes)."""
 
 

@@ -11,6 +11,7 @@ from werkzeug.exceptions import NotAcceptable, RequestEntityTooLarge, Unsupporte
 
 from service.auth import access_of, owner_of
 from service.binary import NPY_MEDIA_TYPE, npy_bytes, result_array, wants_npy
+from service.cell_tables import decode_cell_table
 from service.costs import estimate_of, items_pointer, refuse_if_too_costly
 from service.errors import (
     BodyNotJson,
@@ -32,6 +33,7 @@ from workers.spec import DistanceRequest, DistanceTask, FieldError, JobRequest, 
 from workers.spec.capabilities import Caller, Limits, TenantUsage
 from workers.spec.costs import CostEstimate
 from workers.spec.features import FeatureSpecBody, feature_spec_answer, spec_id_mismatch
+from workers.spec.inputs import LabelledPointsInput
 from workers.spec.kinds import InputData, kind_of, request_errors
 from workers.spec.plots import PlotQuery
 from workers.spec.requests import length_error
@@ -234,10 +236,16 @@ def _job_request() -> tuple[JobRequest, InputData | None, bool, Any]:
                 FieldError(
                     pointer="/input/type",
                     message=f'input type "{job_request.input.type}" takes no uploaded file; '
-                    'upload arrays for "image" and "mask" inputs, GraphML for "graph"',
+                    'upload arrays for "image" and "mask" inputs, GraphML for "graph", CSV or '
+                    'GeoJSON for "labelled_points"',
                 )
             ]
         )
+    if upload == "cell_table":  # the request says how to read the table
+        given = job_request.input
+        if not isinstance(given, LabelledPointsInput):
+            raise TypeError(f"no table upload for {given.type}")
+        return job_request, decode_cell_table(part, state.limits, given), True, body
     return job_request, _DECODERS[upload](part, state.limits), True, body
 
 

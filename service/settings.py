@@ -60,6 +60,9 @@ class Settings(BaseSettings):
     max_graph_edges: int = Field(
         2_000_000, ge=0, le=2**31 - 1, description="Most edges in one graph (JSON or GraphML)."
     )
+    max_label_classes: int = Field(
+        64, ge=1, le=4096, description="Most classes (distinct labels) of labelled points."
+    )
     max_upload_bytes: int = Field(
         512 * 1024 * 1024,
         ge=1024,

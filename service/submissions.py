@@ -168,6 +168,7 @@ def job_submission(
     described["input"].update(dict.fromkeys(kind.data_fields))
     described["features"] = [spec.model_dump(mode="json") for spec in specs]
     stored = kind.stored(request, data, uploaded)
+    described["input"].update(stored.described)
     task = PersistenceTask(
         type="persistence",
         filtration=request.filtration,

@@ -243,6 +243,15 @@ def test_readme_commands_run(base: str, redis_server: str, folder: Path) -> None
     # The network request of the demo answers its descriptors.
     network = json.loads(output_of(r"-d @demo/network/network-0\.08-0\.6-0\.json"))
     assert network["descriptors"]["cycle_count"] > 0
+    # Two cell populations: the tumour square alone, sent as JSON, as a CSV upload and by
+    # the command line (Rips edge lengths, common practice: the square's loop is born at its
+    # side, 10, and filled at its diagonal).
+    for pattern in (r'"labels": \[', r"-F 'data=@cells\.csv'"):
+        answer = json.loads(output_of(pattern))
+        assert [p["computed"] for p in answer["populations"]] == [False, True], answer
+        assert answer["diagrams"][1]["pairs"] == [[10.0, pytest.approx(200**0.5)]]
+    batch = json.loads((folder / "cells.csv.result.json").read_text())
+    assert batch["diagrams"] == answer["diagrams"]
 
 
 def test_readme_python_m_commands_run(folder: Path) -> None:

@@ -1,4 +1,5 @@
-"""Point-set jobs: the Rips filtration, on a subsample when the task asks for one."""
+"""Point-set jobs: the Rips filtration, on a subsample when the task asks for one; for
+labelled points on the population the filtration names (all points without one)."""
 
 import numpy as np
 
@@ -9,6 +10,7 @@ from workers.core.subsample import maxmin_subsample, random_subsample
 from workers.jobs.results import Computed, DiagramSet
 from workers.jobs.steps import Steps
 from workers.spec import JobPayload, PersistenceTask, RipsFiltration
+from workers.spec.jobs import LabelledLayout
 
 __all__ = ["compute", "runs_inline"]
 
@@ -18,11 +20,17 @@ _POINTS = {"/points": "/input/points"}
 def compute(
     payload: JobPayload, task: PersistenceTask, array: np.ndarray, steps: Steps
 ) -> Computed:
-    """Rips diagrams of the (n, d) points, edge lengths as values."""
+    """Rips diagrams of the (n, d) points, edge lengths as values; of labelled points'
+    (n, d + 1) array, those of the population's points (every point without one)."""
     filtration = task.filtration
     if not isinstance(filtration, RipsFiltration):
         raise TypeError("a point-set job needs a Rips filtration")
-    points, provenance = array, {}
+    points = array
+    rows: np.ndarray | None = None
+    fields: dict[str, object] = {}
+    if task.labelled is not None:
+        points, rows, fields = _population(array, task.labelled, filtration.population)
+    provenance: dict[str, object] = {}
     steps.plan(1 if filtration.subsample is None else 2)
     if filtration.subsample is not None:
         steps.begin("subsample")
@@ -30,8 +38,9 @@ def compute(
         with pointing_into("/filtration/subsample", _POINTS):
             sample = choose(points, size=filtration.subsample.size, seed=filtration.subsample.seed)
         points = points[sample.indices]
+        kept = sample.indices if rows is None else rows[sample.indices]  # rows of the input
         provenance = {
-            "subsample_indices": sample.indices.tolist(),
+            "subsample_indices": kept.tolist(),
             "subsample_covering_radius": sample.covering_radius,
         }
     steps.begin("persistence")  # complex and reduction: one call, no progress inside
@@ -44,8 +53,36 @@ def compute(
         engine="rips-cut-collapse-float64",
         limit_pointer="/filtration",
         advice="lower max_dim or max_edge, or subsample",
+        fields=fields,
         provenance=provenance,
     )
+
+
+def _population(
+    array: np.ndarray, layout: LabelledLayout, population: str | None
+) -> tuple[np.ndarray, np.ndarray, dict[str, object]]:
+    """The coordinates of the points of ``population`` (all without one), their rows in the
+    input, and the result's fields: the count of each class, and how many points are polygon
+    centroids."""
+    codes = array[:, -1].astype(np.int64)
+    counts = np.bincount(codes, minlength=len(layout.classes))
+    chosen = None if population is None else layout.classes.index(population)
+    rows = np.arange(len(array)) if chosen is None else np.flatnonzero(codes == chosen)
+    fields: dict[str, object] = {
+        "populations": [
+            {"name": name, "count": int(count), "computed": chosen in (None, position)}
+            for position, (name, count) in enumerate(zip(layout.classes, counts, strict=True))
+        ]
+    }
+    if layout.centroids:
+        fields["warnings"] = [
+            {
+                "pointer": "/data",
+                "message": f"{layout.centroids} polygon features were taken at their "
+                "centroid (shapely), one point each",
+            }
+        ]
+    return array[rows, :-1], rows, fields
 
 
 def runs_inline(payload: JobPayload) -> bool:

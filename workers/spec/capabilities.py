@@ -22,6 +22,7 @@ class Limits(BaseModel):
     max_volume_voxels: int = Field(description="Most voxels in one 3D volume or mask.")
     max_graph_nodes: int = Field(description="Most nodes in one graph.")
     max_graph_edges: int = Field(description="Most edges in one graph.")
+    max_label_classes: int = Field(description="Most classes of labelled points.")
     max_upload_bytes: int = Field(description="Largest multipart request (array upload).")
     max_result_pairs: int = Field(description="Most diagram pairs in one result.")
     job_time_limit_s: float
@@ -89,7 +90,7 @@ class FiltrationCapability(BaseModel):
 FILTRATIONS: tuple[FiltrationCapability, ...] = (
     FiltrationCapability(
         type="rips",
-        inputs=["points"],
+        inputs=["points", "labelled_points"],
         value_conventions=["edge_length"],
         values_are_lengths=True,
         engines=["rips-cut-collapse-float64"],

@@ -180,10 +180,13 @@ def persistence_cost(
     """The cost of a persistence job on a stored array of ``shape``."""
     filtration = task.filtration
     repeat = filtration.direction_count() if isinstance(filtration, HeightFiltration) else 1
-    if stored == "points":
+    if stored in ("points", "labelled_points"):
+        # A population of labelled points is at most all of them: priced as all of them.
         rips = filtration if isinstance(filtration, RipsFiltration) else RipsFiltration(type="rips")
         points = shape[0] if rips.subsample is None else min(shape[0], rips.subsample.size)
-        return _priced(f"rips_h{rips.max_dim}", [points, shape[1]], "/input/points")
+        width = shape[1] - (stored == "labelled_points")  # less the class column
+        pointer = "/data" if uploaded else "/input/points"
+        return _priced(f"rips_h{rips.max_dim}", [points, width], pointer)
     if stored in ("image", "mask"):
         cells = math.prod(shape)
         pointer = "/data" if uploaded else "/input/values"

@@ -32,6 +32,19 @@ class Subsample(BaseModel):
     seed: Annotated[int, Field(strict=True, ge=0, le=2**63 - 1)] = 0
 
 
+Population = Annotated[
+    str | None,
+    Field(
+        min_length=1,
+        max_length=64,
+        description="Labelled points only: compute on the points of this class alone. "
+        "Default: every point, whatever its class.",
+    ),
+]
+"""The class a point filtration of labelled points is restricted to (one field, so every
+point filtration takes it the same way)."""
+
+
 class RipsFiltration(BaseModel):
     """Vietoris-Rips filtration; values are edge lengths (diameters), not ball radii."""
 
@@ -46,6 +59,7 @@ class RipsFiltration(BaseModel):
         Field(ge=0, description="Stop at this edge length; classes alive there get death null."),
     ] = None
     subsample: Subsample | None = None
+    population: Population = None
 
 
 ArrayMaxDim = Annotated[

@@ -32,6 +32,68 @@ class PointsInput(BaseModel):
     units: Units = None
 
 
+MAX_LABEL_CHARS = 64
+"""Longest class label of a labelled point."""
+
+Label = Annotated[str, Field(min_length=1, max_length=MAX_LABEL_CHARS)]
+"""The class of one labelled point (a cell population such as "tumour" or "immune")."""
+
+ColumnName = Annotated[str, Field(min_length=1, max_length=256)]
+
+
+class LabelledPointsInput(BaseModel):
+    """Points in 2D or 3D, each of one class (cell populations of a tissue section).
+
+    Give ``points`` and ``labels`` as JSON, or upload a table as the ``data`` part of a
+    multipart request: CSV (``format`` "csv": a header row, the coordinate ``columns`` and the
+    ``label_column``) or a GeoJSON FeatureCollection (``format`` "geojson", RFC 7946: Point
+    features, or Polygon and MultiPolygon features taken at their centroid, the class in the
+    ``label_property`` of each feature). Classes are numbered in sorted order of their names.
+    """
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["labelled_points"]
+    points: Annotated[
+        list[Annotated[list[Coordinate], Field(min_length=2, max_length=3)]] | None,
+        Field(
+            description="N rows of 2 or 3 coordinates, every row the same length. Leave out "
+            "when the table is uploaded."
+        ),
+    ] = None
+    labels: Annotated[
+        list[Label] | None,
+        Field(description="The class of each point, one per row of points (JSON only)."),
+    ] = None
+    format: Annotated[
+        Literal["csv", "geojson"] | None,
+        Field(description="What the uploaded data part holds (uploads only)."),
+    ] = None
+    columns: Annotated[
+        list[ColumnName] | None,
+        Field(
+            min_length=2,
+            max_length=3,
+            description='CSV: the coordinate columns, in order (default "x", "y").',
+        ),
+    ] = None
+    label_column: Annotated[
+        ColumnName | None, Field(description="CSV: the column holding each point's class.")
+    ] = None
+    delimiter: Annotated[
+        Literal[",", "\t"] | None,
+        Field(
+            description="CSV: the field separator. Default: a tab if the header line has tabs "
+            "and no commas, else a comma."
+        ),
+    ] = None
+    label_property: Annotated[
+        ColumnName | None,
+        Field(description='GeoJSON: the feature property holding the class (default "class").'),
+    ] = None
+    units: Units = None
+
+
 class DiagramsInput(BaseModel):
     """Persistence diagrams a client already has (from lacuna or elsewhere), to vectorise.
 
@@ -193,6 +255,7 @@ ArrayInput = ImageInput | MaskInput
 """Inputs that are arrays of pixels or voxels."""
 
 Input = Annotated[
-    PointsInput | DiagramsInput | ImageInput | MaskInput | GraphInput, Field(discriminator="type")
+    PointsInput | LabelledPointsInput | DiagramsInput | ImageInput | MaskInput | GraphInput,
+    Field(discriminator="type"),
 ]
 """Every input type, told apart by ``type``."""

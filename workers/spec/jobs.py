@@ -22,6 +22,7 @@ __all__ = [
     "JobStatus",
     "DistanceTask",
     "GraphLayout",
+    "LabelledLayout",
     "PersistenceTask",
     "Progress",
     "StoredInput",
@@ -122,17 +123,38 @@ class GraphLayout(BaseModel):
     uploaded: bool = False  # GraphML: warnings point at /data, not at /input/edges/k
 
 
+class LabelledLayout(BaseModel):
+    """The classes of a stored labelled point set (``workers.spec.kinds.labelled_points``):
+    the array's last column is the position of each point's class in ``classes``."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+    classes: list[str]
+    centroids: Annotated[
+        int, Field(description="Polygon features of a GeoJSON upload taken at their centroid.")
+    ] = 0
+
+
 StoredType = Literal[
-    "points", "diagrams", "diagram_set", "vectors", "image", "mask", "graph", "grid"
+    "points",
+    "labelled_points",
+    "diagrams",
+    "diagram_set",
+    "vectors",
+    "image",
+    "mask",
+    "graph",
+    "grid",
 ]
 
 
 class StoredInput(BaseModel):
     """Description of an input array kept in Redis next to the job (not on the queue).
 
-    Arrays by type: ``points`` (n, d) coordinates; ``diagrams`` and ``diagram_set`` (k, 3)
-    rows of (dimension or diagram index, birth, death with inf for never; a plot job's (k, 4),
-    the pair's row in its result last); ``vectors`` (N, L);
+    Arrays by type: ``points`` (n, d) coordinates; ``labelled_points`` (n, d + 1), the
+    coordinates then the class position (``LabelledLayout``); ``diagrams`` and
+    ``diagram_set`` (k, 3) rows of (dimension or diagram index, birth, death with inf for
+    never; a plot job's (k, 4), the pair's row in its result last); ``vectors`` (N, L);
     ``image`` and ``mask`` 2D or 3D arrays in the dtype they arrived in; ``graph`` (n + m,
     d + 1) rows of nodes, then edges (``workers.spec.kinds.graphs.graph_rows``); ``grid`` a 2D
     array of values to draw (a persistence image, a distance matrix).
@@ -175,6 +197,9 @@ class PersistenceTask(BaseModel):
     skeletonize: Annotated[bool, Field(description="Work on a mask's skeleton graph.")] = False
     graph: Annotated[
         GraphLayout | None, Field(description="How the stored graph rows split (graph inputs).")
+    ] = None
+    labelled: Annotated[
+        LabelledLayout | None, Field(description="The classes of labelled points.")
     ] = None
 
 

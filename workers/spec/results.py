@@ -159,7 +159,9 @@ class Provenance(BaseModel):
         str,
         Field(
             description="SHA-256 of the input array: the ASCII shape as 'n,d;' followed by the "
-            "values as little-endian float64 in row-major order."
+            "values as little-endian float64 in row-major order. For labelled points the "
+            "array is (n, d + 1): each point's coordinates, then the position of its class "
+            "in `populations` (the class names, sorted), whose names the request hash covers."
         ),
     ]
     request_sha256: Annotated[
@@ -217,6 +219,17 @@ LENGTH_CONVENTIONS: frozenset[ValueConvention] = frozenset(
 )
 """Conventions whose values are lengths, in the unit of the coordinates; the others (pixel
 and node values) carry no unit."""
+
+
+class PopulationCount(BaseModel):
+    """One class of labelled points: how many points it has, and whether the job computed on
+    them."""
+
+    name: str
+    count: int
+    computed: Annotated[
+        bool, Field(description="Are its points among those the filtration was built on?")
+    ]
 
 
 class DirectionDiagrams(BaseModel):
@@ -317,6 +330,14 @@ class JobResult(BaseModel):
         Field(
             description="Nodes a geodesic filtration never reaches (no path from a seed): "
             "they and their edges are in no diagram."
+        ),
+    ] = None
+    populations: Annotated[
+        list[PopulationCount] | None,
+        Field(
+            description="Labelled points: each class, in the order of their names, with its "
+            "count; the filtration was built on the classes marked computed (the one its "
+            "population names, or all)."
         ),
     ] = None
     warnings: Annotated[

@@ -12,9 +12,17 @@ from typing import Any
 
 from workers.spec.capabilities import Limits
 from workers.spec.filtrations import HeightFiltration
-from workers.spec.kinds.base import Checked, GraphArrays, InputData, InputKind, Stored
+from workers.spec.kinds.base import (
+    Checked,
+    GraphArrays,
+    InputData,
+    InputKind,
+    LabelledPoints,
+    Stored,
+)
 from workers.spec.kinds.diagrams import DiagramsKind
 from workers.spec.kinds.graphs import GraphKind
+from workers.spec.kinds.labelled_points import LabelledPointsKind
 from workers.spec.kinds.pixels import ImageKind, MaskKind
 from workers.spec.kinds.points import PointsKind
 from workers.spec.problems import FieldError
@@ -26,13 +34,22 @@ __all__ = [
     "GraphArrays",
     "InputData",
     "InputKind",
+    "LabelledPoints",
     "Stored",
     "kind_of",
     "request_errors",
 ]
 
 KINDS: dict[str, InputKind[Any]] = {
-    kind.type: kind for kind in (PointsKind(), DiagramsKind(), ImageKind(), MaskKind(), GraphKind())
+    kind.type: kind
+    for kind in (
+        PointsKind(),
+        LabelledPointsKind(),
+        DiagramsKind(),
+        ImageKind(),
+        MaskKind(),
+        GraphKind(),
+    )
 }
 """Every input kind by its ``type`` (the tag of the input in a request, and the stored type
 of its array)."""

@@ -13,7 +13,7 @@ from workers.spec.jobs import PersistenceTask, StoredType
 from workers.spec.problems import FieldError
 from workers.spec.requests import JobRequest
 
-__all__ = ["Checked", "GraphArrays", "InputData", "InputKind", "Stored"]
+__all__ = ["Checked", "GraphArrays", "InputData", "InputKind", "LabelledPoints", "Stored"]
 
 
 @dataclass(frozen=True)
@@ -27,8 +27,20 @@ class GraphArrays:
     length: np.ndarray | None = None
 
 
-InputData = np.ndarray | GraphArrays
-"""The data of an input that comes as arrays: pixels, or a graph."""
+@dataclass(frozen=True)
+class LabelledPoints:
+    """Labelled points as arrays: ``points`` (n, d) float64, ``codes`` (n,) int64 positions
+    in ``classes`` (the class names, sorted), and ``centroids``: how many came from polygon
+    features taken at their centroid (GeoJSON uploads)."""
+
+    points: np.ndarray
+    codes: np.ndarray
+    classes: tuple[str, ...]
+    centroids: int = 0
+
+
+InputData = np.ndarray | GraphArrays | LabelledPoints
+"""The data of an input that comes as arrays: pixels, a graph, or labelled points."""
 
 
 @dataclass(frozen=True)
@@ -48,12 +60,14 @@ class Checked:
 @dataclass(frozen=True)
 class Stored:
     """How an input travels: the one array stored next to the job, its stored type, the fields
-    of the task particular to the kind, and a line saying what the job computes on."""
+    of the task particular to the kind, a line saying what the job computes on, and fields
+    the request is hashed with in place of data the array does not carry (class names)."""
 
     array: np.ndarray
     type: StoredType
     task: dict[str, Any]
     description: str
+    described: dict[str, Any] = field(default_factory=dict)
 
 
 Model = TypeVar("Model", bound=BaseModel)
@@ -72,7 +86,7 @@ class InputKind(ABC, Generic[Model]):
     """Fields of the model holding the data; the stored array carries them, so a request is
     hashed with them left out (its input hash stands for them)."""
 
-    upload: ClassVar[Literal["array", "graphml"] | None] = None
+    upload: ClassVar[Literal["array", "graphml", "cell_table"] | None] = None
     """What the ``data`` part of a multipart request holds for this kind (None: no upload)."""
 
     def given(self, request: JobRequest) -> Model:

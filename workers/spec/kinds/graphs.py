@@ -23,6 +23,7 @@ from workers.spec.filtrations import (
 from workers.spec.inputs import MAX_GRAPH_MAGNITUDE, GraphInput
 from workers.spec.jobs import GraphLayout, PersistenceTask
 from workers.spec.kinds.base import Checked, GraphArrays, InputData, InputKind, Stored
+from workers.spec.kinds.points import ragged_row
 from workers.spec.networks import DescriptorOptions
 from workers.spec.problems import FieldError
 from workers.spec.requests import JobRequest
@@ -50,14 +51,9 @@ def graph_arrays(graph_input: GraphInput) -> GraphArrays | FieldError:
             message="the graph has no nodes; give at least one (or upload GraphML as the data "
             "part of a multipart request)",
         )
-    width = len(nodes[0])
-    for row, node in enumerate(nodes):
-        if len(node) != width:
-            return FieldError(
-                pointer=f"/input/nodes/{row}",
-                message=f"node {row} has {len(node)} coordinates, node 0 has {width}; "
-                "every node needs the same number",
-            )
+    ragged = ragged_row("/input/nodes", nodes, "node")
+    if ragged is not None:
+        return ragged
     coordinates = np.asarray(nodes, dtype=np.float64)
     edges = np.asarray(graph_input.edges or [], dtype=np.int64).reshape(-1, 2)
     return GraphArrays(

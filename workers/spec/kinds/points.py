@@ -1,5 +1,7 @@
 """Point sets: N x d coordinates, the Rips filtration, stored as the (n, d) float64 array."""
 
+from collections.abc import Sequence
+
 import numpy as np
 
 from workers.spec.capabilities import Limits
@@ -10,7 +12,7 @@ from workers.spec.kinds.base import Checked, InputData, InputKind, Stored
 from workers.spec.problems import FieldError
 from workers.spec.requests import JobRequest
 
-__all__ = ["PointsKind"]
+__all__ = ["PointsKind", "ragged_row", "rips_errors"]
 
 
 class PointsKind(InputKind[PointsInput]):
@@ -32,6 +34,11 @@ class PointsKind(InputKind[PointsInput]):
                 ],
                 None,
             )
+        if filtration is not None and filtration.population is not None:
+            return Checked.stop(
+                "/filtration/population",
+                'population chooses a class of "labelled_points"; a "points" input has none',
+            )
         errors = _point_errors(self.given(request), filtration, limits)
         return Checked(errors, set(range(filtration.max_dim + 1)) if filtration else set())
 
@@ -48,16 +55,9 @@ def _point_errors(
     points_input: PointsInput, filtration: RipsFiltration | None, limits: Limits
 ) -> list[FieldError]:
     points = points_input.points
-    width = len(points[0])
-    for row, coordinates in enumerate(points):
-        if len(coordinates) != width:
-            return [
-                FieldError(
-                    pointer=f"/input/points/{row}",
-                    message=f"row {row} has {len(coordinates)} coordinates, row 0 has {width};"
-                    " every row needs the same number",
-                )
-            ]
+    ragged = ragged_row("/input/points", points)
+    if ragged is not None:
+        return [ragged]
     if filtration is None:
         return [
             FieldError(
@@ -65,20 +65,45 @@ def _point_errors(
                 message='a point set needs a filtration, e.g. {"type": "rips", "max_dim": 1}',
             )
         ]
+    return rips_errors(len(points), len(points), filtration, limits, "/input/points")
+
+
+def ragged_row(
+    pointer: str, rows: Sequence[Sequence[float]], what: str = "row"
+) -> FieldError | None:
+    """A FieldError at the first of ``rows`` (each a ``what``) whose length differs from the
+    first's."""
+    width = len(rows[0])
+    for row, coordinates in enumerate(rows):
+        if len(coordinates) != width:
+            return FieldError(
+                pointer=f"{pointer}/{row}",
+                message=f"{what} {row} has {len(coordinates)} coordinates, {what} 0 has "
+                f"{width}; every {what} needs the same number",
+            )
+    return None
+
+
+def rips_errors(
+    given: int, computed: int, filtration: RipsFiltration, limits: Limits, pointer: str
+) -> list[FieldError]:
+    """What is wrong with a Rips filtration on ``computed`` of ``given`` points (fewer: a
+    population of labelled points) against the limits; ``pointer``: where the points are."""
     errors: list[FieldError] = []
-    n = len(points)
+    n = computed
     subsample = filtration.subsample
-    if n > limits.max_input_points:
+    if given > limits.max_input_points:
         errors.append(
             FieldError(
-                pointer="/input/points",
-                message=f"{n} points is above the limit of {limits.max_input_points} per request",
+                pointer=pointer,
+                message=f"{given} points is above the limit of {limits.max_input_points} per "
+                "request",
             )
         )
     elif subsample is None and n > limits.max_points:
         errors.append(
             FieldError(
-                pointer="/input/points",
+                pointer=pointer,
                 message=f"{n} points is above the Rips limit of {limits.max_points}; send "
                 f'"filtration": {{"subsample": {{"method": "maxmin", "size": '
                 f"{limits.max_points}}}}} to reduce the set first",
