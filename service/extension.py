@@ -42,6 +42,7 @@ def limits_of(settings: Settings) -> Limits:
         max_graph_nodes=settings.max_graph_nodes,
         max_graph_edges=settings.max_graph_edges,
         max_label_classes=settings.max_label_classes,
+        max_dowker_simplices=settings.max_dowker_simplices,
         max_upload_bytes=settings.max_upload_bytes,
         max_result_pairs=settings.max_result_pairs,
         job_time_limit_s=settings.job_time_limit_s,

@@ -170,6 +170,7 @@ class JobQueue:
             time_limit_s=self.settings.job_time_limit_s,
             memory_limit_mb=self.settings.job_memory_limit_mb,
             max_result_pairs=self.settings.max_result_pairs,
+            max_dowker_simplices=self.settings.max_dowker_simplices,
             request_id=request_id,
         )
         keep = self.settings.queued_ttl_s + int(self.settings.job_time_limit_s)

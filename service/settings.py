@@ -6,7 +6,7 @@ from typing import Literal
 from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
-from workers.spec.jobs import DEFAULT_MAX_RESULT_PAIRS, DEFAULT_QUEUE
+from workers.spec.jobs import DEFAULT_MAX_DOWKER_SIMPLICES, DEFAULT_MAX_RESULT_PAIRS, DEFAULT_QUEUE
 
 __all__ = ["MIN_REQUESTS_PER_S", "Settings"]
 
@@ -62,6 +62,14 @@ class Settings(BaseSettings):
     )
     max_label_classes: int = Field(
         64, ge=1, le=4096, description="Most classes (distinct labels) of labelled points."
+    )
+    max_dowker_simplices: int = Field(
+        DEFAULT_MAX_DOWKER_SIMPLICES,
+        ge=1,
+        description="Most candidate simplices (the sum over witnesses of the subsets of their "
+        "neighbours a Dowker filtration builds, repeats included) one Dowker job may build; "
+        "above it the worker refuses the job at max_radius before building. The default "
+        "passes 20,000 vertices and 5,000 witnesses at three spacings (about 12 million).",
     )
     max_upload_bytes: int = Field(
         512 * 1024 * 1024,

@@ -12,6 +12,7 @@ import shapely.geometry
 from flask.testing import FlaskClient
 
 from tests.support.api import JOBS, WAIT, call, pairs_array, post, refused, result_of
+from tests.support.bodies import labelled_job
 
 RIPS = {"type": "rips", "max_dim": 1}
 
@@ -36,15 +37,7 @@ def two_populations() -> tuple[np.ndarray, list[str]]:
 
 
 def labelled_body(points: np.ndarray, labels: list[str], **filtration: Any) -> dict[str, Any]:
-    return {
-        "input": {
-            "type": "labelled_points",
-            "points": points.tolist(),
-            "labels": labels,
-            "units": "um",
-        },
-        "filtration": {**RIPS, **filtration},
-    }
+    return labelled_job(points, labels, {**RIPS, **filtration})
 
 
 def upload(client: FlaskClient, given: dict[str, Any], data: bytes, wait: bool = False) -> Any:

@@ -21,6 +21,21 @@ PERSISTENCE_IMAGE_SPEC: dict[str, Any] = {
 """A small persistence image feature spec (32 values), valid everywhere."""
 
 
+def labelled_job(
+    points: np.ndarray, labels: list[str], filtration: dict[str, Any]
+) -> dict[str, Any]:
+    """A job on labelled points (units "um") with ``filtration``."""
+    return {
+        "input": {
+            "type": "labelled_points",
+            "points": points.tolist(),
+            "labels": labels,
+            "units": "um",
+        },
+        "filtration": filtration,
+    }
+
+
 def rips_job(
     points: Any = HEXAGON,
     *,

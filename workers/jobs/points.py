@@ -12,7 +12,7 @@ from workers.jobs.steps import Steps
 from workers.spec import JobPayload, PersistenceTask, RipsFiltration
 from workers.spec.jobs import LabelledLayout
 
-__all__ = ["compute", "runs_inline"]
+__all__ = ["compute", "labelled_fields", "runs_inline"]
 
 _POINTS = {"/points": "/input/points"}
 
@@ -62,15 +62,23 @@ def _population(
     array: np.ndarray, layout: LabelledLayout, population: str | None
 ) -> tuple[np.ndarray, np.ndarray, dict[str, object]]:
     """The coordinates of the points of ``population`` (all without one), their rows in the
-    input, and the result's fields: the count of each class, and how many points are polygon
-    centroids."""
+    input, and the result's fields (``labelled_fields``)."""
     codes = array[:, -1].astype(np.int64)
-    counts = np.bincount(codes, minlength=len(layout.classes))
     chosen = None if population is None else layout.classes.index(population)
     rows = np.arange(len(array)) if chosen is None else np.flatnonzero(codes == chosen)
+    computed = set(range(len(layout.classes))) if chosen is None else {chosen}
+    return array[rows, :-1], rows, labelled_fields(codes, layout, computed)
+
+
+def labelled_fields(
+    codes: np.ndarray, layout: LabelledLayout, computed: set[int]
+) -> dict[str, object]:
+    """The result's fields of a labelled points job: the count of each class and whether it
+    is among the ``computed`` class positions, and how many points are polygon centroids."""
+    counts = np.bincount(codes, minlength=len(layout.classes))
     fields: dict[str, object] = {
         "populations": [
-            {"name": name, "count": int(count), "computed": chosen in (None, position)}
+            {"name": name, "count": int(count), "computed": position in computed}
             for position, (name, count) in enumerate(zip(layout.classes, counts, strict=True))
         ]
     }
@@ -82,7 +90,7 @@ def _population(
                 "centroid (shapely), one point each",
             }
         ]
-    return array[rows, :-1], rows, fields
+    return fields
 
 
 def runs_inline(payload: JobPayload) -> bool:

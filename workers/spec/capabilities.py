@@ -23,6 +23,10 @@ class Limits(BaseModel):
     max_graph_nodes: int = Field(description="Most nodes in one graph.")
     max_graph_edges: int = Field(description="Most edges in one graph.")
     max_label_classes: int = Field(description="Most classes of labelled points.")
+    max_dowker_simplices: int = Field(
+        description="Most candidate simplices one Dowker filtration may build (refused at "
+        "max_radius before building)."
+    )
     max_upload_bytes: int = Field(description="Largest multipart request (array upload).")
     max_result_pairs: int = Field(description="Most diagram pairs in one result.")
     job_time_limit_s: float
@@ -94,6 +98,13 @@ FILTRATIONS: tuple[FiltrationCapability, ...] = (
         value_conventions=["edge_length"],
         values_are_lengths=True,
         engines=["rips-cut-collapse-float64"],
+    ),
+    FiltrationCapability(
+        type="dowker",
+        inputs=["labelled_points"],
+        value_conventions=["witness_radius"],
+        values_are_lengths=True,
+        engines=["dowker-witness-float64"],
     ),
     FiltrationCapability(
         type="cubical",

@@ -62,6 +62,42 @@ class RipsFiltration(BaseModel):
     population: Population = None
 
 
+ClassName = Annotated[str, Field(min_length=1, max_length=64)]
+"""A class of labelled points, as named in the labels."""
+
+
+class DowkerFiltration(BaseModel):
+    """Dowker (witness) filtration of two classes of labelled points: a set of ``vertices``
+    points is a simplex at the least radius r such that one ``witnesses`` point lies within r
+    of every one of them (value convention ``witness_radius``). By Dowker duality the roles
+    may be swapped without changing the diagrams; ``side`` says which class is built on
+    (``smaller``: the one with fewer candidate simplices)."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    type: Literal["dowker"]
+    vertices: Annotated[ClassName, Field(description="The class whose points are vertices.")]
+    witnesses: Annotated[ClassName, Field(description="The class whose points witness.")]
+    max_dim: Annotated[
+        int, Field(strict=True, ge=0, le=2, description="Highest homology dimension (0..2).")
+    ] = 1
+    max_radius: Annotated[
+        FiniteFloat,
+        Field(
+            gt=0,
+            description="Stop at this radius (coordinate units); a witness farther from a "
+            "vertex never sees it, and classes alive there get death null.",
+        ),
+    ]
+    side: Annotated[
+        Literal["vertices", "witnesses", "smaller"],
+        Field(
+            description='Which class is built on: "vertices" as given, "witnesses" the '
+            'roles swapped, "smaller" the side with fewer candidate simplices.'
+        ),
+    ] = "smaller"
+
+
 ArrayMaxDim = Annotated[
     int | None,
     Field(
@@ -248,6 +284,7 @@ MASK_FILTRATIONS = ("distance", "height", "radial")
 
 Filtration = Annotated[
     RipsFiltration
+    | DowkerFiltration
     | CubicalFiltration
     | DistanceFiltration
     | HeightFiltration

@@ -230,6 +230,11 @@ DEFAULT_MAX_RESULT_PAIRS = 6_000_000
 base64-encoded, well under Redis's 512 MB limit on one value."""
 
 
+DEFAULT_MAX_DOWKER_SIMPLICES = 20_000_000
+"""Most candidate simplices one Dowker filtration builds: about 12 million for 20,000 vertices
+and 5,000 witnesses at three spacings (measured), with room to spare."""
+
+
 class JobPayload(BaseModel):
     """The single JSON argument of ``workers.jobs.run``."""
 
@@ -249,6 +254,9 @@ class JobPayload(BaseModel):
         ),
     ] = None
     max_result_pairs: Annotated[int, Field(ge=1)] = DEFAULT_MAX_RESULT_PAIRS
+    max_dowker_simplices: Annotated[
+        int, Field(ge=1, description="Most candidate simplices of a Dowker filtration.")
+    ] = DEFAULT_MAX_DOWKER_SIMPLICES
     request_id: Annotated[
         str | None, Field(description="X-Request-Id of the request that queued the job.")
     ] = None

@@ -72,7 +72,7 @@ def _graph_filtration(types: tuple[str, ...]) -> dict[str, Any]:
 
 _FILTRATION_BY_INPUT: list[dict[str, Any]] = [
     {"if": _input_is("points"), "then": _filtration_of(("rips",))},
-    {"if": _input_is("labelled_points"), "then": _filtration_of(("rips",))},
+    {"if": _input_is("labelled_points"), "then": _filtration_of(("rips", "dowker"))},
     {"if": _input_is("image"), "then": _filtration_of(("cubical",))},
     {
         "if": {**_input_is("mask"), "not": _input_is("mask", skeletonize=True)},
@@ -119,9 +119,9 @@ class JobRequest(BaseModel):
     filtration: Annotated[
         Filtration | None,
         Field(
-            description='Required by "points" and "labelled_points" (rips), "image" (cubical) '
-            'and "mask" (distance, height or radial) inputs; left out for "diagrams"; for '
-            '"graph" inputs (height, radial, geodesic or attribute) and masks with '
+            description='Required by "points" (rips), "labelled_points" (rips or dowker), '
+            '"image" (cubical) and "mask" (distance, height or radial) inputs; left out for '
+            '"diagrams"; for "graph" inputs (height, radial, geodesic or attribute) and masks with '
             '"skeletonize" (height, radial or geodesic) required unless "output" leaves out '
             '"diagrams".'
         ),

@@ -15,7 +15,10 @@ BASE_PACKAGES = ("lacuna", "numpy", "scipy")
 """Distributions (importlib.metadata names) every job's code runs on, so every provenance
 names them."""
 
-ENGINE_PACKAGES: dict[str, tuple[str, ...]] = {"rips-cut-collapse-float64": ("gudhi",)}
+ENGINE_PACKAGES: dict[str, tuple[str, ...]] = {
+    "rips-cut-collapse-float64": ("gudhi",),
+    "dowker-witness-float64": ("gudhi",),
+}
 """Distributions an engine runs on beyond ``BASE_PACKAGES``."""
 
 SKELETON_PACKAGES = ("scikit-image",)
@@ -23,6 +26,7 @@ SKELETON_PACKAGES = ("scikit-image",)
 
 Engine = Literal[
     "rips-cut-collapse-float64",
+    "dowker-witness-float64",
     "cubical-lacuna-c",
     "graph-lacuna-c",
     "bottleneck-lacuna",
@@ -38,6 +42,9 @@ ENGINES: dict[Engine, str] = {
     "cut where the relative neighbourhood graph and a subsample bound the deaths, dense "
     "graphs reduced by edge collapse, then Ripser's reduction (gudhi's build, its version "
     "under gudhi)",
+    "dowker-witness-float64": "Dowker persistence of two point classes in float64: the "
+    "witness-vertex pairs within max_radius from scipy's k-d tree, every simplex a witness "
+    "sees at its least witness radius (numpy), persistence by gudhi's SimplexTree (Z/2)",
     "cubical-lacuna-c": "cubical persistence of pixel or voxel values by lacuna's own C "
     "engine (union-find, Alexander duality, cohomology in 3D)",
     "graph-lacuna-c": "lower-star persistence of node values on a graph by lacuna's own C "
@@ -204,6 +211,7 @@ class Provenance(BaseModel):
 
 ValueConvention = Literal[
     "edge_length",
+    "witness_radius",
     "pixel_value",
     "negated_pixel_value",
     "signed_distance",
@@ -215,7 +223,14 @@ ValueConvention = Literal[
 """What the numbers of a diagram are."""
 
 LENGTH_CONVENTIONS: frozenset[ValueConvention] = frozenset(
-    {"edge_length", "signed_distance", "height", "radial_distance", "geodesic_distance"}
+    {
+        "edge_length",
+        "witness_radius",
+        "signed_distance",
+        "height",
+        "radial_distance",
+        "geodesic_distance",
+    }
 )
 """Conventions whose values are lengths, in the unit of the coordinates; the others (pixel
 and node values) carry no unit."""
@@ -229,6 +244,23 @@ class PopulationCount(BaseModel):
     count: int
     computed: Annotated[
         bool, Field(description="Are its points among those the filtration was built on?")
+    ]
+
+
+class DowkerOutput(BaseModel):
+    """How a Dowker filtration was built: its classes and the side computed."""
+
+    vertices: Annotated[str, Field(description="The class the request named as vertices.")]
+    witnesses: Annotated[str, Field(description="The class the request named as witnesses.")]
+    side_used: Annotated[
+        Literal["vertices", "witnesses"],
+        Field(
+            description='"vertices": built on the vertices class as named; "witnesses": on '
+            "the witnesses class, the roles swapped (the same diagrams by Dowker duality)."
+        ),
+    ]
+    simplex_count: Annotated[
+        int, Field(description="Simplices of the complex built (dimensions 0..max_dim + 1).")
     ]
 
 
@@ -248,7 +280,9 @@ class JobResult(BaseModel):
         ValueConvention | None,
         Field(
             description="What the values are. edge_length: Rips edge lengths (diameters), twice "
-            "the ball radius. pixel_value: image values (cubical sublevel). "
+            "the ball radius. witness_radius: Dowker values, a radius in the coordinate "
+            "units; a simplex enters at the least, over witnesses, of the largest distance "
+            "from the witness to its vertices. pixel_value: image values (cubical sublevel). "
             "negated_pixel_value: image values negated (cubical superlevel; a class of bright "
             "pixels born at 200 and dying at 50 is [-200, -50]). signed_distance: distance "
             "to the mask boundary, negative inside (units of spacing). height: projection on "
@@ -263,9 +297,9 @@ class JobResult(BaseModel):
         str | None,
         Field(
             description="Unit of the diagram values: the unit of the coordinates when the "
-            "values are lengths (edge_length, signed_distance, height, radial_distance, "
-            "geodesic_distance); null for pixel and node values, which have none. For "
-            "given diagrams, the input's units as sent."
+            "values are lengths (edge_length, witness_radius, signed_distance, height, "
+            "radial_distance, geodesic_distance); null for pixel and node values, which have "
+            "none. For given diagrams, the input's units as sent."
         ),
     ] = None
     coordinate_units: Annotated[
@@ -339,6 +373,10 @@ class JobResult(BaseModel):
             "count; the filtration was built on the classes marked computed (the one its "
             "population names, or all)."
         ),
+    ] = None
+    dowker: Annotated[
+        DowkerOutput | None,
+        Field(description="Dowker filtrations: the classes and the side computed."),
     ] = None
     warnings: Annotated[
         list[FieldError],

@@ -13,7 +13,7 @@ import numpy as np
 from pydantic import BaseModel
 
 from workers.spec.capabilities import Limits
-from workers.spec.filtrations import RipsFiltration
+from workers.spec.filtrations import DowkerFiltration, RipsFiltration
 from workers.spec.inputs import LabelledPointsInput
 from workers.spec.jobs import LabelledLayout, PersistenceTask
 from workers.spec.kinds.base import Checked, InputData, InputKind, LabelledPoints, Stored
@@ -103,10 +103,12 @@ class LabelledPointsKind(InputKind[LabelledPointsInput]):
                 'labelled points need a filtration, e.g. {"type": "rips", "population": '
                 f'"{data.classes[0]}"}}',
             )
+        if isinstance(filtration, DowkerFiltration):
+            return self._dowker_checked(data, filtration, uploaded, limits)
         if not isinstance(filtration, RipsFiltration):
             return Checked.stop(
                 "/filtration/type",
-                f'labelled points take the "rips" filtration, not "{filtration.type}"',
+                f'labelled points take the "rips" or "dowker" filtration, not "{filtration.type}"',
             )
         computed = len(data.points)
         if filtration.population is not None:
@@ -122,14 +124,48 @@ class LabelledPointsKind(InputKind[LabelledPointsInput]):
         errors = rips_errors(len(data.points), computed, filtration, limits, points_pointer)
         return Checked(errors, set(range(filtration.max_dim + 1)))
 
+    def _dowker_checked(
+        self, data: LabelledPoints, filtration: DowkerFiltration, uploaded: bool, limits: Limits
+    ) -> Checked:
+        """The checks of a Dowker filtration: two distinct classes the points have, neither
+        empty (its size is checked by the worker, which has the points' neighbours)."""
+        known = ", ".join(f'"{name}"' for name in data.classes)
+        for role in ("vertices", "witnesses"):
+            name = getattr(filtration, role)
+            if name not in data.classes:
+                return Checked.stop(
+                    f"/filtration/{role}",
+                    f'no point is of class "{name}"; the classes are {known}',
+                )
+        if filtration.vertices == filtration.witnesses:
+            return Checked.stop(
+                "/filtration/witnesses",
+                f'the witnesses are the class of the vertices ("{filtration.vertices}"); name '
+                f"another of {known}",
+            )
+        errors = []
+        if len(data.points) > limits.max_input_points:
+            errors.append(
+                FieldError(
+                    pointer=UPLOAD_POINTER if uploaded else "/input/points",
+                    message=f"{len(data.points)} points is above the limit of "
+                    f"{limits.max_input_points} per request",
+                )
+            )
+        return Checked(errors, set(range(filtration.max_dim + 1)))
+
     def stored(self, request: JobRequest, data: InputData | None, uploaded: bool) -> Stored:
         if not isinstance(data, LabelledPoints):
             raise TypeError("a labelled points job needs its checked arrays")
         array = np.column_stack([data.points, data.codes.astype(np.float64)])
         layout = LabelledLayout(classes=list(data.classes), centroids=data.centroids)
         filtration = request.filtration
-        population = filtration.population if isinstance(filtration, RipsFiltration) else None
-        on = f'class "{population}"' if population is not None else "all classes"
+        if isinstance(filtration, DowkerFiltration):
+            on = f'class "{filtration.vertices}" witnessed by "{filtration.witnesses}"'
+        elif isinstance(filtration, RipsFiltration) and filtration.population is not None:
+            on = f'class "{filtration.population}"'
+        else:
+            on = "all classes"
         n, d = data.points.shape
         return Stored(
             array,
@@ -140,4 +176,6 @@ class LabelledPointsKind(InputKind[LabelledPointsInput]):
         )
 
     def worker(self, task: PersistenceTask) -> str:
+        if isinstance(task.filtration, DowkerFiltration):
+            return "workers.jobs.dowker"
         return "workers.jobs.points"
