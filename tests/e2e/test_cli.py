@@ -19,6 +19,7 @@ from lacuna_client import Client, LacunaError
 from tests.support.ports import free_port
 from tests.support.stack import LACUNA
 from tests.support.synthetic import ring_mask
+from workers.core.dowker import dowker_diagrams
 
 # Slow as a module: one stack and 50 demo files for all its tests (about 40 s), one of
 # which takes over 10 s on its own (every demo data set).
@@ -418,3 +419,29 @@ def test_vectors_of_different_layouts_do_not_stack(base: str, tmp_path: Path) ->
     assert "only one layout stacks" in done.stderr
     assert not (tmp_path / "out" / "vectors.npy").exists()
     assert len(list((tmp_path / "out").glob("*.result.json"))) == 2
+
+
+def test_a_dowker_filtration_and_cell_mixing_of_a_labelled_table(base: str, tmp_path: Path) -> None:
+    rng = np.random.default_rng(4)
+    angles = np.linspace(0, 2 * np.pi, 10, endpoint=False)
+    tumour = np.round(np.column_stack([np.cos(angles), np.sin(angles)]) * 3, 3)
+    immune = np.round(rng.uniform(-3, 3, size=(6, 2)), 3)
+    table = tmp_path / "layout.csv"
+    rows = [f"{x},{y},tumour" for x, y in tumour] + [f"{x},{y},immune" for x, y in immune]
+    table.write_text("x,y,class\n" + "\n".join(rows) + "\n")
+    dowker = {"type": "dowker", "vertices": "tumour", "witnesses": "immune", "max_radius": 4}
+    run(
+        "submit", str(table), "--label-column", "class", "--filtration", json.dumps(dowker),
+        "--output", "diagrams,descriptors", "--descriptors", '{"radii": [1, 2]}',
+        "--server", base, "--quiet", check=0,
+    )  # fmt: skip
+    result = json.loads((tmp_path / "layout.csv.result.json").read_text())
+    # Reference: the core on the same arrays (itself checked against gudhi in
+    # tests/core/test_dowker.py); duality makes the side irrelevant to the diagrams.
+    expected = dowker_diagrams(tumour, immune, max_dim=1, max_radius=4)
+    assert result["value_convention"] == "witness_radius"
+    assert result["dowker"]["side_used"] == expected.side_used
+    for item, pairs in zip(result["diagrams"], expected.diagrams, strict=True):
+        found = [[b, np.inf if d is None else d] for b, d in item["pairs"]]
+        np.testing.assert_array_equal(np.array(found).reshape(-1, 2), pairs)
+    assert len(result["cell_mixing"]["pairs"]) == 2

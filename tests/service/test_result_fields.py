@@ -51,9 +51,20 @@ POINTS = {
     "filtration": {"type": "rips", "max_dim": 1},
 }
 
+DOWKER = {
+    "input": {
+        "type": "labelled_points",
+        "units": "um",
+        "points": [[0, 0], [1, 0], [0, 1], [1, 1], [0.5, 0.5], [2, 2]],
+        "labels": ["a", "a", "a", "a", "b", "b"],
+    },
+    "filtration": {"type": "dowker", "vertices": "a", "witnesses": "b", "max_radius": 3},
+}
+
 # (name, request, expected coordinate_units, expected spacing)
 JOBS = [
     ("rips", POINTS, "um", None),
+    ("dowker", DOWKER, "um", None),
     ("cubical-sublevel", image("sublevel"), "um", [0.25, 0.5]),
     ("cubical-superlevel", image("superlevel"), "um", [0.25, 0.5]),
     ("distance", mask([0.5, 0.5], type="distance"), "um", [0.5, 0.5]),
@@ -128,19 +139,22 @@ def test_the_jobs_above_cover_every_filtration(filtrations: dict[str, dict[str, 
     conventions = {
         convention for entry in filtrations.values() for convention in entry["value_conventions"]
     }
-    assert len(conventions) == 8  # each convention belongs to a filtration
+    assert len(conventions) == 9  # each convention belongs to a filtration
 
 
 def test_each_engine_names_the_distributions_it_ran_on(client: FlaskClient) -> None:
-    # Rips reduces with gudhi's float64 Ripser (named in versions, not in the engine); a
-    # skeleton graph comes from scikit-image; cubical and graph persistence are lacuna's own
-    # C, on numpy and scipy only.
+    # Rips reduces with gudhi's float64 Ripser and Dowker with gudhi's SimplexTree (named in
+    # versions, not in the engine); a skeleton graph comes from scikit-image; cubical and
+    # graph persistence are lacuna's own C, on numpy and scipy only.
     rips = result_of(client, POINTS)["provenance"]
     assert rips["engine"] == "rips-cut-collapse-float64"
     assert set(rips["versions"]) == {"lacuna", "numpy", "scipy", "gudhi"}
     cubical = result_of(client, image("sublevel"))["provenance"]
     assert cubical["engine"] == "cubical-lacuna-c"
     assert set(cubical["versions"]) == {"lacuna", "numpy", "scipy"}
+    dowker = result_of(client, DOWKER)["provenance"]
+    assert dowker["engine"] == "dowker-witness-float64"
+    assert set(dowker["versions"]) == {"lacuna", "numpy", "scipy", "gudhi"}
     skeleton = result_of(client, JOBS[-1][1])["provenance"]
     assert skeleton["engine"] == "graph-lacuna-c"
     assert set(skeleton["versions"]) == {"lacuna", "numpy", "scipy", "scikit-image"}

@@ -30,6 +30,7 @@ def test_every_kind_names_a_worker_module_that_computes() -> None:
     # A skeletonized mask is computed as a graph; every other kind by its own module.
     assert named == {
         "workers.jobs.points",
+        "workers.jobs.labelled",
         "workers.jobs.diagrams",
         "workers.jobs.pixels",
         "workers.jobs.graphs",

@@ -58,6 +58,16 @@ class DescriptorOptions(BaseModel):
     shells: Annotated[
         Shells | None, Field(description="Also give the descriptors per concentric shell.")
     ] = None
+    radii: Annotated[
+        list[Annotated[FiniteFloat, Field(gt=0)]] | None,
+        Field(
+            min_length=1,
+            max_length=MAX_SHELLS,
+            description="Labelled points only, and required there: the radii (coordinate "
+            "units, strictly increasing) at which the fraction of each class's points with a "
+            "point of another class within the radius is given.",
+        ),
+    ] = None
 
 
 class NetworkDescriptors(BaseModel):

@@ -72,7 +72,7 @@ def _graph_filtration(types: tuple[str, ...]) -> dict[str, Any]:
 
 _FILTRATION_BY_INPUT: list[dict[str, Any]] = [
     {"if": _input_is("points"), "then": _filtration_of(("rips",))},
-    {"if": _input_is("labelled_points"), "then": _filtration_of(("rips", "dowker"))},
+    {"if": _input_is("labelled_points"), "then": _graph_filtration(("rips", "dowker"))},
     {"if": _input_is("image"), "then": _filtration_of(("cubical",))},
     {
         "if": {**_input_is("mask"), "not": _input_is("mask", skeletonize=True)},
@@ -85,16 +85,20 @@ _FILTRATION_BY_INPUT: list[dict[str, Any]] = [
 """Which filtration each input takes, as the OpenAPI document states it (the input kinds in
 ``workers.spec.kinds`` check the same; tests/spec/test_openapi.py holds the two together)."""
 
-_GRAPH_INPUT = {"anyOf": [_input_is("graph"), _input_is("mask", skeletonize=True)]}
+_GRAPH_INPUTS = [_input_is("graph"), _input_is("mask", skeletonize=True)]
+
+
+def _output_needs(output: str, inputs: list[dict[str, Any]]) -> dict[str, Any]:
+    """JSON Schema: a request whose output holds ``output`` has one of ``inputs``."""
+    return {
+        "if": {"required": ["output"], "properties": {"output": {"contains": {"const": output}}}},
+        "then": {"anyOf": inputs},
+    }
+
 
 _OUTPUT_RULES: list[dict[str, Any]] = [
-    {
-        "if": {
-            "required": ["output"],
-            "properties": {"output": {"contains": {"enum": ["descriptors", "graph"]}}},
-        },
-        "then": _GRAPH_INPUT,
-    },
+    _output_needs("graph", _GRAPH_INPUTS),
+    _output_needs("descriptors", [*_GRAPH_INPUTS, _input_is("labelled_points")]),
     {
         "if": {"required": ["descriptors"], "properties": {"descriptors": {"type": "object"}}},
         "then": {
@@ -103,8 +107,9 @@ _OUTPUT_RULES: list[dict[str, Any]] = [
         },
     },
 ]
-"""The rules of ``output_errors`` the document states: outputs other than "diagrams" need a
-graph (a graph input or a skeletonized mask); descriptor options need "descriptors" in output."""
+"""The rules of ``output_errors`` the document states: output "graph" needs a graph (a graph
+input or a skeletonized mask), "descriptors" a graph or labelled points; descriptor options
+need "descriptors" in output."""
 
 _FILTRATION_RULES: dict[str, Any] = {"allOf": _FILTRATION_BY_INPUT + _OUTPUT_RULES}
 
@@ -119,11 +124,11 @@ class JobRequest(BaseModel):
     filtration: Annotated[
         Filtration | None,
         Field(
-            description='Required by "points" (rips), "labelled_points" (rips or dowker), '
-            '"image" (cubical) and "mask" (distance, height or radial) inputs; left out for '
-            '"diagrams"; for "graph" inputs (height, radial, geodesic or attribute) and masks with '
-            '"skeletonize" (height, radial or geodesic) required unless "output" leaves out '
-            '"diagrams".'
+            description='Required by "points" (rips), "image" (cubical) and "mask" '
+            '(distance, height or radial) inputs; left out for "diagrams"; for '
+            '"labelled_points" (rips or dowker), "graph" inputs (height, radial, geodesic or '
+            'attribute) and masks with "skeletonize" (height, radial or geodesic) required '
+            'unless "output" leaves out "diagrams".'
         ),
     ] = None
     features: Annotated[
@@ -140,15 +145,18 @@ class JobRequest(BaseModel):
             max_length=3,
             json_schema_extra={"uniqueItems": True},
             description='What the result holds: "diagrams" (the persistence diagrams and '
-            'feature vectors), "descriptors" (network descriptors) and "graph" (the nodes '
-            "and edges the job worked on); the last two for graph inputs and skeletonized "
-            "masks. A graph job that asks only for descriptors or the graph needs no "
-            "filtration.",
+            'feature vectors), "descriptors" (network descriptors of graph inputs and '
+            'skeletonized masks; cell mixing of labelled points) and "graph" (the nodes and '
+            "edges the job worked on, graphs and skeletonized masks only). A job that asks "
+            "only for descriptors or the graph needs no filtration.",
         ),
     ] = ["diagrams"]
     descriptors: Annotated[
         DescriptorOptions | None,
-        Field(description='How to measure the network descriptors (with output "descriptors").'),
+        Field(
+            description='How to measure the descriptors (with output "descriptors"): '
+            "direction and shells for graphs, radii for labelled points."
+        ),
     ] = None
 
     def references(self) -> list[tuple[int, str]]:
@@ -190,13 +198,17 @@ def length_error(spec: FeatureSpec, where: str, limits: Limits) -> FieldError | 
     )
 
 
-def output_errors(request: JobRequest, *, on_graph: bool) -> list[FieldError]:
+def output_errors(
+    request: JobRequest, *, on_graph: bool, labelled: bool = False
+) -> list[FieldError]:
     """What is wrong with the outputs asked for; ``on_graph``: the job works on a graph (a
-    graph input or a skeletonized mask)."""
+    graph input or a skeletonized mask); ``labelled``: on labelled points, which have
+    descriptors of their own (cell mixing) but no graph."""
     errors = []
     if len(set(request.output)) != len(request.output):
         errors.append(FieldError(pointer="/output", message="each output is named once"))
-    graph_only = [kind for kind in request.output if kind != "diagrams"]
+    offered = {"diagrams", "descriptors"} if labelled else {"diagrams"}
+    graph_only = [kind for kind in request.output if kind not in offered]
     if graph_only and not on_graph:
         errors.append(
             FieldError(
@@ -212,12 +224,13 @@ def output_errors(request: JobRequest, *, on_graph: bool) -> list[FieldError]:
                 message='descriptor options need "descriptors" in output',
             )
         )
-    if on_graph and request.filtration is None and "diagrams" in request.output:
+    if (on_graph or labelled) and request.filtration is None and "diagrams" in request.output:
         errors.append(
             FieldError(
                 pointer="/filtration",
-                message='diagrams need a filtration, e.g. {"type": "height", "direction": '
-                '[0, 1]}; for descriptors alone send "output": ["descriptors"]',
+                message="diagrams need a filtration, e.g. "
+                + ('{"type": "rips"}' if labelled else '{"type": "height", "direction": [0, 1]}')
+                + '; for descriptors alone send "output": ["descriptors"]',
             )
         )
     return errors

@@ -247,6 +247,39 @@ class PopulationCount(BaseModel):
     ]
 
 
+class NearestOtherClass(BaseModel):
+    """How near the points of one class (``source``) sit to the points of another
+    (``target``): each source point's distance to its nearest target point, summarised, in
+    the coordinate units. The pair is ordered: (A, B) is not (B, A)."""
+
+    source: str
+    target: str
+    first_quartile: float
+    median: float
+    third_quartile: float
+    mean: float
+    fraction_within: Annotated[
+        list[float],
+        Field(
+            description="Per radius of `radii`, in order: the fraction of source points with "
+            "a target point at distance <= the radius."
+        ),
+    ]
+
+
+class CellMixing(BaseModel):
+    """Cross-population descriptors of labelled points (output "descriptors"): for every
+    ordered pair of distinct classes, the nearest-other-class distances (quartiles by
+    numpy.percentile's linear interpolation) and the fractions within each radius. The count
+    of each class is in `populations`. Shape statistics for research, not a diagnosis."""
+
+    radii: Annotated[list[float], Field(description="The radii of `fraction_within`.")]
+    pairs: Annotated[
+        list[NearestOtherClass],
+        Field(description="Every ordered pair of distinct classes, sources in name order."),
+    ]
+
+
 class DowkerOutput(BaseModel):
     """How a Dowker filtration was built: its classes and the side computed."""
 
@@ -372,6 +405,12 @@ class JobResult(BaseModel):
             description="Labelled points: each class, in the order of their names, with its "
             "count; the filtration was built on the classes marked computed (the one its "
             "population names, or all)."
+        ),
+    ] = None
+    cell_mixing: Annotated[
+        CellMixing | None,
+        Field(
+            description='Labelled points: the cross-population descriptors (output "descriptors").'
         ),
     ] = None
     dowker: Annotated[

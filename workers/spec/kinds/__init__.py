@@ -73,7 +73,11 @@ def request_errors(
     ``uploaded`` says which).
     """
     kind = kind_of(request.input.type)
-    errors = output_errors(request, on_graph=kind.on_graph(request.input))
+    errors = output_errors(
+        request,
+        on_graph=kind.on_graph(request.input),
+        labelled=request.input.type == "labelled_points",
+    )
     if errors:
         return errors
     checked = kind.check(request, data, uploaded, limits)

@@ -227,6 +227,14 @@ def graph_max_dim(filtration: Filtration) -> int:
 
 def _option_errors(options: DescriptorOptions, dims: int) -> list[FieldError]:
     errors = []
+    if options.radii is not None:
+        errors.append(
+            FieldError(
+                pointer="/descriptors/radii",
+                message="radii are for labelled points; a graph's descriptors take direction "
+                "and shells",
+            )
+        )
     if options.direction is not None:
         if len(options.direction) != dims:
             errors.append(

@@ -39,6 +39,45 @@ def labelled_points_of(
     )
 
 
+def _mixing_errors(request: JobRequest, data: LabelledPoints) -> list[FieldError]:
+    """What is wrong with asking for the cell mixing descriptors of ``data``: they need two
+    classes and radii, positive and increasing, and take none of a graph's options."""
+    options = request.descriptors
+    if options is None or options.radii is None:
+        return [
+            FieldError(
+                pointer="/descriptors/radii",
+                message='the descriptors of labelled points need radii, e.g. "descriptors": '
+                '{"radii": [10, 20]}',
+            )
+        ]
+    for name in ("direction", "shells"):
+        if getattr(options, name) is not None:
+            return [
+                FieldError(
+                    pointer=f"/descriptors/{name}",
+                    message=f"{name} is for graph descriptors; labelled points take radii",
+                )
+            ]
+    if len(data.classes) < 2:
+        return [
+            FieldError(
+                pointer="/output",
+                message=f'every point is of class "{data.classes[0]}"; the descriptors compare '
+                "classes and need two",
+            )
+        ]
+    for index in range(1, len(options.radii)):
+        if options.radii[index] <= options.radii[index - 1]:
+            return [
+                FieldError(
+                    pointer=f"/descriptors/radii/{index}",
+                    message="radii must increase: each above the one before",
+                )
+            ]
+    return []
+
+
 class LabelledPointsKind(InputKind[LabelledPointsInput]):
     """Points of several classes (cell populations); the Rips filtration on all of them, or on
     the class its ``population`` names."""
@@ -96,8 +135,13 @@ class LabelledPointsKind(InputKind[LabelledPointsInput]):
                 f"the points have {len(data.classes)} classes, above the limit of "
                 f"{limits.max_label_classes}",
             )
+        mixing = _mixing_errors(request, data) if "descriptors" in request.output else []
+        if mixing:
+            return Checked(mixing, None)
         filtration = request.filtration
         if filtration is None:
+            if "diagrams" not in request.output:  # descriptors alone
+                return Checked([], set())
             return Checked.stop(
                 "/filtration",
                 'labelled points need a filtration, e.g. {"type": "rips", "population": '
@@ -176,6 +220,4 @@ class LabelledPointsKind(InputKind[LabelledPointsInput]):
         )
 
     def worker(self, task: PersistenceTask) -> str:
-        if isinstance(task.filtration, DowkerFiltration):
-            return "workers.jobs.dowker"
-        return "workers.jobs.points"
+        return "workers.jobs.labelled"
