@@ -133,6 +133,12 @@ def test_bad_dowker_filtrations_name_the_field(
     refused(post(client, JOBS, dowker_body(points, labels, **change)), [pointer], hint)
 
 
+def test_max_dim_above_the_servers_limit_is_refused(settings: Settings) -> None:
+    client = app_with(redis_url=settings.redis_url, queue=settings.queue, max_dim=1).test_client()
+    body = dowker_body(*two_classes(), max_dim=2)
+    refused(post(client, JOBS, body), ["/filtration/max_dim"], "limit of 1")
+
+
 def test_a_missing_max_radius_is_refused(client: FlaskClient) -> None:
     body = dowker_body(*two_classes())
     del body["filtration"]["max_radius"]

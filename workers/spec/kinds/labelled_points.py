@@ -1,5 +1,6 @@
 """Labelled points: 2D or 3D points each of one class, from JSON or an uploaded CSV or GeoJSON
-table, for point filtrations on all of them or on one population.
+table, for the Rips filtration on all of them or on one population, the Dowker filtration of
+one class witnessed by another, and cross-population descriptors (output "descriptors").
 
 Stored as one (n, d + 1) float64 array: the coordinates, then the position of the point's
 class among the class names sorted (exact in float64: at most ``max_label_classes``). The
@@ -17,7 +18,7 @@ from workers.spec.filtrations import DowkerFiltration, RipsFiltration
 from workers.spec.inputs import LabelledPointsInput
 from workers.spec.jobs import LabelledLayout, PersistenceTask
 from workers.spec.kinds.base import Checked, InputData, InputKind, LabelledPoints, Stored
-from workers.spec.kinds.points import ragged_row, rips_errors
+from workers.spec.kinds.points import max_dim_errors, ragged_row, rips_errors
 from workers.spec.problems import FieldError
 from workers.spec.requests import JobRequest
 
@@ -80,7 +81,8 @@ def _mixing_errors(request: JobRequest, data: LabelledPoints) -> list[FieldError
 
 class LabelledPointsKind(InputKind[LabelledPointsInput]):
     """Points of several classes (cell populations); the Rips filtration on all of them, or on
-    the class its ``population`` names."""
+    the class its ``population`` names; the Dowker filtration of two classes; the cell mixing
+    descriptors."""
 
     type = "labelled_points"
     model = LabelledPointsInput
@@ -196,6 +198,7 @@ class LabelledPointsKind(InputKind[LabelledPointsInput]):
                     f"{limits.max_input_points} per request",
                 )
             )
+        errors += max_dim_errors(filtration.max_dim, limits)
         return Checked(errors, set(range(filtration.max_dim + 1)))
 
     def stored(self, request: JobRequest, data: InputData | None, uploaded: bool) -> Stored:

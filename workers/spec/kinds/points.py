@@ -125,12 +125,16 @@ def rips_errors(
                     f"{limits.max_points}",
                 )
             )
-    if filtration.max_dim > limits.max_dim:
-        errors.append(
-            FieldError(
-                pointer="/filtration/max_dim",
-                message=f"max_dim {filtration.max_dim} is above this server's limit of "
-                f"{limits.max_dim}",
-            )
+    return errors + max_dim_errors(filtration.max_dim, limits)
+
+
+def max_dim_errors(max_dim: int, limits: Limits) -> list[FieldError]:
+    """The filtration's ``max_dim`` against this server's limit."""
+    if max_dim <= limits.max_dim:
+        return []
+    return [
+        FieldError(
+            pointer="/filtration/max_dim",
+            message=f"max_dim {max_dim} is above this server's limit of {limits.max_dim}",
         )
-    return errors
+    ]
